@@ -1,0 +1,208 @@
+"""Reading point coordinates from text, .npy and HDF5 files.
+
+Supported inputs
+----------------
+* delimited text (comma, tab, semicolon or whitespace), with or without a
+  header line; lines starting with ``#`` are comments;
+* ``.npy`` arrays of shape (n, k) (loaded with ``allow_pickle=False``);
+* an HDF5 dataset, addressed as ``file.h5:/group/dataset``.
+
+Columns are chosen with ``columns``: names (need a header) or 0-based
+indices.  Without ``columns``, a header with ``x, y[, z]`` selects those,
+otherwise a file of exactly 2 or 3 columns is taken whole.
+"""
+from __future__ import annotations
+
+import os
+import re
+
+import numpy as np
+
+from .errors import PointsError
+
+__all__ = ["read_points", "parse_columns"]
+
+_H5_SUFFIX = re.compile(r"^(.*\.(?:h5|hdf5|hdf))(?::(.*))?$", re.IGNORECASE)
+
+
+def parse_columns(text: str | None):
+    """Parse a ``--columns`` value (``"x,y"`` or ``"0,1,2"``) into a list."""
+    if text is None:
+        return None
+    items = [s.strip() for s in str(text).split(",")]
+    if not 2 <= len(items) <= 3 or any(not s for s in items):
+        raise PointsError(f"--columns needs 2 or 3 comma-separated names or indices, got '{text}'")
+    if all(re.fullmatch(r"\d+", s) for s in items):
+        return [int(s) for s in items]
+    return items
+
+
+def _is_number(tok: str) -> bool:
+    try:
+        float(tok)
+        return True
+    except ValueError:
+        return False
+
+
+def _split_function(line: str):
+    for delim in (",", "\t", ";"):
+        if delim in line:
+            return delim, (lambda s, d=delim: [t.strip() for t in s.split(d)])
+    return None, (lambda s: s.split())
+
+
+def _select(arr: np.ndarray, names, columns, where: str) -> np.ndarray:
+    k = arr.shape[1]
+    if columns is None:
+        if names is not None:
+            low = [str(n).strip().lower() for n in names]
+            if "x" in low and "y" in low:
+                idx = [low.index("x"), low.index("y")] + ([low.index("z")] if "z" in low else [])
+                return arr[:, idx]
+        if k in (2, 3):
+            return arr
+        raise PointsError(
+            f"{where}: has {k} columns; choose the coordinate columns with --columns "
+            "(names like x,y or 0-based indices like 0,1)")
+    idx = []
+    for c in columns:
+        if isinstance(c, (int, np.integer)):
+            if not 0 <= c < k:
+                raise PointsError(f"{where}: column index {c} out of range (file has {k} columns)")
+            idx.append(int(c))
+        else:
+            if names is None:
+                raise PointsError(f"{where}: column '{c}' requested by name, but the file has no header")
+            low = [str(n).strip().lower() for n in names]
+            if c.lower() not in low:
+                raise PointsError(f"{where}: no column named '{c}' (header: {', '.join(map(str, names))})")
+            idx.append(low.index(c.lower()))
+    return arr[:, idx]
+
+
+def _read_text(path: str, columns) -> np.ndarray:
+    try:
+        with open(path, "r", encoding="utf-8-sig") as fh:
+            raw = fh.read()
+    except UnicodeDecodeError:
+        raise PointsError(f"{path}: not a text file (cannot decode as UTF-8)") from None
+    except OSError as exc:
+        raise PointsError(f"cannot read {path}: {exc.strerror or exc}") from None
+    if "\x00" in raw:
+        raise PointsError(f"{path}: not a text file (contains NUL bytes)")
+    lines = [(i + 1, ln) for i, ln in enumerate(raw.splitlines())
+             if ln.strip() and not ln.lstrip().startswith("#")]
+    if not lines:
+        raise PointsError(f"{path}: file is empty")
+    _, split = _split_function(lines[0][1])
+    first = split(lines[0][1])
+    names = None
+    if not all(_is_number(t) for t in first):
+        names = first
+        lines = lines[1:]
+        if not lines:
+            raise PointsError(f"{path}: header only, no data rows")
+    ncol = len(names) if names is not None else len(first)
+    rows = []
+    for lineno, ln in lines:
+        toks = split(ln)
+        if len(toks) != ncol:
+            raise PointsError(f"{path}, line {lineno}: expected {ncol} columns, found {len(toks)}")
+        rows.append(toks)
+    try:
+        arr = np.array(rows, dtype=float)
+    except ValueError:
+        for (lineno, _), toks in zip(lines, rows):
+            for j, t in enumerate(toks):
+                if not _is_number(t):
+                    raise PointsError(f"{path}, line {lineno}, column {j + 1}: '{t[:40]}' is not a number") from None
+        raise PointsError(f"{path}: cannot parse numbers") from None
+    arr = arr.reshape(len(rows), ncol)
+    out = _select(arr, names, columns, path)
+    _check_finite(out, path, [ln for ln, _ in lines])
+    return out
+
+
+def _check_finite(arr, where, linenos=None):
+    bad = ~np.isfinite(arr)
+    if bad.any():
+        i, j = np.argwhere(bad)[0]
+        what = f"line {linenos[i]}" if linenos is not None else f"row {i}"
+        raise PointsError(f"{where}, {what}: coordinate {j + 1} is {arr[i, j]} (NaN/inf not allowed); "
+                          f"{int(bad.any(axis=1).sum())} row(s) affected")
+
+
+def _read_array(arr, where, columns):
+    arr = np.asarray(arr)
+    if arr.dtype.kind not in "iuf":
+        raise PointsError(f"{where}: array has dtype {arr.dtype}, expected numbers")
+    if arr.ndim != 2:
+        raise PointsError(f"{where}: array has shape {arr.shape}, expected (n, 2) or (n, 3)")
+    if arr.shape[0] == 0:
+        raise PointsError(f"{where}: array has no rows")
+    out = _select(arr.astype(float), None, columns, where)
+    _check_finite(out, where)
+    return out
+
+
+def read_points(source, columns=None) -> np.ndarray:
+    """Read an (n, d) array of point coordinates.
+
+    Parameters
+    ----------
+    source : str or path-like or ndarray
+        A text/CSV file, a ``.npy`` file, ``file.h5:/dataset``, or an array.
+    columns : list of str or int, optional
+        Coordinate columns to use (names need a header; ints are 0-based).
+
+    Returns
+    -------
+    ndarray of float, shape (n, 2) or (n, 3)
+
+    Raises
+    ------
+    PointsError
+        When the file is missing, unreadable, malformed or holds NaN/inf.
+    """
+    if isinstance(columns, str):
+        columns = parse_columns(columns)
+    if not isinstance(source, (str, os.PathLike)):
+        return _read_array(source, "points", columns)
+    path = os.fspath(source)
+    m = _H5_SUFFIX.match(path)
+    if m:
+        return _read_hdf5(m.group(1), m.group(2), columns)
+    if not os.path.exists(path):
+        raise PointsError(f"points file not found: {path}")
+    if os.path.isdir(path):
+        raise PointsError(f"{path} is a directory, expected a points file")
+    if path.lower().endswith(".npy"):
+        try:
+            arr = np.load(path, allow_pickle=False)
+        except Exception as exc:
+            raise PointsError(f"{path}: not a readable .npy array ({str(exc).splitlines()[0][:80]})") from None
+        return _read_array(arr, path, columns)
+    return _read_text(path, columns)
+
+
+def _read_hdf5(path, dataset, columns):
+    import h5py
+
+    if not os.path.exists(path):
+        raise PointsError(f"points file not found: {path}")
+    if not dataset:
+        raise PointsError(f"{path}: name the dataset, as in {path}:/points")
+    try:
+        with h5py.File(path, "r") as fh:
+            if dataset not in fh:
+                raise PointsError(f"{path}: no dataset '{dataset}'")
+            obj = fh[dataset]
+            if not isinstance(obj, h5py.Dataset):
+                raise PointsError(f"{path}:{dataset} is a group, not a dataset")
+            arr = obj[()]
+    except PointsError:
+        raise
+    except Exception as exc:
+        raise PointsError(f"{path}: not a readable HDF5 file ({str(exc).splitlines()[0][:80]})") from None
+    return _read_array(arr, f"{path}:{dataset}", columns)
