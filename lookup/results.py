@@ -1,0 +1,136 @@
+"""Result objects in the style of ``scipy.stats``: ``statistic``, ``pvalue`` and ours."""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+__all__ = ["StatResult", "CSRTestResult"]
+
+
+def _clean(v):
+    if isinstance(v, np.ndarray):
+        return [_clean(x) for x in v.tolist()]
+    if isinstance(v, (list, tuple)):
+        return [_clean(x) for x in v]
+    if isinstance(v, (np.floating, float)):
+        v = float(v)
+        return v if np.isfinite(v) else None
+    if isinstance(v, np.integer):
+        return int(v)
+    if isinstance(v, dict):
+        return {k: _clean(x) for k, x in v.items()}
+    return v
+
+
+@dataclass
+class StatResult:
+    """The test of one statistic.
+
+    Attributes
+    ----------
+    statistic : float
+        The test statistic: the value of a scalar statistic, or for a curve
+        the largest standardised deviation max_k |z_k| over its grid.
+    pvalue : float
+    name : str
+        Statistic name (``--stat``).
+    kind : {"curve", "scalar", "extreme"}
+    observed, null_mean, null_sd : float
+        Observed value of ``statistic`` and its null mean and sd.
+    z : float
+        (observed - null_mean) / null_sd.
+    method : str
+        How the p-value was obtained, e.g. ``"mc-rank"`` or ``"mc-erl-envelope"``.
+    alternative : str
+    trusted : bool
+    reason : str
+    primary : bool
+    n_sims : int
+    curve : dict or None
+        For curves: grid, observed curve, null mean and sd, pointwise and
+        global 95% envelopes.
+    """
+
+    name: str
+    kind: str
+    statistic: float
+    pvalue: float
+    observed: float
+    null_mean: float
+    null_sd: float
+    z: float
+    method: str
+    alternative: str = "two-sided"
+    trusted: bool = True
+    reason: str = ""
+    primary: bool = False
+    n_sims: int = 0
+    curve: dict | None = None
+
+    def as_dict(self, curves: bool = True) -> dict:
+        d = {"statistic": self.name, "kind": self.kind, "observed": self.observed,
+             "null_mean": self.null_mean, "null_sd": self.null_sd, "z": self.z,
+             "p_value": self.pvalue, "method": self.method, "alternative": self.alternative,
+             "trusted": self.trusted, "reason": self.reason, "primary": self.primary,
+             "n_sims": self.n_sims}
+        if curves and self.curve is not None:
+            d["curve"] = self.curve
+        return _clean(d)
+
+
+@dataclass
+class CSRTestResult:
+    """All results of one run on one pattern; ``statistic``/``pvalue`` are the primary test's.
+
+    Attributes
+    ----------
+    statistic, pvalue : float
+        Of the primary test (``results[0]``).
+    results : list of StatResult
+        Primary first, then secondary tests (unadjusted p-values).
+    n : int
+    dimension : int
+    window : dict
+    seed : int
+        Entropy of the root seed: rerunning with it reproduces the result.
+    validation : dict
+    diagram : Diagram or None
+    warnings : list of str
+    """
+
+    results: list
+    n: int
+    dimension: int
+    window: dict
+    seed: int | None = None
+    validation: dict = field(default_factory=dict)
+    diagram: object = None
+    warnings: list = field(default_factory=list)
+    elapsed_s: float = 0.0
+
+    @property
+    def primary(self) -> StatResult:
+        return self.results[0]
+
+    @property
+    def statistic(self) -> float:
+        return self.primary.statistic
+
+    @property
+    def pvalue(self) -> float:
+        return self.primary.pvalue
+
+    def __getitem__(self, name: str) -> StatResult:
+        for r in self.results:
+            if r.name == name:
+                return r
+        raise KeyError(name)
+
+    def as_dict(self, curves: bool = True) -> dict:
+        return _clean({
+            "n": self.n, "dimension": self.dimension, "window": self.window,
+            "seed": self.seed, "validation": self.validation, "warnings": list(self.warnings),
+            "elapsed_s": round(self.elapsed_s, 4),
+            "results": [r.as_dict(curves) for r in self.results],
+        })
