@@ -1,0 +1,28 @@
+"""Atomic file writes: write to a temporary file beside the target, then rename."""
+from __future__ import annotations
+
+import contextlib
+import os
+import tempfile
+
+__all__ = ["atomic_path"]
+
+
+@contextlib.contextmanager
+def atomic_path(path: str):
+    """Yield a temporary path in the target's folder; rename it over ``path`` on success.
+
+    On any exception the temporary file is removed and ``path`` is untouched.
+    """
+    path = os.fspath(path)
+    folder = os.path.dirname(os.path.abspath(path))
+    base, ext = os.path.splitext(os.path.basename(path))
+    fd, tmp = tempfile.mkstemp(prefix=f".{base}.", suffix=f".tmp{ext}", dir=folder)
+    os.close(fd)
+    try:
+        yield tmp
+        os.replace(tmp, path)
+    except BaseException:
+        with contextlib.suppress(OSError):
+            os.unlink(tmp)
+        raise

@@ -1,0 +1,200 @@
+"""The ``nullatlas`` command: test a point pattern for complete spatial randomness.
+
+Every bad input ends with one line on standard error and exit status 2.
+"""
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+import warnings
+
+import numpy as np
+
+from .errors import NullAtlasError, OptionError
+
+PROG = "nullatlas"
+
+
+class _Parser(argparse.ArgumentParser):
+    """Argument parser whose usage errors are one line and exit status 2."""
+
+    def error(self, message):
+        sys.stderr.write(f"{self.prog}: error: {message} (see {self.prog} --help)\n")
+        sys.exit(2)
+
+
+def _int(text):
+    try:
+        return int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"'{text}' is not an integer") from None
+
+
+def _float(text):
+    try:
+        return float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"'{text}' is not a number") from None
+
+
+def build_parser() -> argparse.ArgumentParser:
+    from .windows import SPEC_HELP
+
+    p = _Parser(prog=PROG, description=(
+        "Test whether a 2D or 3D point pattern is consistent with complete spatial "
+        "randomness (CSR), judged by persistent homology and classical summaries."))
+    sub = p.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+    sub.required = True
+
+    t = sub.add_parser("test", help="test one point pattern against CSR",
+                       description="Test one point pattern against CSR (binomial null "
+                       "conditional on the number of points).")
+    t.add_argument("points", help="points file: CSV/TSV/whitespace text (header optional), "
+                   ".npy, or FILE.h5:/dataset")
+    t.add_argument("--window", "-w", required=True, metavar="SPEC",
+                   help=f"observation window: {SPEC_HELP}. bbox/hull are estimated from the "
+                   "data and bias the test (a warning is printed)")
+    t.add_argument("--stat", action="append", metavar="NAME",
+                   help="statistic to test (repeat or comma-separate); the first is the primary "
+                   "test, the rest are secondary and unadjusted. Default: euler, then "
+                   "total0,total1[,total2],maxpers1,nnmean,lfunc. See 'nullatlas stats'")
+    t.add_argument("--method", default="mc", choices=["mc"],
+                   help="how p-values are computed: mc = Monte Carlo simulation of the null "
+                   "(default: mc)")
+    t.add_argument("--sims", type=_int, default=999, metavar="M",
+                   help="number of null simulations (default: 999)")
+    t.add_argument("--seed", type=_int, default=None, metavar="S",
+                   help="root random seed (default: fresh; the seed used is reported)")
+    t.add_argument("--jobs", "-j", type=_int, default=1, metavar="N",
+                   help="worker processes, 0 = all cores (default: 1); results do not depend on it")
+    t.add_argument("--alternative", default="two-sided",
+                   choices=["two-sided", "clustered", "regular"],
+                   help="alternative hypothesis for scalar statistics with a known direction "
+                   "(default: two-sided)")
+    t.add_argument("--alpha", type=_float, default=0.05,
+                   help="level of the verdict and of the envelopes (default: 0.05, common practice)")
+    t.add_argument("--columns", metavar="COLS",
+                   help="coordinate columns by name (x,y,z) or 0-based index (0,1,2)")
+    t.add_argument("--on-duplicates", default="error", choices=["error", "drop", "jitter"],
+                   help="what to do with exactly repeated points (default: error)")
+    t.add_argument("--plot", metavar="FILE",
+                   help="write a figure (.png, .pdf or .svg): diagram, curves with null envelopes, "
+                   "scalar z-scores")
+    t.add_argument("--json", action="store_true", help="print one JSON object instead of a table")
+    t.add_argument("--curves", action="store_true",
+                   help="with --json, include the observed and null curves on their grids")
+    bar = t.add_mutually_exclusive_group()
+    bar.add_argument("--progress", dest="progress", action="store_true", default=None,
+                     help="always show the progress bar (default: only on a terminal)")
+    bar.add_argument("--no-progress", dest="progress", action="store_false",
+                     help="never show the progress bar")
+
+    s = sub.add_parser("stats", help="list the available statistics",
+                       description="List the statistics that --stat accepts.")
+    s.add_argument("--json", action="store_true", help="print a JSON list")
+    return p
+
+
+def _fmt(v, width=10):
+    if v is None or (isinstance(v, float) and not np.isfinite(v)):
+        return "-".rjust(width)
+    return f"{v:.4g}".rjust(width)
+
+
+def _print_table(res, alpha, out=sys.stdout):
+    w = res.window
+    size = w.get("area", w.get("volume"))
+    out.write(f"n = {res.n} points in {res.dimension}D, window {w['kind']} "
+              f"({'area' if res.dimension == 2 else 'volume'} {size:.6g}, kappa {w['kappa']:.4g}), "
+              f"seed {res.seed}\n")
+    for msg in res.warnings:
+        out.write(f"warning: {msg}\n")
+    head = f"{'statistic':<12}{'kind':<9}{'observed':>10}{'null mean':>11}{'null sd':>10}" \
+           f"{'z':>8}{'p-value':>10}  method"
+    out.write(head + "\n" + "-" * len(head) + "\n")
+    for r in res.results:
+        name = r.name + ("*" if r.primary else "")
+        out.write(f"{name:<12}{r.kind:<9}{_fmt(r.observed)}{_fmt(r.null_mean, 11)}"
+                  f"{_fmt(r.null_sd)}{_fmt(r.z, 8)}{_fmt(r.pvalue)}  {r.method}\n")
+    out.write("* primary test; the others are secondary, p-values unadjusted. "
+              "Curves: observed = max |z| over the grid.\n")
+    p = res.primary
+    if p.pvalue <= alpha:
+        verdict = f"CSR rejected at alpha = {alpha:g} by the primary test {p.name} (p = {p.pvalue:.3g})"
+    else:
+        verdict = (f"no evidence against CSR at alpha = {alpha:g} from the primary test "
+                   f"{p.name} (p = {p.pvalue:.3g})")
+    out.write(f"Verdict: {verdict}.\n")
+
+
+def _cmd_test(a) -> int:
+    from .csrtest import csr_test
+    from .plots import check_plot_path, plot_result
+    from .readers import parse_columns, read_points
+    from .windows import parse_window
+
+    if a.sims < 1:
+        raise OptionError(f"--sims must be at least 1, got {a.sims}")
+    if a.jobs < 0:
+        raise OptionError(f"--jobs must be 0 (all cores) or positive, got {a.jobs}")
+    if a.plot:
+        check_plot_path(a.plot)
+    pts = read_points(a.points, parse_columns(a.columns))
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        window = parse_window(a.window, pts)
+    res = csr_test(pts, window, a.stat, method=a.method, n_sims=a.sims, seed=a.seed,
+                   jobs=a.jobs, alternative=a.alternative, on_duplicates=a.on_duplicates,
+                   alpha=a.alpha, progress=a.progress)
+    res.warnings[:0] = [str(w.message) for w in caught]
+    if a.plot:
+        plot_result(res, a.plot)
+    if a.json:
+        d = res.as_dict(curves=a.curves)
+        d["alpha"] = a.alpha
+        d["points_file"] = a.points
+        if a.plot:
+            d["plot"] = a.plot
+        json.dump(d, sys.stdout, indent=2, allow_nan=False)
+        sys.stdout.write("\n")
+    else:
+        _print_table(res, a.alpha)
+        if a.plot:
+            sys.stdout.write(f"figure written to {a.plot}\n")
+    return 0
+
+
+def _cmd_stats(a) -> int:
+    from .statistics import STATISTICS
+
+    rows = [{"name": s.name, "kind": s.kind, "dimensions": list(s.dims),
+             "under_clustering": {1: "larger", -1: "smaller", None: "unknown"}[s.clustered],
+             "description": s.description} for s in STATISTICS.values()]
+    if a.json:
+        json.dump(rows, sys.stdout, indent=2)
+        sys.stdout.write("\n")
+    else:
+        for r in rows:
+            dims = "/".join(f"{d}D" for d in r["dimensions"])
+            sys.stdout.write(f"{r['name']:<13}{r['kind']:<8}{dims:<7}clustering: "
+                             f"{r['under_clustering']:<8} {r['description']}\n")
+    return 0
+
+
+def main(argv=None) -> int:
+    """Entry point of the ``nullatlas`` command."""
+    parser = build_parser()
+    a = parser.parse_args(argv)
+    try:
+        return {"test": _cmd_test, "stats": _cmd_stats}[a.command](a)
+    except NullAtlasError as exc:
+        sys.stderr.write(f"{PROG}: error: {exc}\n")
+        return 2
+    except KeyboardInterrupt:
+        sys.stderr.write(f"{PROG}: interrupted\n")
+        return 130
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())
