@@ -102,7 +102,8 @@ def _fmt(v, width=10):
     return f"{v:.4g}".rjust(width)
 
 
-def _print_table(res, alpha, out=sys.stdout):
+def _print_table(res, alpha, out=None):
+    out = out or sys.stdout
     w = res.window
     size = w.get("area", w.get("volume"))
     out.write(f"n = {res.n} points in {res.dimension}D, window {w['kind']} "
