@@ -9,8 +9,9 @@ normalised radius
     rho = r * (n / |W|)^(1/d),
 
 under which the null law of the diagram depends only on d, n and the shape
-of the window.  Pairs of zero length are not stored (gudhi drops them); they
-contribute nothing to any summary computed here.
+of the window.  Pairs of zero length are not stored (gudhi drops them; we
+also drop pairs of relative length below ``ZERO_LENGTH``, ties split by
+rounding); they contribute nothing to any summary computed here.
 """
 from __future__ import annotations
 
@@ -18,7 +19,10 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-__all__ = ["Diagram", "alpha_diagram", "intensity_scale"]
+__all__ = ["Diagram", "alpha_diagram", "intensity_scale", "ZERO_LENGTH"]
+
+#: Pairs with (death - birth) <= ZERO_LENGTH * death count as zero length.
+ZERO_LENGTH = 1e-9
 
 
 def intensity_scale(n: int, measure: float, dim: int) -> float:
@@ -84,14 +88,16 @@ def alpha_diagram(points: np.ndarray, measure: float | None = None) -> Diagram:
     p = np.ascontiguousarray(points, dtype=float)
     n, d = p.shape
     # Centre the coordinates: the filtration is translation invariant, and
-    # centring keeps the arithmetic well conditioned for offset data.
-    centred = p - p.mean(axis=0)
-    st = gudhi.AlphaComplex(points=centred).create_simplex_tree()
+    # centring keeps gudhi's arithmetic well conditioned for offset data.
+    st = gudhi.AlphaComplex(points=p - p.mean(axis=0)).create_simplex_tree()
     st.compute_persistence(homology_coeff_field=2, persistence_dim_max=False)
     scale = intensity_scale(n, measure, d) if measure else 1.0
     pairs = []
     for q in range(d):
         iv = np.asarray(st.persistence_intervals_in_dimension(q), dtype=float).reshape(-1, 2)
         iv = np.sqrt(np.maximum(iv, 0.0)) * scale
-        pairs.append(iv)
+        # gudhi's default ('safe') values carry a relative error far below 1e-9;
+        # pairs shorter than that are ties split by rounding, not features.
+        keep = np.isinf(iv[:, 1]) | ((iv[:, 1] - iv[:, 0]) > ZERO_LENGTH * iv[:, 1])
+        pairs.append(iv[keep])
     return Diagram(pairs=pairs, n=n, dim=d, scale=scale)

@@ -106,7 +106,9 @@ def validate_pattern(points, window, on_duplicates="error", rng=None):
 def _jitter(p, which, window, rng):
     """Move the points flagged ``which`` by a small random offset inside W."""
     p = p.copy()
-    scale = 1e-6 * window.length_scale / np.sqrt(len(p))
+    # Small against the mean spacing, but well above the float spacing of the
+    # coordinates, so that jittered copies are distinct even far from the origin.
+    scale = max(1e-6 * window.length_scale / np.sqrt(len(p)), 1e3 * float(np.spacing(np.abs(p).max())))
     idx = np.flatnonzero(which)
     for _ in range(100):
         if idx.size == 0:

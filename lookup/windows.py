@@ -110,6 +110,21 @@ class Window:
         return f"<{type(self).__name__} {self.spec()} kappa={self.kappa:.4g}>"
 
 
+def _check_size(w: "Window") -> "Window":
+    """Reject windows whose content or boundary over/underflows a float."""
+    with np.errstate(all="ignore"):
+        try:
+            m, b = float(w.measure), float(w.boundary_measure)
+            k = float(w.kappa)
+        except (OverflowError, ZeroDivisionError):
+            m, b, k = float("inf"), float("inf"), float("nan")
+    if not (np.isfinite(m) and m > 0 and np.isfinite(b) and b > 0 and np.isfinite(k) and k > 0
+            and np.isfinite(m ** (1.0 / w.dim)) and m ** (1.0 / w.dim) > 1e-100):
+        raise WindowError(f"window {w.kind}: its size is out of floating-point range "
+                          f"(content {m:.3g}, boundary {b:.3g}); rescale the coordinates")
+    return w
+
+
 def _finite(values, what):
     vals = [float(v) for v in values]
     if not all(math.isfinite(v) for v in vals):
@@ -192,7 +207,7 @@ class Disk(Window):
 
     @property
     def measure(self):
-        return math.pi * self.r ** 2
+        return math.pi * np.float64(self.r) ** 2
 
     @property
     def boundary_measure(self):
@@ -231,11 +246,11 @@ class Ball(Window):
 
     @property
     def measure(self):
-        return 4.0 / 3.0 * math.pi * self.r ** 3
+        return 4.0 / 3.0 * math.pi * np.float64(self.r) ** 3
 
     @property
     def boundary_measure(self):
-        return 4 * math.pi * self.r ** 2
+        return 4 * math.pi * np.float64(self.r) ** 2
 
     def contains(self, points):
         d = np.linalg.norm(np.asarray(points, float) - self.centre, axis=1)
@@ -419,8 +434,8 @@ def _load_polygon_file(path: str) -> PolygonWindow:
     try:
         with open(path, "r", encoding="utf-8") as fh:
             text = fh.read()
-    except (OSError, UnicodeDecodeError) as exc:
-        raise WindowError(f"cannot read window file {path}: {exc}") from None
+    except (OSError, UnicodeDecodeError, ValueError) as exc:
+        raise WindowError(f"cannot read window file {path!r}: {exc}") from None
     lower = path.lower()
     try:
         if lower.endswith((".geojson", ".json")):
@@ -485,18 +500,20 @@ def parse_window(spec: str, points: np.ndarray | None = None) -> Window:
             vals = [float(s) for s in parts]
         except ValueError:
             raise WindowError(f"window '{spec}': not all of {rest!r} are numbers") from None
-        return cls(*vals)
+        return _check_size(cls(*vals))
     if key == "polygon" and rest:
         import shapely.wkt
         try:
             geom = shapely.wkt.loads(rest)
         except Exception:
             raise WindowError(f"window '{spec[:60]}': cannot parse WKT") from None
-        return PolygonWindow(geom)
+        return _check_size(PolygonWindow(geom))
     if key in ("bbox", "hull") and not rest:
         if points is None or len(points) == 0:
             raise WindowError(f"window '{key}' is estimated from the points, but there are none")
         p = np.asarray(points, float)
+        if p.ndim != 2 or p.shape[1] not in (2, 3) or not np.all(np.isfinite(p)):
+            raise WindowError(f"window '{key}' needs finite 2D or 3D points to be estimated from")
         warnings.warn(
             f"window '{key}' is estimated from the data; an estimated window biases the "
             "test towards regularity near the boundary -- give the true window if known",
@@ -515,7 +532,7 @@ def parse_window(spec: str, points: np.ndarray | None = None) -> Window:
         else:
             w = ConvexPolytope(p)
         w.estimated = True
-        return w
+        return _check_size(w)
     if os.path.splitext(spec)[1].lower() in (".geojson", ".json", ".wkt"):
-        return _load_polygon_file(spec)
+        return _check_size(_load_polygon_file(spec))
     raise WindowError(f"unknown window specification '{spec}'; expected {SPEC_HELP}")
