@@ -95,6 +95,9 @@ def silhouette(diag: Diagram, q: int, grid: np.ndarray = grids.SILHOUETTE_T,
     p = diag.finite(q)
     if len(p) == 0:
         return np.zeros(len(grid))
+    p = p[p[:, 1] > p[:, 0]]
+    if len(p) == 0:
+        return np.zeros(len(grid))
     b, d = p[:, 0], p[:, 1]
     w = (d - b) ** power
     tent = np.maximum(0.0, np.minimum(grid[:, None] - b[None, :], d[None, :] - grid[:, None]))

@@ -97,17 +97,35 @@ def test_regular_hexagon():
 def test_right_and_obtuse_triangles_have_no_h1(name, pts, h0):
     d = alpha_diagram(np.array(pts))
     _check_h0_births_zero(d)
-    life = d.pairs[1][:, 1] - d.pairs[1][:, 0]
-    # No H1 feature of positive lifetime.  (A pair of zero length may still
-    # be stored: see test_zero_length_pairs_are_not_stored below.)
-    assert np.all(life <= TOL), f"{name}: unexpected H1 {d.pairs[1]}"
+    # No H1 at all: zero-length pairs (here the hypotenuse entering with the
+    # triangle) are not stored (diagram.py docstring).
+    assert d.pairs[1].shape == (0, 2), f"{name}: unexpected H1 {d.pairs[1]}"
     np.testing.assert_allclose(_h0_deaths(d)[:2], h0, rtol=TOL, atol=TOL)
 
 
-def test_zero_length_pairs_are_not_stored():
+@pytest.mark.parametrize("offset", [0.0, 0.3, 1.0e3])
+def test_zero_length_pairs_are_not_stored(offset):
     # REFERENCES.md, exact small cases: right triangle -> no H1 at all.
-    d = alpha_diagram(np.array([[0.0, 0.0], [1.0, 0.0], [0.0, 1.0]]))
+    # Regression: with centred coordinates the hypotenuse got squared radius
+    # 0.5 and the triangle 0.5000000000000001, which once left a stored H1
+    # pair of length 0 (and made summaries.silhouette return NaN).
+    d = alpha_diagram(np.array([[0.0, 0.0], [1.0, 0.0], [0.0, 1.0]]) + offset)
     assert d.pairs[1].shape == (0, 2), d.pairs[1]
+
+
+@pytest.mark.parametrize("shift, factor", [(0.0, 1.0), (0.1, 1.0), (0.0, 0.1)])
+def test_square_lattice_has_one_loop_per_cell(shift, factor):
+    # Elementary geometry (REFERENCES.md, unit square case, repeated): a
+    # 10 x 10 square lattice of spacing s has 81 unit cells, each a loop
+    # (s/2, s/sqrt(2)); no spurious extra pairs from rounding of the
+    # cocircular quadruples.
+    g = np.stack(np.meshgrid(np.arange(10.0), np.arange(10.0)), -1).reshape(-1, 2)
+    d = alpha_diagram(g * factor + shift)
+    assert d.pairs[1].shape == (81, 2)
+    np.testing.assert_allclose(d.pairs[1], np.tile([0.5, math.sqrt(0.5)], (81, 1)) * factor,
+                               rtol=1e-9)
+    deaths = _h0_deaths(d)
+    np.testing.assert_allclose(deaths[:-1], 0.5 * factor, rtol=1e-9)
 
 
 def test_regular_tetrahedron():
