@@ -91,7 +91,7 @@ def _read_text(path: str, columns) -> np.ndarray:
         raise PointsError(f"cannot read {path}: {exc.strerror or exc}") from None
     if "\x00" in raw:
         raise PointsError(f"{path}: not a text file (contains NUL bytes)")
-    lines = [(i + 1, ln) for i, ln in enumerate(raw.splitlines())
+    lines = [(i + 1, ln) for i, ln in enumerate(raw.replace("\r\n", "\n").replace("\r", "\n").split("\n"))
              if ln.strip() and not ln.lstrip().startswith("#")]
     if not lines:
         raise PointsError(f"{path}: file is empty")

@@ -62,7 +62,10 @@ def validate_pattern(points, window, on_duplicates="error", rng=None):
     """
     if on_duplicates not in DUPLICATE_POLICIES:
         raise PointsError(f"--on-duplicates must be one of {', '.join(DUPLICATE_POLICIES)}, got '{on_duplicates}'")
-    p = np.asarray(points, dtype=float)
+    try:
+        p = np.asarray(points, dtype=float)
+    except (ValueError, TypeError):
+        raise PointsError("points must be a numeric (n, 2) or (n, 3) array") from None
     if p.ndim != 2 or p.shape[1] not in (2, 3):
         raise PointsError(f"points must have 2 or 3 coordinates per row, got shape {p.shape}")
     n, d = p.shape

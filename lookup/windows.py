@@ -35,7 +35,14 @@ class EstimatedWindowWarning(UserWarning):
     """The window was estimated from the data, which biases the test."""
 
 
-class Window:
+class _Checked(type):
+    """Metaclass that validates the size of every window after construction."""
+
+    def __call__(cls, *args, **kwargs):
+        return _check_size(super().__call__(*args, **kwargs))
+
+
+class Window(metaclass=_Checked):
     """Base class of observation windows.
 
     Attributes
@@ -215,7 +222,8 @@ class Disk(Window):
 
     def contains(self, points):
         d = np.linalg.norm(np.asarray(points, float) - self.centre, axis=1)
-        return d <= self.r * (1 + 1e-12)
+        # tolerance: relative rounding of r plus the float spacing at the centre
+        return d <= self.r * (1 + 1e-12) + 4 * np.spacing(np.abs(self.centre).max())
 
     def boundary_distance(self, points):
         return self.r - np.linalg.norm(np.asarray(points, float) - self.centre, axis=1)
@@ -254,7 +262,8 @@ class Ball(Window):
 
     def contains(self, points):
         d = np.linalg.norm(np.asarray(points, float) - self.centre, axis=1)
-        return d <= self.r * (1 + 1e-12)
+        # tolerance: relative rounding of r plus the float spacing at the centre
+        return d <= self.r * (1 + 1e-12) + 4 * np.spacing(np.abs(self.centre).max())
 
     def boundary_distance(self, points):
         return self.r - np.linalg.norm(np.asarray(points, float) - self.centre, axis=1)
@@ -500,14 +509,14 @@ def parse_window(spec: str, points: np.ndarray | None = None) -> Window:
             vals = [float(s) for s in parts]
         except ValueError:
             raise WindowError(f"window '{spec}': not all of {rest!r} are numbers") from None
-        return _check_size(cls(*vals))
+        return cls(*vals)
     if key == "polygon" and rest:
         import shapely.wkt
         try:
             geom = shapely.wkt.loads(rest)
         except Exception:
             raise WindowError(f"window '{spec[:60]}': cannot parse WKT") from None
-        return _check_size(PolygonWindow(geom))
+        return PolygonWindow(geom)
     if key in ("bbox", "hull") and not rest:
         if points is None or len(points) == 0:
             raise WindowError(f"window '{key}' is estimated from the points, but there are none")
@@ -532,7 +541,7 @@ def parse_window(spec: str, points: np.ndarray | None = None) -> Window:
         else:
             w = ConvexPolytope(p)
         w.estimated = True
-        return _check_size(w)
+        return w
     if os.path.splitext(spec)[1].lower() in (".geojson", ".json", ".wkt"):
-        return _check_size(_load_polygon_file(spec))
+        return _load_polygon_file(spec)
     raise WindowError(f"unknown window specification '{spec}'; expected {SPEC_HELP}")

@@ -449,15 +449,17 @@ def test_overflowing_window_file_rejected(tmp_path):
 
 
 # --------------------------------------------------------------------------
-# Known library bug (still open)
+# Regression tests for bugs found and fixed
 # --------------------------------------------------------------------------
 
-@pytest.mark.xfail(strict=False, reason=(
-    "BUG windows.Disk/Ball.contains: the tolerance r*1e-12 ignores the rounding of "
-    "|p - centre| (about ulp(|centre|)), so for a centre much farther from the origin "
-    "than r, points drawn by sample() near the rim are reported outside"))
 @pytest.mark.parametrize("spec", ["disk:-140737488355329,0,1", "ball:1e14,0,0,1"])
 def test_far_disk_samples_pass_contains(spec):
     w = parse_window(spec)
     p = w.sample(2000, np.random.default_rng(0))
     assert w.contains(p).all()
+
+
+@pytest.mark.parametrize("points", [[[0, 0], [1]], [["a", "b"]] * 5, "abc"])
+def test_unconvertible_points_raise_points_error(points):
+    with pytest.raises(PointsError):
+        validate_pattern(points, SQUARE)
