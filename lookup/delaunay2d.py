@@ -64,7 +64,8 @@ import math
 import numpy as np
 from numba import njit
 
-__all__ = ["delaunay_triangles", "delaunay_triangles_qhull", "orient2d", "incircle"]
+__all__ = [
+    "delaunay_mesh", "delaunay_triangles", "delaunay_triangles_qhull", "orient2d", "incircle"]
 
 # --------------------------------------------------------------------------------------
 # Floating-point expansion arithmetic (Shewchuk 1997, section 2).
@@ -480,10 +481,12 @@ def _brio_keys(pts, rank, bits, first_round):
 # --------------------------------------------------------------------------------------
 
 @njit(cache=True)
-def _triangulate(points, orig):
+def _build_mesh(points, orig):
     """Delaunay triangulation of points inserted in the order ``orig``.
 
-    Returns (triangles (m, 3) int64 of indices into points, status): status 0 on
+    Returns (T, ntri, rep, pts, status): the triangle records T (see below; ghost
+    triangles carry the vertex ``n``), their number, ``rep[i]`` the input index
+    kept for local vertex i, the points in insertion order, and status 0 on
     success, 1 if all points are collinear or fewer than 3 are distinct, 2 if the
     predicates were inconsistent (only possible outside their exact range, i.e.
     with floating-point underflow; guards keep the data structure in bounds)."""
@@ -493,7 +496,8 @@ def _triangulate(points, orig):
         pts[i, 0] = points[orig[i], 0]
         pts[i, 1] = points[orig[i], 1]
     inf = np.int64(n)
-    empty = np.empty((0, 3), dtype=np.int64)
+    empty = np.empty(0, dtype=np.int32)
+    norep = np.empty(0, dtype=np.int64)
 
     # ---- initial triangle: first point, first point different from it, first
     # point not collinear with those two (in insertion order); the points skipped
@@ -505,7 +509,7 @@ def _triangulate(points, orig):
             i1 = i
             break
     if i1 < 0:
-        return empty, 1
+        return empty, 0, norep, pts, 1
     i2 = -1
     for i in range(i1 + 1, n):
         if _orient2d(pts[i0, 0], pts[i0, 1], pts[i1, 0], pts[i1, 1],
@@ -513,7 +517,7 @@ def _triangulate(points, orig):
             i2 = i
             break
     if i2 < 0:
-        return empty, 1
+        return empty, 0, norep, pts, 1
     if _orient2d(pts[i0, 0], pts[i0, 1], pts[i1, 0], pts[i1, 1],
                  pts[i2, 0], pts[i2, 1]) < 0.0:
         i1, i2 = i2, i1
@@ -584,7 +588,7 @@ def _triangulate(points, orig):
         while True:
             steps += 1
             if steps > 4 * ntri + 64:            # cannot happen with exact predicates
-                return empty, 2
+                return empty, 0, norep, pts, 2
             b8 = 8 * t
             rng_state = (rng_state * 6364136223846793005 + 1442695040888963407) & 0x7FFFFFFFFFFFFFFF
             k0 = (rng_state >> 33) % 3
@@ -734,7 +738,7 @@ def _triangulate(points, orig):
         # ---- retriangulate the (star-shaped) cavity: one triangle (u, v, p) per
         # boundary edge u -> v, reusing the cavity's slots (nbd = ncav + 2).
         if nbd != ncav + 2:                      # cannot happen with exact predicates
-            return empty, 2
+            return empty, 0, norep, pts, 2
         base = ntri
         for k in range(nbd):
             nt = cav[k] if k < ncav else base + (k - ncav)
@@ -756,7 +760,13 @@ def _triangulate(points, orig):
             T[8 * s + 4 + 1] = nt                     # across edge (p, v) of s
         ntri = base + (nbd - ncav)
 
-    # ---- collect the real triangles
+    return T, ntri, rep, pts, 0
+
+
+@njit(cache=True)
+def _collect_triangles(T, ntri, rep, n):
+    """The real triangles of a mesh, as input indices (rows of rep)."""
+    inf = n
     m = 0
     for t in range(ntri):
         if T[8 * t] != inf and T[8 * t + 1] != inf and T[8 * t + 2] != inf:
@@ -772,7 +782,39 @@ def _triangulate(points, orig):
             out[m, 1] = rep[b]
             out[m, 2] = rep[c]
             m += 1
-    return out, 0
+    return out
+
+
+@njit(cache=True)
+def _collect_mesh(T, ntri, n):
+    """The real triangles in local (insertion-order) vertex indices, and their
+    neighbours: nb[t, k] is the triangle across the edge opposite vertex k, -1
+    on the convex hull."""
+    inf = n
+    cid = np.full(ntri, -1, dtype=np.int64)
+    m = 0
+    for t in range(ntri):
+        if T[8 * t] != inf and T[8 * t + 1] != inf and T[8 * t + 2] != inf:
+            cid[t] = m
+            m += 1
+    tri = np.empty((m, 3), dtype=np.int64)
+    nb = np.empty((m, 3), dtype=np.int64)
+    for t in range(ntri):
+        c = cid[t]
+        if c < 0:
+            continue
+        for k in range(3):
+            tri[c, k] = T[8 * t + k]
+            nb[c, k] = cid[T[8 * t + 4 + k]]
+    return tri, nb
+
+
+def _triangulate(points, orig):
+    """(triangles (m, 3) of input indices, status) -- see ``_build_mesh``."""
+    T, ntri, rep, _, status = _build_mesh(points, orig)
+    if status:
+        return np.empty((0, 3), dtype=np.int64), status
+    return _collect_triangles(T, ntri, rep, points.shape[0]), 0
 
 
 @njit(cache=True)
@@ -842,6 +884,47 @@ def delaunay_triangles(points: np.ndarray) -> np.ndarray:
             "inconsistent geometric predicates (coordinate differences so small that "
             "their products underflow?); try delaunay_triangles_qhull")
     return tris
+
+
+def delaunay_mesh(points: np.ndarray):
+    """Delaunay triangulation with adjacency, in the triangulator's own vertex order.
+
+    Returns ``(order, local_points, triangles, neighbours)``: local vertex i is
+    input row ``order[i]``, at ``local_points[i]`` (= ``points[order[i]]``; a
+    Hilbert-curve order, good for memory locality);
+    ``triangles`` (m, 3) CCW in local indices; ``neighbours[t, k]`` the triangle
+    across the edge opposite vertex k, or -1 on the convex hull.  Of duplicate
+    points one local vertex is used and the others appear in no triangle.
+    Raises ValueError if all points are collinear (or fewer than 3 distinct),
+    FloatingPointError if the predicates were inconsistent (see
+    ``delaunay_triangles``).
+    """
+    pts = _as_points(points)
+    n = pts.shape[0]
+    scaled = False
+    big = float(np.abs(pts).max())
+    if big > 0.0:
+        e = math.frexp(big)[1]
+        if e > 64 or e < -64:
+            pts = pts * math.ldexp(1.0, -e)
+            scaled = True
+    if n >= 2 ** 30:
+        raise ValueError("too many points (int32 triangle indices)")
+    rank = np.random.default_rng(_BRIO_SEED).permutation(n)
+    keys = _brio_keys(pts, rank, _HILBERT_BITS, _BRIO_FIRST_ROUND)
+    del rank
+    order = np.argsort(keys).astype(np.int64, copy=False)
+    del keys
+    T, ntri, _, local, status = _build_mesh(pts, order)
+    if status == 1:
+        raise ValueError("points are all collinear (or fewer than 3 distinct points)")
+    if status != 0:
+        raise FloatingPointError("inconsistent geometric predicates")
+    tri, nb = _collect_mesh(T, ntri, n)
+    del T
+    if scaled:
+        local = np.ascontiguousarray(np.asarray(points, dtype=np.float64)[order])
+    return order, local, tri, nb
 
 
 def delaunay_triangles_qhull(points) -> np.ndarray:
