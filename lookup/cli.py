@@ -81,6 +81,9 @@ def build_parser() -> argparse.ArgumentParser:
     t.add_argument("--plot", metavar="FILE",
                    help="write a figure (.png, .pdf or .svg): diagram, curves with null envelopes, "
                    "scalar z-scores")
+    t.add_argument("--engine", default="fast", choices=["fast", "gudhi"],
+                   help="persistence engine: our exact kernels (default) or gudhi's generic "
+                        "path, the reference; both give the same diagram")
     t.add_argument("--json", action="store_true", help="print one JSON object instead of a table")
     t.add_argument("--curves", action="store_true",
                    help="with --json, include the observed and null curves on their grids")
@@ -147,7 +150,7 @@ def _cmd_test(a) -> int:
         window = parse_window(a.window, pts)
     res = csr_test(pts, window, a.stat, method=a.method, n_sims=a.sims, seed=a.seed,
                    jobs=a.jobs, alternative=a.alternative, on_duplicates=a.on_duplicates,
-                   alpha=a.alpha, progress=a.progress)
+                   alpha=a.alpha, progress=a.progress, engine=a.engine)
     res.warnings[:0] = [str(w.message) for w in caught]
     if a.plot:
         plot_result(res, a.plot)

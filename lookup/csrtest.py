@@ -10,7 +10,8 @@ from . import montecarlo, nulls
 from .errors import OptionError
 from .readers import read_points
 from .results import CSRTestResult
-from .statistics import compute, resolve_stats
+from .diagram import ENGINES
+from .statistics import PatternSummary, evaluate, resolve_stats
 from .validate import validate_pattern
 from .windows import Window, parse_window
 
@@ -20,7 +21,9 @@ METHODS = ("mc",)
 ALTERNATIVES = ("two-sided", "clustered", "regular")
 
 
-def _check_options(method, n_sims, jobs, alternative, alpha):
+def _check_options(method, n_sims, jobs, alternative, alpha, engine="fast"):
+    if engine not in ENGINES:
+        raise OptionError(f"engine must be one of {', '.join(ENGINES)}, got '{engine}'")
     if method not in METHODS:
         raise OptionError(f"method must be one of {', '.join(METHODS)}, got '{method}'")
     if not isinstance(n_sims, (int, np.integer)) or n_sims < 1:
@@ -35,7 +38,7 @@ def _check_options(method, n_sims, jobs, alternative, alpha):
 
 def csr_test(points, window, stats=None, *, method="mc", n_sims=999, seed=None, jobs=1,
              alternative="two-sided", on_duplicates="error", alpha=0.05, columns=None,
-             progress=False) -> CSRTestResult:
+             progress=False, engine="fast") -> CSRTestResult:
     """Test a point pattern for complete spatial randomness.
 
     Parameters
@@ -67,6 +70,9 @@ def csr_test(points, window, stats=None, *, method="mc", n_sims=999, seed=None, 
         Coordinate columns when ``points`` is a file.
     progress : bool or None
         Progress bar on standard error (None: only on a terminal).
+    engine : {"fast", "gudhi"}
+        Persistence engine: our exact kernels (default) or gudhi's generic
+        path, the reference (see :func:`lookup.diagram.alpha_diagram`).
 
     Returns
     -------
@@ -80,7 +86,7 @@ def csr_test(points, window, stats=None, *, method="mc", n_sims=999, seed=None, 
         On any bad input (a ``ValueError`` subclass).
     """
     t0 = time.perf_counter()
-    _check_options(method, n_sims, jobs, alternative, alpha)
+    _check_options(method, n_sims, jobs, alternative, alpha, engine)
     if jobs == 0:
         import os
         jobs = os.cpu_count() or 1
@@ -100,16 +106,15 @@ def csr_test(points, window, stats=None, *, method="mc", n_sims=999, seed=None, 
     pts, report = validate_pattern(pts, window, on_duplicates, np.random.default_rng(jitter_seed))
     chosen = resolve_stats(stats, pts.shape[1])
     n = len(pts)
-    observed = compute(pts, window, chosen)
+    summary = PatternSummary(pts, window, engine)
+    observed = evaluate(summary, chosen)
     seeds = nulls.replicate_seeds(sim_seed, int(n_sims))
-    null = montecarlo.simulate_null(window, n, chosen, seeds, jobs=int(jobs), progress=progress)
+    null = montecarlo.simulate_null(window, n, chosen, seeds, jobs=int(jobs), progress=progress,
+                                    engine=engine)
     results = montecarlo.mc_results(observed, null, chosen, alternative=alternative, alpha=alpha)
     if report.n_duplicates:
         caught.append(f"{report.n_duplicates} duplicate point(s) were handled by '{on_duplicates}'")
-    diag = None
-    if any(s.needs_diagram for s in chosen):
-        from .diagram import alpha_diagram
-        diag = alpha_diagram(pts, window.measure)
+    diag = summary.diagram if any(s.needs_diagram for s in chosen) else None
     return CSRTestResult(results=results, n=n, dimension=pts.shape[1], window=window.describe(),
                          seed=int(seed), validation=report.as_dict(), diagram=diag,
-                         warnings=caught, elapsed_s=time.perf_counter() - t0)
+                         warnings=caught, elapsed_s=time.perf_counter() - t0, engine=engine)

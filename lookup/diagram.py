@@ -1,6 +1,6 @@
 """Persistence diagrams of the alpha (Čech) filtration of a point pattern.
 
-The alpha complex (computed by gudhi) has the homotopy type of the union of
+The alpha complex has the homotopy type of the union of
 balls of radius r around the points, i.e. of the Čech complex (nerve
 theorem; Edelsbrunner & Harer, *Computational Topology*, 2010).  gudhi's
 filtration values are squared radii; we report radii r = sqrt(value) and the
@@ -9,9 +9,21 @@ normalised radius
     rho = r * (n / |W|)^(1/d),
 
 under which the null law of the diagram depends only on d, n and the shape
-of the window.  Pairs of zero length are not stored (gudhi drops them; we
-also drop pairs of relative length below ``ZERO_LENGTH``, ties split by
-rounding); they contribute nothing to any summary computed here.
+of the window.  Pairs of zero length are not stored; they contribute
+nothing to any summary computed here.
+
+Two engines compute the same diagram:
+
+``fast`` (default)
+    Our exact kernels: ``lookup.alpha2d`` (all of H0 and H1 in 2D) and
+    ``lookup.alpha3d`` (H0, H2, Betti and Euler curves and total H1
+    persistence in 3D; the H1 pairs themselves, needed only by pair-level
+    summaries of loops in 3D, are computed by gudhi on first use).  Values are
+    exactly rounded, so ties in lattices stay ties.
+``gudhi``
+    gudhi's ``AlphaComplex`` (default precision) with its generic matrix
+    reduction: the reference.  Pairs of relative length below
+    ``ZERO_LENGTH`` are dropped (ties split by rounding).
 """
 from __future__ import annotations
 
@@ -19,7 +31,10 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-__all__ = ["Diagram", "alpha_diagram", "intensity_scale", "ZERO_LENGTH"]
+__all__ = ["Diagram", "alpha_diagram", "intensity_scale", "ZERO_LENGTH", "ENGINES"]
+
+#: Diagram engines accepted by :func:`alpha_diagram`.
+ENGINES = ("fast", "gudhi")
 
 #: Pairs with (death - birth) <= ZERO_LENGTH * death count as zero length.
 ZERO_LENGTH = 1e-9
@@ -67,8 +82,71 @@ class Diagram:
         """Highest homology dimension stored (d - 1)."""
         return len(self.pairs) - 1
 
+    def betti_counts(self, q: int, grid: np.ndarray) -> np.ndarray:
+        """#{pairs (b, d) of dimension q : b <= rho < d} at each rho of ``grid``."""
+        p = self.pairs[q] if q < len(self.pairs) else np.empty((0, 2))
+        b = np.sort(p[:, 0])
+        d = np.sort(p[:, 1])
+        return np.searchsorted(b, grid, side="right") - np.searchsorted(d, grid, side="right")
 
-def alpha_diagram(points: np.ndarray, measure: float | None = None) -> Diagram:
+    def total_lifetime(self, q: int) -> float:
+        """sum(d - b) over the finite pairs of dimension q."""
+        p = self.finite(q)
+        return float(np.sum(p[:, 1] - p[:, 0]))
+
+
+class FastDiagram3D(Diagram):
+    """3D diagram from ``lookup.alpha3d``: H0 and H2 pairs, the Betti-1 curve
+    from chi = b0 - b1 + b2 and the total H1 persistence from the filtration;
+    the H1 pairs are computed (by gudhi) only when asked for."""
+
+    def __init__(self, points: np.ndarray, alpha, scale: float):
+        self._points = points
+        self._alpha = alpha
+        self._h1 = None
+        self.n = len(points)
+        self.dim = 3
+        self.scale = scale
+        self.meta = {"engine": "fast"}
+
+    def _pairs_h1(self) -> np.ndarray:
+        if self._h1 is None:
+            ref = _gudhi_diagram(self._points, None)
+            self._h1 = ref.pairs[1] * self.scale
+        return self._h1
+
+    @property
+    def pairs(self) -> list:
+        return [self._alpha.h0 * self.scale, self._pairs_h1(), self._alpha.h2 * self.scale]
+
+    def finite(self, q: int) -> np.ndarray:
+        if q == 1:
+            p = self._pairs_h1()
+        elif q in (0, 2):
+            p = (self._alpha.h0 if q == 0 else self._alpha.h2) * self.scale
+        else:
+            return np.empty((0, 2))
+        return p[np.isfinite(p[:, 1])]
+
+    def betti_counts(self, q: int, grid: np.ndarray) -> np.ndarray:
+        a = self._alpha
+        r = np.asarray(grid, dtype=float) / self.scale
+        if q == 0:
+            return a.betti0(r)
+        if q == 1:
+            return a.betti1(r)
+        if q == 2:
+            return a.betti2(r)
+        return np.zeros(len(r), dtype=np.int64)
+
+    def total_lifetime(self, q: int) -> float:
+        if q == 1:
+            return float(self._alpha.total_h1 * self.scale)
+        return super().total_lifetime(q)
+
+
+def alpha_diagram(points: np.ndarray, measure: float | None = None,
+                  engine: str = "fast") -> Diagram:
     """Persistence diagram of the alpha filtration of ``points``.
 
     Parameters
@@ -77,15 +155,42 @@ def alpha_diagram(points: np.ndarray, measure: float | None = None) -> Diagram:
     measure : float, optional
         Area/volume of the window, for normalisation.  Without it radii are
         left unnormalised (``scale = 1``).
+    engine : {"fast", "gudhi"}
+        See the module docstring; both give the same pairs (to rounding).
 
     Returns
     -------
     Diagram
         H0..H(d-1), radius units scaled to normalised radius.
     """
+    if engine not in ENGINES:
+        raise ValueError(f"engine must be one of {ENGINES}")
+    p = np.ascontiguousarray(points, dtype=float)
+    if engine == "gudhi":
+        return _gudhi_diagram(p, measure)
+    n, d = p.shape
+    scale = intensity_scale(n, measure, d) if measure else 1.0
+    if d == 2:
+        from .alpha2d import alpha_pairs_2d
+
+        h0, h1 = alpha_pairs_2d(p, sort=False)
+        return Diagram(pairs=[h0 * scale, h1 * scale], n=n, dim=2, scale=scale,
+                       meta={"engine": "fast"})
+    if d == 3:
+        from .alpha3d import betti_euler_3d
+
+        try:
+            alpha = betti_euler_3d(p)
+        except ValueError:                 # e.g. all points coplanar: the reference copes
+            return _gudhi_diagram(p, measure)
+        return FastDiagram3D(p, alpha, scale)
+    raise ValueError("points must be 2D or 3D")
+
+
+def _gudhi_diagram(p: np.ndarray, measure: float | None) -> Diagram:
+    """The reference engine: gudhi's AlphaComplex and matrix reduction."""
     import gudhi
 
-    p = np.ascontiguousarray(points, dtype=float)
     n, d = p.shape
     # Centre the coordinates: the filtration is translation invariant, and
     # centring keeps gudhi's arithmetic well conditioned for offset data.
@@ -100,4 +205,4 @@ def alpha_diagram(points: np.ndarray, measure: float | None = None) -> Diagram:
         # pairs shorter than that are ties split by rounding, not features.
         keep = np.isinf(iv[:, 1]) | ((iv[:, 1] - iv[:, 0]) > ZERO_LENGTH * iv[:, 1])
         pairs.append(iv[keep])
-    return Diagram(pairs=pairs, n=n, dim=d, scale=scale)
+    return Diagram(pairs=pairs, n=n, dim=d, scale=scale, meta={"engine": "gudhi"})

@@ -16,13 +16,14 @@ from .statistics import Statistic, compute
 __all__ = ["simulate_null", "mc_results"]
 
 
-def _chunk(window, n, stats, seeds):
-    out = [compute(nulls.csr(window, n, np.random.default_rng(s)), window, stats) for s in seeds]
+def _chunk(window, n, stats, seeds, engine="fast"):
+    out = [compute(nulls.csr(window, n, np.random.default_rng(s)), window, stats, engine)
+           for s in seeds]
     return {s.name: np.stack([o[s.name] for o in out]) for s in stats}
 
 
 def simulate_null(window, n: int, stats: list[Statistic], seeds, jobs: int = 1,
-                  progress: bool | None = False) -> dict:
+                  progress: bool | None = False, engine: str = "fast") -> dict:
     """Statistics of ``len(seeds)`` CSR patterns of ``n`` points in ``window``.
 
     Parameters
@@ -33,6 +34,8 @@ def simulate_null(window, n: int, stats: list[Statistic], seeds, jobs: int = 1,
         Worker processes (1 = in this process).
     progress : bool or None
         Show a progress bar on standard error (None: only on a terminal).
+    engine : {"fast", "gudhi"}
+        Diagram engine (see :func:`lookup.diagram.alpha_diagram`).
 
     Returns
     -------
@@ -48,13 +51,13 @@ def simulate_null(window, n: int, stats: list[Statistic], seeds, jobs: int = 1,
     try:
         if jobs <= 1:
             for c in chunks:
-                parts.append(_chunk(window, n, stats, c))
+                parts.append(_chunk(window, n, stats, c, engine))
                 bar.update(len(c))
         else:
             from joblib import Parallel, delayed
 
             gen = Parallel(n_jobs=jobs, return_as="generator")(
-                delayed(_chunk)(window, n, stats, c) for c in chunks)
+                delayed(_chunk)(window, n, stats, c, engine) for c in chunks)
             for c, part in zip(chunks, gen):
                 parts.append(part)
                 bar.update(len(c))

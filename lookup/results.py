@@ -97,6 +97,9 @@ class CSRTestResult:
     validation : dict
     diagram : Diagram or None
     warnings : list of str
+    elapsed_s : float
+    engine : str
+        Persistence engine used ("fast" or "gudhi").
     """
 
     results: list
@@ -108,6 +111,7 @@ class CSRTestResult:
     diagram: object = None
     warnings: list = field(default_factory=list)
     elapsed_s: float = 0.0
+    engine: str = "fast"
 
     @property
     def primary(self) -> StatResult:
@@ -131,6 +135,6 @@ class CSRTestResult:
         return _clean({
             "n": self.n, "dimension": self.dimension, "window": self.window,
             "seed": self.seed, "validation": self.validation, "warnings": list(self.warnings),
-            "elapsed_s": round(self.elapsed_s, 4),
+            "elapsed_s": round(self.elapsed_s, 4), "engine": self.engine,
             "results": [r.as_dict(curves) for r in self.results],
         })

@@ -19,7 +19,7 @@ from .diagram import Diagram, alpha_diagram, intensity_scale
 from .errors import OptionError
 
 __all__ = ["Statistic", "STATISTICS", "resolve_stats", "PatternSummary", "compute",
-           "default_stats"]
+           "default_stats", "evaluate"]
 
 
 @dataclass(frozen=True)
@@ -53,6 +53,13 @@ class Statistic:
     @property
     def is_curve(self) -> bool:
         return self.kind == "curve"
+
+    @property
+    def needs_h1_pairs(self) -> bool:
+        """Needs the H1 pairs themselves, not only Betti counts or total
+        persistence (matters in 3D, where the fast engine gets H1 pairs from
+        gudhi)."""
+        return self.name in ("pbetti1", "apf1", "maxpers1", "maxratio1", "silhouette1")
 
 
 def _mk():
@@ -137,9 +144,11 @@ def resolve_stats(names, dim: int) -> list[Statistic]:
 class PatternSummary:
     """Lazily computed ingredients shared by the statistics of one pattern."""
 
-    def __init__(self, points: np.ndarray, window):
+    def __init__(self, points: np.ndarray, window, engine: str = "fast"):
         self.points = np.asarray(points, float)
         self.window = window
+        self.engine = engine
+        self.want_h1_pairs = False
         self.n, self.dim = self.points.shape
         self.scale = intensity_scale(self.n, window.measure, self.dim)
         self._cache = {}
@@ -151,7 +160,13 @@ class PatternSummary:
 
     @property
     def diagram(self) -> Diagram:
-        return self._get("diagram", lambda: alpha_diagram(self.points, self.window.measure))
+        engine = self.engine
+        if self.dim == 3 and self.want_h1_pairs:
+            # the fast 3D engine would compute H1 pairs with gudhi on top of its
+            # own work: let gudhi do all of it once
+            engine = "gudhi"
+        return self._get("diagram", lambda: alpha_diagram(self.points, self.window.measure,
+                                                         engine))
 
     @property
     def tree(self) -> cKDTree:
@@ -166,7 +181,14 @@ class PatternSummary:
         return self._get("bdist", lambda: self.window.boundary_distance(self.points))
 
 
-def compute(points, window, stats: list[Statistic]) -> dict:
-    """Values of ``stats`` for one pattern: name -> float or ndarray."""
-    ps = PatternSummary(points, window)
+def compute(points, window, stats: list[Statistic], engine: str = "fast") -> dict:
+    """Values of ``stats`` for one pattern: name -> float or ndarray.
+
+    ``engine`` selects the diagram engine (see :func:`lookup.diagram.alpha_diagram`)."""
+    return evaluate(PatternSummary(points, window, engine), stats)
+
+
+def evaluate(ps: PatternSummary, stats: list[Statistic]) -> dict:
+    """Values of ``stats`` from a (possibly already used) :class:`PatternSummary`."""
+    ps.want_h1_pairs = ps.want_h1_pairs or any(s.needs_h1_pairs for s in stats)
     return {s.name: np.asarray(s.func(ps), dtype=float) for s in stats}

@@ -36,11 +36,7 @@ __all__ = [
 
 def betti_curve(diag: Diagram, q: int, grid: np.ndarray = grids.RHO) -> np.ndarray:
     """beta_q(rho)/n on ``grid`` (infinite classes included)."""
-    p = diag.pairs[q] if q < len(diag.pairs) else np.empty((0, 2))
-    b = np.sort(p[:, 0])
-    d = np.sort(p[:, 1])
-    alive = np.searchsorted(b, grid, side="right") - np.searchsorted(d, grid, side="right")
-    return alive / diag.n
+    return diag.betti_counts(q, grid) / diag.n
 
 
 def euler_curve(diag: Diagram, grid: np.ndarray = grids.RHO) -> np.ndarray:
@@ -72,6 +68,8 @@ def apf(diag: Diagram, q: int, grid: np.ndarray = grids.APF_AGE) -> np.ndarray:
 
 def total_persistence(diag: Diagram, q: int, alpha: float = 1.0) -> float:
     """(1/n) sum over finite pairs of (d - b)^alpha."""
+    if alpha == 1.0:
+        return diag.total_lifetime(q) / diag.n
     p = diag.finite(q)
     return float(np.sum((p[:, 1] - p[:, 0]) ** alpha) / diag.n)
 
