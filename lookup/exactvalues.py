@@ -40,34 +40,34 @@ _CAP = 2048               # capacity (doubles) of one register
 # ======================================================================================
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def _two_sum(a, b):
     s = a + b
     bb = s - a
     return s, (a - (s - bb)) + (b - bb)
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def _fast_two_sum(a, b):
     s = a + b
     return s, b - (s - a)
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def _two_diff(a, b):
     s = a - b
     bb = a - s
     return s, (a - (s + bb)) + (bb - b)
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def _split(a):
     c = _SPLITTER * a
     hi = c - (c - a)
     return hi, a - hi
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def _two_prod(a, b):
     p = a * b
     ah, al = _split(a)
@@ -76,7 +76,7 @@ def _two_prod(a, b):
     return p, err
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def _dd_add(ah, al, bh, bl):
     s, e = _two_sum(ah, bh)
     t, f = _two_sum(al, bl)
@@ -86,19 +86,19 @@ def _dd_add(ah, al, bh, bl):
     return _fast_two_sum(s, e)
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def _dd_sub(ah, al, bh, bl):
     return _dd_add(ah, al, -bh, -bl)
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def _dd_mul(ah, al, bh, bl):
     p, e = _two_prod(ah, bh)
     e += ah * bl + al * bh
     return _fast_two_sum(p, e)
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def _dd_div(ah, al, bh, bl):
     q1 = ah / bh
     ph, pl = _dd_mul(bh, bl, q1, 0.0)
@@ -111,7 +111,7 @@ def _dd_div(ah, al, bh, bl):
     return _dd_add(q1, q2, q3, 0.0)
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def _round_dd(vh, vl, err):
     """gudhi's rounding of the real number vh+vl (+-err): (value, certified)."""
     a = abs(vl)
@@ -561,12 +561,12 @@ _PG_INCIRCLE = _prog_incircle()
 # ======================================================================================
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def _dd_d(P, j, i, c):
     return _two_diff(P[j, c], P[i, c])
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def _edge2_dd(ux, uy, vx, vy):
     """(|v - u|^2 / 4 rounded as gudhi rounds it, certified?) in double-double."""
     dh, dl = _two_diff(vx, ux)
@@ -579,7 +579,7 @@ def _edge2_dd(ux, uy, vx, vy):
     return _round_dd(vh, vl, vh * _REL)
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def _obtuse2_filter(ux, uy, vx, vy, wx, wy):
     """Sign filter of (u - w).(v - w): 1 if < 0 (w inside the diametral circle
     of uv), 0 if > 0, -1 if the double evaluation cannot tell."""
@@ -594,7 +594,7 @@ def _obtuse2_filter(ux, uy, vx, vy, wx, wy):
     return -1
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def _tri2_dd(px, py, qx, qy, rx, ry):
     """Squared circumradius of triangle pqr in double-double with an a-priori
     bound: (gudhi-rounded value, certified?)."""
@@ -655,7 +655,7 @@ def _tri2_exact(P, i, j, k, R, L):
     return _xval(_PG_TRI2, P, R, L)
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def _edge_value(P, u, v, R, L):
     """gudhi's exact value |P[v] - P[u]|^2 / 4 of an edge (2D or 3D)."""
     if P.shape[1] == 2:
@@ -677,7 +677,7 @@ def _edge_value(P, u, v, R, L):
     return _edge_exact(P, u, v, R, L)
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def _obtuse(P, u, v, w, R, L):
     """True iff (P[u]-P[w]).(P[v]-P[w]) < 0: P[w] strictly inside the diametral
     sphere of edge uv."""
@@ -695,7 +695,7 @@ def _obtuse(P, u, v, w, R, L):
     return _obtuse_exact(P, u, v, w, R, L)
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def _tri2_value(P, i, j, k, R, L):
     """gudhi's exact squared circumradius of the 2D triangle ijk."""
     val, ok = _tri2_dd(P[i, 0], P[i, 1], P[j, 0], P[j, 1], P[k, 0], P[k, 1])
@@ -704,7 +704,7 @@ def _tri2_value(P, i, j, k, R, L):
     return _tri2_exact(P, i, j, k, R, L)
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def _dd_cross(a1h, a1l, b2h, b2l, a2h, a2l, b1h, b1l):
     p1h, p1l = _dd_mul(a1h, a1l, b2h, b2l)
     p2h, p2l = _dd_mul(a2h, a2l, b1h, b1l)
@@ -712,7 +712,7 @@ def _dd_cross(a1h, a1l, b2h, b2l, a2h, a2l, b1h, b1l):
     return rh, rl, abs(p1h) + abs(p2h)
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def _dd_sqn3(xh, xl, yh, yl, zh, zl):
     t1h, t1l = _dd_mul(xh, xl, xh, xl)
     t2h, t2l = _dd_mul(yh, yl, yh, yl)
@@ -721,7 +721,7 @@ def _dd_sqn3(xh, xl, yh, yl, zh, zl):
     return _dd_add(sh, sl, t3h, t3l)
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def _tri3_value(P, i, j, k, R, L):
     axh, axl = _dd_d(P, j, i, 0)
     ayh, ayl = _dd_d(P, j, i, 1)
@@ -754,7 +754,7 @@ def _tri3_value(P, i, j, k, R, L):
     return _xval(_PG_TRI3, P, R, L)
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def _tri_attach(P, i, j, k, w, R, L):
     """True iff P[w] lies strictly inside the smallest circumsphere of triangle ijk."""
     axh, axl = _dd_d(P, j, i, 0)
@@ -815,7 +815,7 @@ def _tri_attach(P, i, j, k, w, R, L):
     return _xsign(_PG_TRI_ATTACH, P, R, L) < 0
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def _tet_dd(P, i, j, k, l):
     """double-double n (circumcentre numerator), det and their error bounds."""
     axh, axl = _dd_d(P, j, i, 0)
@@ -872,7 +872,7 @@ def _tet_dd(P, i, j, k, l):
             4.0 * _U2 * nxp, 4.0 * _U2 * nyp, 4.0 * _U2 * nzp, 4.0 * _U2 * detp)
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def _tet_value(P, i, j, k, l, R, L):
     (nxh, nxl, nyh, nyl, nzh, nzl, deth, detl,
      ex, ey, ez, ed) = _tet_dd(P, i, j, k, l)
@@ -894,7 +894,7 @@ def _tet_value(P, i, j, k, l, R, L):
     return _xval(_PG_TET, P, R, L)
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def _insphere(P, i, j, k, l, w, R, L):
     """+1 strictly inside the circumsphere of tet ijkl, 0 on, -1 outside, 2 flat."""
     (nxh, nxl, nyh, nyl, nzh, nzl, deth, detl,
@@ -925,7 +925,7 @@ def _insphere(P, i, j, k, l, w, R, L):
     return -_xsign(_PG_INSPHERE, P, R, L)
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def _orient2d(P, a, b, c, R, L):
     acx = P[a, 0] - P[c, 0]
     bcx = P[b, 0] - P[c, 0]
@@ -945,7 +945,7 @@ def _orient2d(P, a, b, c, R, L):
     return _xsign(_PG_ORIENT2D, P, R, L)
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def _incircle(P, a, b, c, d, R, L):
     adx = P[a, 0] - P[d, 0]
     ady = P[a, 1] - P[d, 1]
