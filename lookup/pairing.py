@@ -154,7 +154,7 @@ def _dual_pairs(node_val, ea, eb, val, order, pre_a, pre_b, skip):
 
 @njit(cache=True)
 def radix_argsort(val):
-    """Stable argsort of non-negative doubles (+inf allowed, no NaN).
+    """Stable argsort of non-negative doubles (-0.0 and +inf allowed, no NaN).
 
     For x >= 0 the IEEE-754 bit pattern, read as an unsigned integer, is
     monotone in x, so an LSD radix sort of the bit patterns (11-bit digits; the
@@ -163,6 +163,9 @@ def radix_argsort(val):
     """
     n = val.shape[0]
     ka = val.view(np.uint64).copy()
+    for i in range(n):                         # -0.0 ties with +0.0
+        if ka[i] == np.uint64(0x8000000000000000):
+            ka[i] = np.uint64(0)
     kb = np.empty(n, dtype=np.uint64)
     a = np.arange(n).astype(np.int64)
     b = np.empty(n, dtype=np.int64)
