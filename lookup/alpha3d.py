@@ -31,9 +31,9 @@ from numba import njit
 
 from .alpha2d import _gudhi_top_simplices, _prepare, _remap, sort_rows
 from .exactvalues import (_edge_value, _insphere, _new_regs, _obtuse, _tet_value,
-                          _tri3_value, _tri_attach)
+                          _tri3_value, _tri_attach, _tri_attach_filter)
 from .meshrepair import _facet_adjacency
-from .pairing import _dual_pairs, _kruskal, radix_argsort
+from .pairing import _dual_pairs, _kruskal, radix_argsort, radix_argsort_keys
 
 __all__ = ["Alpha3D", "Filtration3D", "alpha_filtration_3d", "betti_euler_3d",
            "total_h1_3d", "scipy_tetrahedra_3d"]
@@ -45,6 +45,31 @@ def scipy_tetrahedra_3d(points: np.ndarray) -> np.ndarray:
 
     P = np.asarray(points, dtype=np.float64)
     return Delaunay(P - P.mean(axis=0)).simplices.astype(np.int64)
+
+
+def _exact_mesh_3d(Ps):
+    """(local points, tets, neighbours) from ``lookup.delaunay3d``, or None."""
+    try:
+        from .delaunay3d import delaunay_mesh_3d
+    except ImportError:
+        return None
+    try:
+        _, P, T, nb = delaunay_mesh_3d(Ps)
+    except (ValueError, FloatingPointError):
+        return None
+    return np.ascontiguousarray(P), np.ascontiguousarray(T), np.ascontiguousarray(nb)
+
+
+@njit(cache=True)
+def _tet_values(P, tets):
+    """Exact values of the tetrahedra, plus the outer cell (+inf) last."""
+    R, L = _new_regs()
+    m = tets.shape[0]
+    tv = np.empty(m + 1)
+    for t in range(m):
+        tv[t] = _tet_value(P, tets[t, 0], tets[t, 1], tets[t, 2], tets[t, 3], R, L)
+    tv[m] = np.inf
+    return tv
 
 
 @njit(cache=True)
@@ -100,7 +125,8 @@ def _triangles_3d(P, tets, nb, tv, nt):
             b = tri[f, 1]
             c2 = tri[f, 2]
             ta[f] = t
-            attached = _tri_attach(P, a, b, c2, tets[t, k], R, L)
+            f0 = _tri_attach_filter(P, a, b, c2, tets[t, k])
+            attached = f0 == 1 if f0 >= 0 else _tri_attach(P, a, b, c2, tets[t, k], R, L)
             vmin = tv[t]
             if u >= 0:
                 tb[f] = u
@@ -108,7 +134,8 @@ def _triangles_3d(P, tets, nb, tv, nt):
                 while nb[u, j] != t:
                     j += 1
                 if not attached:
-                    attached = _tri_attach(P, a, b, c2, tets[u, j], R, L)
+                    f0 = _tri_attach_filter(P, a, b, c2, tets[u, j])
+                    attached = f0 == 1 if f0 >= 0 else _tri_attach(P, a, b, c2, tets[u, j], R, L)
                 if tv[u] < vmin:
                     vmin = tv[u]
             else:
@@ -249,14 +276,22 @@ def alpha_filtration_3d(points, tets=None, triangulate=None) -> Filtration3D:
     if n < 4:
         raise ValueError("need at least 4 distinct points in 3D")
     T = None
-    if tets is None:
+    ok = False
+    if tets is None and triangulate is None:
+        mesh = _exact_mesh_3d(Ps)
+        if mesh is not None:                  # exact Delaunay: no checks needed
+            Ps, T, nb = mesh
+            tv = _tet_values(Ps, T)
+            nt = (4 * len(T) + int(np.count_nonzero(nb < 0))) // 2
+            ok = True
+    elif tets is not None:
+        T = tets
+    if not ok and T is None:
         try:
             T = (triangulate or scipy_tetrahedra_3d)(Ps)
         except Exception:
             T = None
-    else:
-        T = tets
-    for attempt in range(2):
+    for attempt in range(0 if ok else 2):
         ok = T is not None and len(T) > 0
         if ok:
             T = np.ascontiguousarray(np.asarray(T, dtype=np.int64).reshape(-1, 4))
@@ -278,7 +313,7 @@ def alpha_filtration_3d(points, tets=None, triangulate=None) -> Filtration3D:
     lo = np.minimum(a, b).ravel()
     hi = np.maximum(a, b).ravel()
     hkey = lo * n + hi
-    order = np.argsort(hkey, kind="stable").astype(np.int64)
+    order = radix_argsort_keys(hkey)
     eu, ev, ev_val = _edges_3d(Ps, tri, tval, hkey, order)
     _raise_tets(tv, ta, tb, tval)
     return Filtration3D(Ps / s, T, tv[:-1] * inv, tri, tval * inv, np.stack([ta, tb], axis=1),

@@ -755,6 +755,52 @@ def _tri3_value(P, i, j, k, R, L):
 
 
 @njit(cache=True)
+def _tri_attach_filter(P, i, j, k, w):
+    """Plain-double filter of :func:`_tri_attach`: 1 inside, 0 not, -1 cannot tell.
+
+    Same polynomial q = |d|^2 |a x b|^2 - d . ((|a|^2 b - |b|^2 a) x (a x b))
+    (a, b, d = P[j], P[k], P[w] minus P[i]; q < 0 iff P[w] is strictly inside
+    the smallest circumsphere of ijk) with the static bound 2^-40 times its
+    permanent, far above the ~20 eps of its evaluation (Shewchuk 1997, sec. 4)."""
+    ax = P[j, 0] - P[i, 0]
+    ay = P[j, 1] - P[i, 1]
+    az = P[j, 2] - P[i, 2]
+    bx = P[k, 0] - P[i, 0]
+    by = P[k, 1] - P[i, 1]
+    bz = P[k, 2] - P[i, 2]
+    dx = P[w, 0] - P[i, 0]
+    dy = P[w, 1] - P[i, 1]
+    dz = P[w, 2] - P[i, 2]
+    x = ay * bz - az * by
+    y = az * bx - ax * bz
+    z = ax * by - ay * bx
+    xp = abs(ay * bz) + abs(az * by)
+    yp = abs(az * bx) + abs(ax * bz)
+    zp = abs(ax * by) + abs(ay * bx)
+    la = ax * ax + ay * ay + az * az
+    lb = bx * bx + by * by + bz * bz
+    ld = dx * dx + dy * dy + dz * dz
+    ux = la * bx - lb * ax
+    uy = la * by - lb * ay
+    uz = la * bz - lb * az
+    uxp = abs(la * bx) + abs(lb * ax)
+    uyp = abs(la * by) + abs(lb * ay)
+    uzp = abs(la * bz) + abs(lb * az)
+    gx = uy * z - uz * y
+    gy = uz * x - ux * z
+    gz = ux * y - uy * x
+    q = ld * (x * x + y * y + z * z) - (dx * gx + dy * gy + dz * gz)
+    perm = (ld * (xp * xp + yp * yp + zp * zp) + abs(dx) * (uyp * zp + uzp * yp)
+            + abs(dy) * (uzp * xp + uxp * zp) + abs(dz) * (uxp * yp + uyp * xp))
+    b = 2.0 ** -40 * perm
+    if q > b:
+        return 0
+    if q < -b:
+        return 1
+    return -1
+
+
+@njit(cache=True)
 def _tri_attach(P, i, j, k, w, R, L):
     """True iff P[w] lies strictly inside the smallest circumsphere of triangle ijk."""
     axh, axl = _dd_d(P, j, i, 0)

@@ -152,20 +152,32 @@ def _dual_pairs(node_val, ea, eb, val, order, pre_a, pre_b, skip):
     return births[:k], deaths[:k], is_tree
 
 
-@njit(cache=True)
 def radix_argsort(val):
-    """Stable argsort of non-negative doubles (-0.0 and +inf allowed, no NaN).
+    """Stable argsort of non-negative doubles (-0.0 and +inf allowed, no NaN);
+    see :func:`_radix_argsort_bits`."""
+    return _radix_argsort_bits(np.ascontiguousarray(val, dtype=np.float64).view(np.uint64), True)
 
-    For x >= 0 the IEEE-754 bit pattern, read as an unsigned integer, is
+
+def radix_argsort_keys(keys):
+    """Stable argsort of non-negative int64 (or uint64) keys."""
+    return _radix_argsort_bits(np.ascontiguousarray(keys).view(np.uint64), False)
+
+
+@njit(cache=True)
+def _radix_argsort_bits(bits, is_float):
+    """Stable LSD radix argsort of 64-bit unsigned keys.
+
+    For doubles x >= 0 the IEEE-754 bit pattern, read as an unsigned integer, is
     monotone in x, so an LSD radix sort of the bit patterns (11-bit digits; the
     keys travel with the indices so every pass reads sequentially; passes whose
     digit is constant are skipped) sorts the values, ties in index order.
     """
-    n = val.shape[0]
-    ka = val.view(np.uint64).copy()
-    for i in range(n):                         # -0.0 ties with +0.0
-        if ka[i] == np.uint64(0x8000000000000000):
-            ka[i] = np.uint64(0)
+    n = bits.shape[0]
+    ka = bits.copy()
+    if is_float:
+        for i in range(n):                     # -0.0 ties with +0.0
+            if ka[i] == np.uint64(0x8000000000000000):
+                ka[i] = np.uint64(0)
     kb = np.empty(n, dtype=np.uint64)
     a = np.arange(n).astype(np.int64)
     b = np.empty(n, dtype=np.int64)
