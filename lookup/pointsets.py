@@ -13,7 +13,7 @@ import math
 import numpy as np
 from numba import njit
 
-__all__ = ["check_points", "power_of_two_scale", "distinct_morton"]
+__all__ = ["check_points", "power_of_two_scale", "distinct_morton", "duplicate_groups"]
 
 
 def check_points(points, dim: int) -> np.ndarray:
@@ -110,3 +110,16 @@ def distinct_morton(P: np.ndarray):
     inv = np.empty(n, dtype=np.int64)
     inv[order] = np.cumsum(keep) - 1
     return np.ascontiguousarray(P[order[keep]]), inv
+
+
+def duplicate_groups(P: np.ndarray):
+    """First input index and multiplicity of each distinct row of P (finite,
+    float64, 2 or 3 columns); -0.0 and 0.0 are the same coordinate.
+
+    One integer sort of Morton keys, several times faster than
+    ``np.unique(axis=0)``, which sorts rows as structured records."""
+    P = np.ascontiguousarray(P, dtype=np.float64)
+    U, inv = distinct_morton(P)
+    first = np.full(len(U), len(P), dtype=np.int64)
+    np.minimum.at(first, inv, np.arange(len(P)))
+    return first, np.bincount(inv, minlength=len(U))

@@ -159,15 +159,19 @@ def bench_equality(n2, n3, rows):
 # fresh processes: memory, compile time, end to end
 # --------------------------------------------------------------------------------------
 
+# Peak memory is read from /proc/self/status (VmHWM, the high-water mark of
+# this process's own address space): ru_maxrss would include the RSS of the
+# parent at fork time, which Linux carries across execve.
 _CHILD = r"""
-import resource, sys, time, numpy as np
+import sys, time, numpy as np
 sys.path.insert(0, {here!r})
 from bench import ours, gudhi_path
 pts = np.load({path!r})
 t = time.perf_counter()
 {call}(pts)
 el = time.perf_counter() - t
-print(el, resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024)
+hwm = [l for l in open("/proc/self/status") if l.startswith("VmHWM")][0].split()[1]
+print(el, int(hwm) / 1024)
 """
 
 
@@ -179,7 +183,8 @@ def _fresh(code, env=None):
 
 def _peak_of_command(cmd):
     """Wall time and peak RSS (MiB) of a command run as the only child of a
-    fresh Python process."""
+    small fresh Python process (RUSAGE_CHILDREN then holds the command's own
+    peak: the small launcher's RSS is all it inherits)."""
     code = ("import resource, subprocess, sys, time; t = time.perf_counter(); "
             f"subprocess.run({cmd!r}, check=True, stdout=subprocess.DEVNULL); "
             "print(time.perf_counter() - t, "
