@@ -321,8 +321,14 @@ def test_npy_bad_arrays(tmp_path, arr, frag):
 
 
 def test_npy_object_dtype(tmp_path):
-    path = str(tmp_path / "obj.npy")
-    np.save(path, np.array([[1, "a"], [2, None]], dtype=object), allow_pickle=True)
+    """An object-dtype .npy (whose payload would be a pickle) is refused before
+    anything is unpickled.  The file is written by hand (npy format 1.0: magic,
+    header dict, payload) with a payload that is not even a pickle, so that
+    nothing here needs pickle either."""
+    header = b"{'descr': '|O', 'fortran_order': False, 'shape': (2, 2), }"
+    header += b" " * (63 - (10 + len(header)) % 64) + b"\n"
+    blob = b"\x93NUMPY\x01\x00" + len(header).to_bytes(2, "little") + header + b"no pickle here"
+    path = _w(tmp_path, "obj.npy", blob, mode="wb")
     _bad(lambda: read_points(path), "obj.npy", "not a readable .npy")
 
 
