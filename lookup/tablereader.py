@@ -1,0 +1,135 @@
+"""Reading null tables (HDF5): schema check, metadata and coverage.
+
+Layout, schema version 1 (written by ``calibrate.tablewriter``):
+
+    /                    attrs: schema = "nullatlas-null-table", schema_version,
+                                created (ISO 8601 UTC), software (JSON: versions),
+                                dimension, root_seed
+    /grids/<name>        the summary grids (datasets)
+    /cells/<cell>        one cell (d, shape, n); attrs: dimension, shape, n,
+                         replicates, kappa, geometry (JSON, normalised to unit
+                         area/volume)
+    /cells/<cell>/<stat>/{count, mean, m2, m3}
+                         streaming moments of the statistic (``calibrate.moments``)
+
+Only plain numeric datasets and string attributes are read: opening a table
+never executes anything.  Anything else -- not HDF5, truncated, another
+schema or version, the wrong dimension -- is a :class:`TableError` with one
+line saying what is wrong.
+"""
+from __future__ import annotations
+
+import json
+import os
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .errors import TableError
+
+__all__ = ["SCHEMA", "SCHEMA_VERSION", "TableInfo", "CellInfo", "open_table"]
+
+SCHEMA = "nullatlas-null-table"
+SCHEMA_VERSION = 1
+
+
+@dataclass(frozen=True)
+class CellInfo:
+    """One calibrated cell: dimension, window shape, n, replicates, statistics."""
+
+    name: str
+    dimension: int
+    shape: str
+    n: int
+    replicates: int
+    kappa: float
+    stats: tuple
+
+
+@dataclass
+class TableInfo:
+    """Metadata and coverage of a null table."""
+
+    path: str
+    schema_version: int
+    created: str
+    dimension: int
+    root_seed: int
+    software: dict
+    grids: dict
+    cells: list = field(default_factory=list)
+
+    def coverage(self) -> list[dict]:
+        """One dict per cell (for listings and ``--json``)."""
+        return [{"cell": c.name, "dimension": c.dimension, "shape": c.shape, "n": c.n,
+                 "replicates": c.replicates, "kappa": c.kappa, "statistics": list(c.stats)}
+                for c in self.cells]
+
+
+def _attr(obj, name, where):
+    if name not in obj.attrs:
+        raise TableError(f"{where} lacks the attribute '{name}'")
+    v = obj.attrs[name]
+    return v.decode() if isinstance(v, bytes) else v
+
+
+def open_table(path, dimension: int | None = None) -> TableInfo:
+    """Open and check a null table; read its metadata and coverage.
+
+    Parameters
+    ----------
+    path : str
+    dimension : int, optional
+        Refuse the table unless it is for this dimension.
+
+    Raises
+    ------
+    TableError
+        Missing or unreadable file, not HDF5, truncated, unknown schema or
+        version, inconsistent contents, or another dimension.
+    """
+    import h5py
+
+    path = os.fspath(path)
+    if not os.path.exists(path):
+        raise TableError(f"{path}: no such table file")
+    try:
+        fh = h5py.File(path, "r")
+    except OSError as exc:
+        raise TableError(f"{path}: not a readable HDF5 file ({str(exc).split(';')[0]})") from None
+    try:
+        with fh:
+            schema = fh.attrs.get("schema")
+            schema = schema.decode() if isinstance(schema, bytes) else schema
+            if schema != SCHEMA:
+                raise TableError(f"{path}: not a nullatlas null table (schema {schema!r})")
+            version = int(_attr(fh, "schema_version", path))
+            if version != SCHEMA_VERSION:
+                raise TableError(f"{path}: table schema version {version} is not supported "
+                                 f"(this nullatlas reads version {SCHEMA_VERSION})")
+            dim = int(_attr(fh, "dimension", path))
+            if dimension is not None and dim != dimension:
+                raise TableError(f"{path}: the table is for {dim}D patterns, the data are {dimension}D")
+            info = TableInfo(path=path, schema_version=version,
+                             created=str(_attr(fh, "created", path)), dimension=dim,
+                             root_seed=int(_attr(fh, "root_seed", path)),
+                             software=json.loads(_attr(fh, "software", path)),
+                             grids={k: np.asarray(v[()], dtype=float)
+                                    for k, v in fh.get("grids", {}).items()})
+            for name, g in fh.get("cells", {}).items():
+                where = f"{path}: cell {name}"
+                stats = tuple(sorted(g.keys()))
+                for s in stats:
+                    for part in ("count", "mean", "m2", "m3"):
+                        if part not in g[s]:
+                            raise TableError(f"{where}: statistic {s} lacks '{part}'")
+                info.cells.append(CellInfo(
+                    name=name, dimension=int(_attr(g, "dimension", where)),
+                    shape=str(_attr(g, "shape", where)), n=int(_attr(g, "n", where)),
+                    replicates=int(_attr(g, "replicates", where)),
+                    kappa=float(_attr(g, "kappa", where)), stats=stats))
+    except TableError:
+        raise
+    except (OSError, KeyError, ValueError, TypeError) as exc:
+        raise TableError(f"{path}: damaged table ({type(exc).__name__}: {exc})") from None
+    return info
