@@ -1,7 +1,11 @@
-"""The ``nullatlas-calibrate`` command: build null tables offline.
+"""The ``nullatlas-calibrate`` command: build, extend and refit null tables.
 
-Table building arrives with the calibration engine; for now the command
-describes itself.
+    nullatlas-calibrate build (--shape NAME[,NAME...] | --window SPEC) --n LIST --reps R
+                              --out FILE [--jobs N] [--dask-scheduler ADDR] [--seed S]
+    nullatlas-calibrate extend FILE --reps R [--shape ... | --window ...] [--n LIST]
+    nullatlas-calibrate fit FILE [--n-fit N] [--holdout SHAPE]
+
+Every bad input ends with one line on standard error and exit status 2.
 """
 from __future__ import annotations
 
@@ -9,25 +13,216 @@ import argparse
 import json
 import sys
 
+from nullatlas.lookup.cli import _int, _Parser
+from nullatlas.lookup.errors import NullAtlasError, OptionError
+
+PROG = "nullatlas-calibrate"
+
+
+def _int_list(text):
+    try:
+        vals = [int(float(v)) for v in text.replace(";", ",").split(",") if v.strip()]
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"'{text}' is not a comma-separated list of integers") \
+            from None
+    if not vals:
+        raise argparse.ArgumentTypeError("empty list of n values")
+    return vals
+
+
+def _add_run_options(p, need_out=False):
+    p.add_argument("--jobs", "-j", type=_int, default=1, metavar="N",
+                   help="worker processes, 0 = all cores (default: 1); the table does not "
+                   "depend on it")
+    p.add_argument("--dask-scheduler", metavar="ADDR",
+                   help="run the chunks on a dask.distributed cluster (e.g. tcp://host:8786) "
+                   "through joblib's Dask backend; the table is the same as with --jobs")
+    bar = p.add_mutually_exclusive_group()
+    bar.add_argument("--progress", dest="progress", action="store_true", default=None,
+                     help="always show the progress bar (default: only on a terminal)")
+    bar.add_argument("--no-progress", dest="progress", action="store_false",
+                     help="never show the progress bar")
+    p.add_argument("--json", action="store_true", help="print a JSON summary")
+
+
+def _add_target_options(p, required):
+    g = p.add_mutually_exclusive_group(required=required)
+    g.add_argument("--shape", metavar="NAME[,NAME...]",
+                   help="named shapes: square, rect2, rect4, disk (2D); cube, box114 (3D)")
+    g.add_argument("--window", metavar="SPEC",
+                   help="your own window (rect:..., disk:..., box:..., ball:..., polygon file "
+                   "or polygon:WKT); normalised to unit area/volume")
+    p.add_argument("--n", type=_int_list, required=required, metavar="LIST",
+                   help="point counts of the cells, e.g. 50,100,200,500")
+
 
 def build_parser() -> argparse.ArgumentParser:
-    p = argparse.ArgumentParser(
-        prog="nullatlas-calibrate",
-        description="Offline stage of nullatlas: simulate CSR nulls over window shapes and "
-        "point counts and store moments of normalised persistence summaries in HDF5 tables. "
-        "No subcommands are available in this version; use 'nullatlas test --method mc'.")
-    p.add_argument("--json", action="store_true", help="print what this version can do as JSON")
+    p = _Parser(prog=PROG, description=(
+        "Offline stage of nullatlas: simulate CSR nulls over window shapes and point counts "
+        "and store moments of normalised summaries, a finite-window model and an audit of "
+        "the asymptotic tests in an HDF5 null table."))
+    sub = p.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+    sub.required = True
+
+    b = sub.add_parser("build", help="simulate a new null table",
+                       description="Simulate a new null table (checkpointed; run the same "
+                       "command again after an interruption to resume).")
+    _add_target_options(b, True)
+    b.add_argument("--reps", type=_int, required=True, metavar="R", help="replicates per cell")
+    b.add_argument("--out", required=True, metavar="FILE", help="output HDF5 table")
+    b.add_argument("--seed", type=_int, default=None, metavar="S",
+                   help="root seed (default: the shipped tables' seed)")
+    b.add_argument("--stat", action="append", metavar="NAME",
+                   help="statistics to tabulate (default: all that the runtime uses)")
+    b.add_argument("--holdout", metavar="SHAPE",
+                   help="also fit the model without this shape and store its prediction errors")
+    b.add_argument("--n-fit", type=_int, default=200, metavar="N",
+                   help="smallest n used in the model fit (default: 200)")
+    _add_run_options(b)
+
+    e = sub.add_parser("extend", help="add replicates (or cells) to a table",
+                       description="Add replicates to every cell of a table, or to the cells "
+                       "given by --shape/--window and --n (creating missing cells).")
+    e.add_argument("table", help="HDF5 table to extend (rewritten atomically)")
+    e.add_argument("--reps", type=_int, required=True, metavar="R",
+                   help="replicates to add per cell")
+    g = e.add_mutually_exclusive_group()
+    g.add_argument("--shape", metavar="NAME[,NAME...]")
+    g.add_argument("--window", metavar="SPEC")
+    e.add_argument("--n", type=_int_list, metavar="LIST")
+    _add_run_options(e)
+
+    f = sub.add_parser("fit", help="refit the finite-window model and n_min",
+                       description="Recompute n_min and the finite-window model of a table "
+                       "from its stored moments and audits (no simulation).")
+    f.add_argument("table")
+    f.add_argument("--n-fit", type=_int, default=None, metavar="N",
+                   help="smallest n used in the fit (default: as stored)")
+    f.add_argument("--holdout", metavar="SHAPE",
+                   help="refit without this shape and report how well the model predicts it")
+    f.add_argument("--plot", metavar="FILE",
+                   help="figure: cell means against the model for the mean nearest-neighbour "
+                   "distance and the Euler curve")
+    f.add_argument("--json", action="store_true")
     return p
+
+
+def _targets(a):
+    from nullatlas.lookup.windows import parse_window
+
+    from . import shapes
+
+    if getattr(a, "shape", None):
+        names = [s.strip() for s in a.shape.split(",") if s.strip()]
+        return [(s, shapes.shape_window(s)) for s in names]
+    if getattr(a, "window", None):
+        return [shapes.normalise(parse_window(a.window))]
+    return None
+
+
+def _jobs(j):
+    import os
+
+    if j < 0:
+        raise OptionError(f"--jobs must be 0 (all cores) or positive, got {j}")
+    return j or os.cpu_count() or 1
+
+
+def _print_summary(s, out=None):
+    out = out or sys.stdout
+    out.write(f"table {s['table']}: {s['dimension']}D, {s['cells']} cells, "
+              f"{s['replicates']} replicates, root seed {s['root_seed']}\n")
+    if "simulation_seconds" in s:
+        out.write(f"simulation: {s['simulation_seconds']:.1f} s\n")
+    nn = s["model"].get("nnmean")
+    if nn and "c" in nn:
+        out.write(f"model check, mean nearest-neighbour distance: mu = {nn['mu']:.4f} +- "
+                  f"{nn['mu_se']:.4f} (Clark-Evans 0.5), c = {nn['c']:.4f} +- {nn['c_se']:.4f} "
+                  f"(Donnelly 0.0514), chi2/dof = {nn['chi2']:.1f}/{nn['dof']}\n")
+    for stat, m in s["model"].items():
+        for k, v in m.items():
+            if k.startswith("holdout_") and v.get("rms_se") is not None:
+                out.write(f"held-out {k[8:]}: {stat} predicted with RMS error {v['rms_se']:.2f} SE "
+                          f"(max {v['max_abs_se']:.2f}) over {v['points']} cell grid points\n")
+    out.write("n_min (smallest calibrated n from which the asymptotic test holds; - = none):\n")
+    for shape, per in s["n_min"].items():
+        items = []
+        for stat, tests in per.items():
+            items.append(stat + " " + "/".join("-" if v is None else str(v) for v in tests.values()))
+        out.write(f"  {shape}: " + "; ".join(items) + "\n")
+
+
+def _cmd_build(a):
+    from . import build
+
+    if a.n_fit < 10:
+        raise OptionError(f"--n-fit must be at least 10, got {a.n_fit}")
+    seed = build.DEFAULT_SEED if a.seed is None else a.seed
+    return build.build_table(a.out, _targets(a), a.n, a.reps, stats=a.stat, root_seed=seed,
+                             jobs=_jobs(a.jobs), scheduler=a.dask_scheduler, progress=a.progress,
+                             n_fit=a.n_fit, holdout=a.holdout)
+
+
+def _cmd_extend(a):
+    from . import build
+
+    targets = _targets(a)
+    if a.n and targets is None:
+        raise OptionError("--n needs --shape or --window")
+    return build.extend_table(a.table, a.reps, targets=targets, ns=a.n, jobs=_jobs(a.jobs),
+                              scheduler=a.dask_scheduler, progress=a.progress)
+
+
+def _cmd_fit(a):
+    from . import build
+
+    if a.plot:
+        from nullatlas.lookup.plots import check_plot_path
+        check_plot_path(a.plot)
+    s = build.refit_table(a.table, n_fit=a.n_fit, holdout=a.holdout)
+    if a.plot:
+        from .modelplot import plot_model
+        plot_model(a.table, a.plot)
+        s["plot"] = a.plot
+    return s
+
+
+def _clean(v):
+    """JSON-ready copy: numpy scalars to Python, NaN/inf to None."""
+    import math
+
+    if isinstance(v, dict):
+        return {str(k): _clean(x) for k, x in v.items()}
+    if isinstance(v, (list, tuple)):
+        return [_clean(x) for x in v]
+    if hasattr(v, "item") and not isinstance(v, (str, bytes)):
+        v = v.item()
+    if isinstance(v, float) and not math.isfinite(v):
+        return None
+    return v
 
 
 def main(argv=None) -> int:
     """Entry point of ``nullatlas-calibrate``."""
     a = build_parser().parse_args(argv)
-    if a.json:
-        json.dump({"commands": [], "schema_versions": []}, sys.stdout)
-        sys.stdout.write("\n")
-    else:
-        build_parser().print_help()
+    try:
+        s = {"build": _cmd_build, "extend": _cmd_extend, "fit": _cmd_fit}[a.command](a)
+        if a.json:
+            json.dump(_clean(s), sys.stdout, indent=2, allow_nan=False)
+            sys.stdout.write("\n")
+        else:
+            _print_summary(s)
+        sys.stdout.flush()
+    except NullAtlasError as exc:
+        sys.stderr.write(f"{PROG}: error: {exc}\n")
+        return 2
+    except BrokenPipeError:       # output piped into head & co.
+        import os
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        return 0
+    except KeyboardInterrupt:
+        sys.stderr.write(f"{PROG}: interrupted; run the same command again to resume\n")
+        return 130
     return 0
 
 

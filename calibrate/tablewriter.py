@@ -33,7 +33,58 @@ def software_versions() -> dict:
     return out
 
 
-def write_table(path, *, dimension: int, root_seed: int, grids: dict, cells: list) -> None:
+def _put(group, name, arr, compress=False):
+    arr = np.asarray(arr)
+    if compress and arr.size > 16:
+        group.create_dataset(name, data=arr, compression="gzip", compression_opts=6, shuffle=True)
+    else:
+        group.create_dataset(name, data=arr)
+
+
+def _write_stat(g, sname, item):
+    sg = g.create_group(sname)
+    if isinstance(item, Moments):
+        item = {"moments": item}
+    m = item.get("moments") if isinstance(item, dict) else None
+    if not isinstance(m, Moments):
+        raise TypeError(f"statistic {sname}: expected Moments")
+    arrays = m.as_arrays()
+    for part, arr in arrays.items():
+        if part == "m2" and np.ndim(arr) == 2 and arr.shape[0] > 1:
+            # scatter matrices of curves: float32 is ample for a covariance and
+            # halves the file
+            _put(sg, part, np.asarray(arr, dtype=np.float32), compress=True)
+        else:
+            _put(sg, part, arr)
+    if "kind" in item:
+        sg.attrs["kind"] = str(item["kind"])
+    sg.attrs["nonfinite"] = int(item.get("nonfinite", 0))
+    for key in ("values", "quantiles", "expected_count"):
+        if key in item:
+            _put(sg, key, item[key], compress=True)
+    if "audit" in item:
+        ag = sg.create_group("audit")
+        for k, v in item["audit"].items():
+            _put(ag, k, v)
+
+
+def _write_fit(g, fit, extra=None):
+    for k in ("mean_coef", "mean_se", "mean_cov", "mean_chi2", "var_coef", "var_se", "var_cov",
+              "var_chi2", "mean_resid", "var_resid"):
+        _put(g, k, getattr(fit, k), compress=True)
+    g.attrs["cells"] = json.dumps(list(fit.cells))
+    g.attrs["n_fit"] = int(fit.n_fit)
+    g.attrs["dof"] = int(fit.dof)
+    for k, v in (extra or {}).items():
+        if isinstance(v, (str, int, float)):
+            g.attrs[k] = v
+        else:
+            _put(g, k, v)
+
+
+def write_table(path, *, dimension: int, root_seed: int, grids: dict, cells: list,
+                nmin: dict | None = None, models: dict | None = None,
+                holdouts: dict | None = None, attrs: dict | None = None) -> None:
     """Write a null table.
 
     Parameters
@@ -45,7 +96,15 @@ def write_table(path, *, dimension: int, root_seed: int, grids: dict, cells: lis
     grids : dict name -> 1D or 2D array
     cells : list of dict
         Each with ``name``, ``shape``, ``n``, ``replicates``, ``kappa``,
-        ``geometry`` (JSON-serialisable) and ``stats`` (name -> Moments).
+        ``geometry`` (JSON-serialisable), optionally ``spec``, ``chunk_size``
+        and ``chunks``, and ``stats``: name -> Moments, or a dict with
+        ``moments`` and optionally ``kind``, ``nonfinite``, ``values``,
+        ``quantiles``, ``expected_count`` and ``audit`` (dict of arrays).
+    nmin : dict shape -> stat -> (tests list, int array), optional
+    models : dict stat -> calibrate.model.Fit, optional
+    holdouts : dict shape -> stat -> (Fit, errors array, held-out cell names)
+    attrs : dict, optional
+        Extra root attributes (strings or numbers).
     """
     import h5py
 
@@ -57,6 +116,8 @@ def write_table(path, *, dimension: int, root_seed: int, grids: dict, cells: lis
             fh.attrs["software"] = json.dumps(software_versions())
             fh.attrs["dimension"] = int(dimension)
             fh.attrs["root_seed"] = int(root_seed)
+            for k, v in (attrs or {}).items():
+                fh.attrs[k] = v
             gg = fh.create_group("grids")
             for k, v in grids.items():
                 gg.create_dataset(k, data=np.asarray(v, dtype=float))
@@ -69,9 +130,29 @@ def write_table(path, *, dimension: int, root_seed: int, grids: dict, cells: lis
                 g.attrs["replicates"] = int(c["replicates"])
                 g.attrs["kappa"] = float(c["kappa"])
                 g.attrs["geometry"] = json.dumps(c.get("geometry", {}))
-                for sname, m in c["stats"].items():
-                    if not isinstance(m, Moments):
-                        raise TypeError(f"statistic {sname}: expected Moments")
-                    sg = g.create_group(sname)
-                    for part, arr in m.as_arrays().items():
-                        sg.create_dataset(part, data=arr)
+                for key in ("spec",):
+                    if key in c:
+                        g.attrs[key] = str(c[key])
+                for key in ("chunk_size", "chunks"):
+                    if key in c:
+                        g.attrs[key] = int(c[key])
+                for sname, item in c["stats"].items():
+                    _write_stat(g, sname, item)
+            if nmin:
+                ng = fh.create_group("nmin")
+                for shape, per in nmin.items():
+                    sg = ng.create_group(shape)
+                    for sname, (tests, vals) in per.items():
+                        ds = sg.create_dataset(sname, data=np.asarray(vals, dtype=np.int64))
+                        ds.attrs["tests"] = json.dumps(list(tests))
+            if models:
+                mg = fh.create_group("model")
+                for sname, fit in models.items():
+                    _write_fit(mg.create_group(sname), fit)
+            if holdouts:
+                hg = fh.create_group("holdout")
+                for shape, per in holdouts.items():
+                    sg = hg.create_group(shape)
+                    for sname, (fit, errors, names) in per.items():
+                        _write_fit(sg.create_group(sname), fit,
+                                   {"errors": errors, "heldout_cells": json.dumps(list(names))})

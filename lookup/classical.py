@@ -23,12 +23,13 @@ from __future__ import annotations
 
 import math
 
+import numba
 import numpy as np
 from scipy.spatial import cKDTree
 
 from . import grids
 
-__all__ = ["nn_distances", "nn_mean", "g_function", "l_function"]
+__all__ = ["close_pairs", "nn_distances", "nn_from_pairs", "nn_mean", "g_function", "l_function"]
 
 
 def nn_distances(points: np.ndarray, tree: cKDTree | None = None) -> np.ndarray:
@@ -36,6 +37,43 @@ def nn_distances(points: np.ndarray, tree: cKDTree | None = None) -> np.ndarray:
     tree = tree or cKDTree(points)
     d, _ = tree.query(points, k=2)
     return d[:, 1]
+
+
+def close_pairs(points: np.ndarray, radius: float, tree: cKDTree | None = None):
+    """All unordered pairs closer than ``radius``: (pairs (m, 2) int, distances (m,))."""
+    tree = tree or cKDTree(points)
+    pairs = tree.query_pairs(radius, output_type="ndarray")
+    if len(pairs) == 0:
+        return np.zeros((0, 2), dtype=np.intp), np.zeros(0)
+    dist = np.sqrt(np.sum((points[pairs[:, 0]] - points[pairs[:, 1]]) ** 2, axis=1))
+    return pairs, dist
+
+
+def nn_from_pairs(points: np.ndarray, pairs: np.ndarray, dist: np.ndarray,
+                  tree: cKDTree | None = None) -> np.ndarray:
+    """Nearest-neighbour distances from the close pairs of :func:`close_pairs`;
+    points with no close pair are queried in the tree (same result as
+    :func:`nn_distances`, faster when most points have a close pair)."""
+    nn = _pair_minimum(len(points), np.ascontiguousarray(pairs, dtype=np.int64),
+                       np.ascontiguousarray(dist, dtype=float))
+    miss = np.flatnonzero(~np.isfinite(nn))
+    if len(miss):
+        tree = tree or cKDTree(points)
+        d, _ = tree.query(points[miss], k=2)
+        nn[miss] = d[:, 1]
+    return nn
+
+
+@numba.njit(cache=True, nogil=True)
+def _pair_minimum(n, pairs, dist):  # pragma: no cover - compiled
+    nn = np.full(n, np.inf)
+    for k in range(pairs.shape[0]):
+        i, j, d = pairs[k, 0], pairs[k, 1], dist[k]
+        if d < nn[i]:
+            nn[i] = d
+        if d < nn[j]:
+            nn[j] = d
+    return nn
 
 
 def nn_mean(nn: np.ndarray, scale: float) -> float:
@@ -54,33 +92,37 @@ def g_function(nn: np.ndarray, bdist: np.ndarray, scale: float,
     lo = np.searchsorted(grid, rn, side="left")     # first grid >= nn_i
     hi = np.searchsorted(grid, bn, side="right")    # first grid > b_i
     ok = lo < hi
-    diff = np.zeros(len(grid) + 1)
-    np.add.at(diff, lo[ok], 1)
-    np.add.at(diff, hi[ok], -1)
+    m = len(grid) + 1
+    diff = (np.bincount(lo[ok], minlength=m) - np.bincount(hi[ok], minlength=m)).astype(float)
     num = np.cumsum(diff)[:-1]
     with np.errstate(invalid="ignore", divide="ignore"):
         return np.where(denom > 0, num / np.maximum(denom, 1), np.nan)
 
 
 def l_function(points: np.ndarray, bdist: np.ndarray, scale: float,
-               tree: cKDTree | None = None, grid: np.ndarray = grids.L_RHO) -> np.ndarray:
-    """Border-corrected Besag L on the normalised ``grid`` (CSR: L = rho)."""
+               tree: cKDTree | None = None, grid: np.ndarray = grids.L_RHO,
+               pairs=None) -> np.ndarray:
+    """Border-corrected Besag L on the normalised ``grid`` (CSR: L = rho).
+
+    ``pairs``: optional (pairs, distances) of :func:`close_pairs` for a radius of
+    at least ``grid[-1] / scale`` (shared with the nearest-neighbour summaries)."""
     n, d = points.shape
-    tree = tree or cKDTree(points)
     rmax = grid[-1] / scale
-    pairs = tree.query_pairs(rmax, output_type="ndarray")
+    if pairs is None:
+        pairs = close_pairs(points, rmax, tree)
+    pr, dist = pairs
     bn = bdist * scale
     bs = np.sort(bn)
     denom = n - np.searchsorted(bs, grid, side="left")
-    diff = np.zeros(len(grid) + 1)
-    if len(pairs):
-        dist = np.linalg.norm(points[pairs[:, 0]] - points[pairs[:, 1]], axis=1) * scale
+    m = len(grid) + 1
+    diff = np.zeros(m)
+    if len(pr):
+        dist = dist * scale
         lo = np.searchsorted(grid, dist, side="left")
         for end in (0, 1):  # each unordered pair counts once from each end
-            hi = np.searchsorted(grid, bn[pairs[:, end]], side="right")
+            hi = np.searchsorted(grid, bn[pr[:, end]], side="right")
             ok = lo < hi
-            np.add.at(diff, lo[ok], 1)
-            np.add.at(diff, hi[ok], -1)
+            diff += np.bincount(lo[ok], minlength=m) - np.bincount(hi[ok], minlength=m)
     num = np.cumsum(diff)[:-1]
     with np.errstate(invalid="ignore", divide="ignore"):
         lk = np.where(denom > 0, num / np.maximum(denom, 1), np.nan)

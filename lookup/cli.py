@@ -93,6 +93,13 @@ def build_parser() -> argparse.ArgumentParser:
     bar.add_argument("--no-progress", dest="progress", action="store_false",
                      help="never show the progress bar")
 
+    tb = sub.add_parser("tables", help="list what the null tables cover",
+                        description="List the cells of null tables (shape, n, replicates) and "
+                        "n_min per statistic: the smallest calibrated n from which the "
+                        "asymptotic test is trusted. Default: the shipped tables.")
+    tb.add_argument("file", nargs="*", help="table files (default: the shipped tables)")
+    tb.add_argument("--json", action="store_true", help="print one JSON object")
+
     s = sub.add_parser("stats", help="list the available statistics",
                        description="List the statistics that --stat accepts.")
     s.add_argument("--json", action="store_true", help="print a JSON list")
@@ -186,15 +193,64 @@ def _cmd_stats(a) -> int:
     return 0
 
 
+def _table_summary(path) -> dict:
+    from .tablereader import open_table
+
+    info = open_table(path)
+    shapes = {}
+    for c in info.cells:
+        sh = shapes.setdefault(c.shape, {"kappa": c.kappa, "cells": []})
+        sh["cells"].append({"n": c.n, "replicates": c.replicates})
+    for shape, sh in shapes.items():
+        sh["n_min"] = {stat: {t: (None if v < 0 else v) for t, v in tests.items()}
+                       for stat, tests in info.nmin.get(shape, {}).items()}
+    return {"path": info.path, "dimension": info.dimension, "schema_version": info.schema_version,
+            "created": info.created, "root_seed": info.root_seed,
+            "statistics": sorted({s for c in info.cells for s in c.stats}),
+            "model": list(info.models), "shapes": shapes}
+
+
+def _cmd_tables(a) -> int:
+    from .tablereader import shipped_tables
+
+    files = a.file or list(shipped_tables().values())
+    if not files:
+        raise OptionError("no shipped tables are installed; give a table file")
+    out = [_table_summary(f) for f in files]
+    if a.json:
+        json.dump({"tables": out}, sys.stdout, indent=2)
+        sys.stdout.write("\n")
+        return 0
+    w = sys.stdout.write
+    for t in out:
+        w(f"{t['path']}\n  {t['dimension']}D, schema {t['schema_version']}, created {t['created']}, "
+          f"root seed {t['root_seed']}\n  statistics: {', '.join(t['statistics'])}\n")
+        for shape, sh in t["shapes"].items():
+            ns = [c["n"] for c in sh["cells"]]
+            reps = sorted({c["replicates"] for c in sh["cells"]})
+            w(f"  {shape} (kappa {sh['kappa']:.4g}): {len(ns)} cells, n = {min(ns)}..{max(ns)}, "
+              f"R = {'/'.join(map(str, reps))}\n")
+            for stat, tests in sh["n_min"].items():
+                txt = ", ".join(f"{k} {'-' if v is None else v}" for k, v in tests.items())
+                w(f"      n_min {stat:<10} {txt}\n")
+    w("n_min: smallest calibrated n from which the audited size of the asymptotic test stays "
+      "within tolerance ('-': none).\n")
+    return 0
+
+
 def main(argv=None) -> int:
     """Entry point of the ``nullatlas`` command."""
     parser = build_parser()
     a = parser.parse_args(argv)
     try:
-        return {"test": _cmd_test, "stats": _cmd_stats}[a.command](a)
+        return {"test": _cmd_test, "stats": _cmd_stats, "tables": _cmd_tables}[a.command](a)
     except NullAtlasError as exc:
         sys.stderr.write(f"{PROG}: error: {exc}\n")
         return 2
+    except BrokenPipeError:       # output piped into head & co.
+        import os
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        return 0
     except KeyboardInterrupt:
         sys.stderr.write(f"{PROG}: interrupted\n")
         return 130

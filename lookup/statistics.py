@@ -106,7 +106,7 @@ def _mk():
         lambda ps: classical.g_function(ps.nn, ps.bdist, ps.scale))
     add("lfunc", "curve", (2, 3), None, grids.L_RHO, False,
         "Besag L function, border corrected",
-        lambda ps: classical.l_function(ps.points, ps.bdist, ps.scale, ps.tree))
+        lambda ps: classical.l_function(ps.points, ps.bdist, ps.scale, pairs=ps.pairs))
     return S
 
 
@@ -173,8 +173,15 @@ class PatternSummary:
         return self._get("tree", lambda: cKDTree(self.points))
 
     @property
+    def pairs(self):
+        """Pairs closer than the L-function grid's largest radius, with distances."""
+        return self._get("pairs", lambda: classical.close_pairs(
+            self.points, grids.L_RHO[-1] / self.scale, self.tree))
+
+    @property
     def nn(self) -> np.ndarray:
-        return self._get("nn", lambda: classical.nn_distances(self.points, self.tree))
+        return self._get("nn", lambda: classical.nn_from_pairs(
+            self.points, *self.pairs, tree=self.tree))
 
     @property
     def bdist(self) -> np.ndarray:

@@ -10,7 +10,17 @@ Layout, schema version 1 (written by ``calibrate.tablewriter``):
                          replicates, kappa, geometry (JSON, normalised to unit
                          area/volume)
     /cells/<cell>/<stat>/{count, mean, m2, m3}
-                         streaming moments of the statistic (``calibrate.moments``)
+                         streaming moments of the statistic (``calibrate.moments``);
+                         attrs kind, nonfinite (replicates where it was not finite)
+    /cells/<cell>/<stat>/values          sorted null values (extreme statistics)
+    /cells/<cell>/<stat>/quantiles       quantiles at /grids/quantile_levels (scalars)
+    /cells/<cell>/<stat>/expected_count  n E[beta_q(rho)] (Betti curves)
+    /cells/<cell>/<stat>/audit/*         cross-fitted audit (``calibrate.assemble``)
+    /nmin/<shape>/<stat>                 n_min per test (attrs tests: JSON list);
+                                         -1: no calibrated n is large enough
+    /model/<stat>/*                      finite-window model (``calibrate.model``)
+    /holdout/<shape>/<stat>/*            the model refitted without that shape, with
+                                         the held-out cells' prediction errors
 
 Only plain numeric datasets and string attributes are read: opening a table
 never executes anything.  Anything else -- not HDF5, truncated, another
@@ -27,7 +37,8 @@ import numpy as np
 
 from .errors import TableError
 
-__all__ = ["SCHEMA", "SCHEMA_VERSION", "TableInfo", "CellInfo", "open_table"]
+__all__ = ["SCHEMA", "SCHEMA_VERSION", "TableInfo", "CellInfo", "open_table", "load_cell",
+           "load_model", "load_holdout", "shipped_tables"]
 
 SCHEMA = "nullatlas-null-table"
 SCHEMA_VERSION = 1
@@ -44,6 +55,9 @@ class CellInfo:
     replicates: int
     kappa: float
     stats: tuple
+    spec: str = ""
+    chunk_size: int = 0
+    chunks: int = 0
 
 
 @dataclass
@@ -58,12 +72,26 @@ class TableInfo:
     software: dict
     grids: dict
     cells: list = field(default_factory=list)
+    nmin: dict = field(default_factory=dict)
+    attrs: dict = field(default_factory=dict)
+    models: tuple = ()
 
     def coverage(self) -> list[dict]:
         """One dict per cell (for listings and ``--json``)."""
         return [{"cell": c.name, "dimension": c.dimension, "shape": c.shape, "n": c.n,
                  "replicates": c.replicates, "kappa": c.kappa, "statistics": list(c.stats)}
                 for c in self.cells]
+
+    def shapes(self) -> list[str]:
+        """Calibrated shapes, in order of appearance."""
+        return list(dict.fromkeys(c.shape for c in self.cells))
+
+    def n_min(self, shape: str, stat: str) -> dict:
+        """Test name -> n_min (None: no calibrated n is large enough)."""
+        per = self.nmin.get(shape, {}).get(stat)
+        if per is None:
+            return {}
+        return {k: (None if v < 0 else int(v)) for k, v in per.items()}
 
 
 def _attr(obj, name, where):
@@ -127,9 +155,79 @@ def open_table(path, dimension: int | None = None) -> TableInfo:
                     name=name, dimension=int(_attr(g, "dimension", where)),
                     shape=str(_attr(g, "shape", where)), n=int(_attr(g, "n", where)),
                     replicates=int(_attr(g, "replicates", where)),
-                    kappa=float(_attr(g, "kappa", where)), stats=stats))
+                    kappa=float(_attr(g, "kappa", where)), stats=stats,
+                    spec=str(g.attrs.get("spec", "")), chunk_size=int(g.attrs.get("chunk_size", 0)),
+                    chunks=int(g.attrs.get("chunks", 0))))
+            for shape, sg in fh.get("nmin", {}).items():
+                info.nmin[shape] = {}
+                for sname, ds in sg.items():
+                    tests = json.loads(_attr(ds, "tests", f"{path}: nmin/{shape}/{sname}"))
+                    vals = np.asarray(ds[()], dtype=np.int64)
+                    if len(vals) != len(tests):
+                        raise TableError(f"{path}: nmin/{shape}/{sname} does not match its tests")
+                    info.nmin[shape][sname] = dict(zip(tests, vals.tolist()))
+            info.models = tuple(sorted(fh.get("model", {}).keys()))
+            info.attrs = {k: (v.decode() if isinstance(v, bytes) else v) for k, v in fh.attrs.items()
+                          if k not in ("schema", "software")}
     except TableError:
         raise
     except (OSError, KeyError, ValueError, TypeError) as exc:
         raise TableError(f"{path}: damaged table ({type(exc).__name__}: {exc})") from None
     return info
+
+
+def shipped_tables() -> dict:
+    """Paths of the tables shipped with nullatlas: dimension -> path (those present)."""
+    from importlib import resources
+
+    out = {}
+    try:
+        base = resources.files("nullatlas.tables")
+    except ModuleNotFoundError:  # pragma: no cover - broken install
+        return out
+    for d in (2, 3):
+        p = base / f"null{d}d.h5"
+        if p.is_file():
+            out[d] = os.fspath(p)
+    return out
+
+
+def _read_group(g) -> dict:
+    import h5py
+
+    out = {}
+    for k, v in g.items():
+        out[k] = _read_group(v) if isinstance(v, h5py.Group) else np.asarray(v[()])
+    for k, v in g.attrs.items():
+        out.setdefault("attrs", {})[k] = v.decode() if isinstance(v, bytes) else v
+    return out
+
+
+def _read(path, where: str) -> dict:
+    import h5py
+
+    try:
+        with h5py.File(os.fspath(path), "r") as fh:
+            if where not in fh:
+                raise TableError(f"{path}: the table has no '{where}'")
+            return _read_group(fh[where])
+    except TableError:
+        raise
+    except (OSError, KeyError, ValueError, TypeError) as exc:
+        raise TableError(f"{path}: damaged table ({type(exc).__name__}: {exc})") from None
+
+
+def load_cell(path, name: str) -> dict:
+    """All stored arrays of one cell: ``{stat: {count, mean, m2, m3, ..., audit: {...},
+    attrs: {...}}, "attrs": {...}}`` (plain numpy arrays; call :func:`open_table` first)."""
+    return _read(path, f"cells/{name}")
+
+
+def load_model(path) -> dict:
+    """The finite-window model: ``{stat: {mean_coef, mean_se, ..., attrs}}``."""
+    return _read(path, "model")
+
+
+def load_holdout(path) -> dict:
+    """The held-out refits: ``{shape: {stat: {..., errors, attrs}}}``."""
+    return _read(path, "holdout")

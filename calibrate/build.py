@@ -1,0 +1,349 @@
+"""Building, extending and refitting null tables (the work behind the CLI).
+
+``build_table``: plan the cells (shape x n), simulate their chunks
+(``calibrate.runner``), assemble each cell as soon as it is complete
+(``calibrate.assemble``), then compute n_min (``calibrate.nmin``), fit the
+finite-window model (``calibrate.model``) and write the table atomically
+(``calibrate.tablewriter``).  Checkpoints live in ``<out>.parts`` and are
+removed once the table is written.
+
+``extend_table``: more replicates for existing cells (new chunk indices, so
+new seeds) and/or new cells; moments are merged exactly, audits pooled.
+
+``refit_table``: recompute n_min and the model (optionally holding out one
+shape) from the stored cells without simulating.
+"""
+from __future__ import annotations
+
+import math
+import os
+import time
+
+import numpy as np
+
+from nullatlas.lookup import grids
+from nullatlas.lookup.errors import OptionError, TableError
+from nullatlas.lookup.statistics import STATISTICS, resolve_stats
+from nullatlas.lookup.tablereader import load_cell, open_table
+
+from . import assemble as asm
+from .model import fit_model, holdout_errors
+from .moments import Moments
+from .nmin import n_min_table
+from .plan import DEFAULT_STATS, CellPlan, chunk_seed, chunk_size_for
+from .runner import Checkpoints, run_chunks
+from .tablewriter import write_table
+
+__all__ = ["DEFAULT_SEED", "build_table", "extend_table", "refit_table", "table_grids"]
+
+#: Root seed of the shipped tables (any integer; stored in the table).
+DEFAULT_SEED = 20_261_203
+_AUDIT_INDEX = 1_000_000_000   # chunk index reserved for the audit's Gaussian vectors
+
+
+def table_grids() -> dict:
+    """The grids stored with every table (``lookup.grids``, audit levels)."""
+    return {"rho": grids.RHO, "apf_age": grids.APF_AGE, "nn_rho": grids.NN_RHO,
+            "l_rho": grids.L_RHO, "pbetti_pairs": grids.PBETTI_PAIRS,
+            "silhouette_t": grids.SILHOUETTE_T, "quantile_levels": asm.QUANTILE_LEVELS,
+            "alphas": asm.ALPHAS}
+
+
+def _parts_dir(out: str) -> str:
+    return os.fspath(out) + ".parts"
+
+
+def _cell_record(plan: CellPlan, window_desc: dict, stats: dict, reps: int, chunks: int) -> dict:
+    return {"name": plan.name, "shape": plan.shape, "n": plan.n, "replicates": int(reps),
+            "kappa": plan.kappa, "geometry": window_desc, "spec": plan.spec,
+            "chunk_size": plan.size, "chunks": int(chunks), "stats": stats}
+
+
+def _assembled_stats(assembled: dict) -> dict:
+    out = {}
+    for name, cd in assembled.items():
+        item = dict(cd)
+        item["kind"] = STATISTICS[name].kind
+        out[name] = item
+    return out
+
+
+def _stored_stats(raw: dict) -> dict:
+    """Reader arrays of one cell -> writer items (Moments etc.)."""
+    out = {}
+    for name, d in raw.items():
+        if name == "attrs":
+            continue
+        item = {"moments": Moments.from_arrays(d), "kind": d.get("attrs", {}).get("kind", ""),
+                "nonfinite": int(d.get("attrs", {}).get("nonfinite", 0))}
+        for key in ("values", "quantiles", "expected_count"):
+            if key in d:
+                item[key] = d[key]
+        if "audit" in d:
+            item["audit"] = {k: v for k, v in d["audit"].items() if k != "attrs"}
+        out[name] = item
+    return out
+
+
+_RATES = ("lower", "upper", "two_sided", "point_lower", "point_upper", "maxabs", "mahalanobis")
+
+
+def _merge_item(old: dict, new: dict, n: int) -> dict:
+    m = old["moments"].merge(new["moments"])
+    item = {"moments": m, "kind": new.get("kind", old.get("kind", "")),
+            "nonfinite": int(old.get("nonfinite", 0)) + int(new.get("nonfinite", 0))}
+    if "values" in old or "values" in new:
+        item["values"] = np.sort(np.concatenate([old.get("values", []), new.get("values", [])])
+                                 ).astype(np.float32)
+    if "quantiles" in new:
+        wo, wn = old["moments"].count, new["moments"].count
+        # pooled quantile function (count-weighted average: an approximation)
+        item["quantiles"] = (wo * np.asarray(old["quantiles"]) + wn * np.asarray(new["quantiles"])
+                             ) / max(wo + wn, 1)
+    if "expected_count" in new:
+        item["expected_count"] = n * m.mean
+    ao, an = old.get("audit", {}), new.get("audit", {})
+    no, nn = int(ao.get("n", 0)), int(an.get("n", 0))
+    audit = {"n": np.int64(no + nn)}
+    for k in set(ao) | set(an):
+        if k == "n":
+            continue
+        if k in _RATES and k in ao and k in an and no + nn > 0:
+            audit[k] = (no * np.asarray(ao[k]) + nn * np.asarray(an[k])) / (no + nn)
+        else:   # KS distances: those of the larger audit
+            audit[k] = an[k] if (k in an and (nn >= no or k not in ao)) else ao[k]
+    item["audit"] = audit
+    return item
+
+
+def _finish(out, dimension, root_seed, stat_names, records, n_fit, holdout, extra_attrs):
+    """n_min, model, holdout; write the table. Returns the summary dict."""
+    kinds = {s: STATISTICS[s].kind for s in stat_names}
+    records = sorted(records, key=lambda r: (r["shape"], r["n"]))
+    nmin = n_min_table([{"shape": r["shape"], "n": r["n"],
+                         "audit": {s: it.get("audit", {}) for s, it in r["stats"].items()}}
+                        for r in records], kinds)
+    models, holdouts, model_summary = {}, {}, {}
+
+    def cellrows(stat, recs):
+        rows = []
+        for r in recs:
+            m = r["stats"][stat]["moments"]
+            if m.count > 2:
+                rows.append({"name": r["name"], "n": r["n"], "kappa": r["kappa"],
+                             "mean": m.mean, "var": np.diag(m.cov), "count": m.count,
+                             "shape": r["shape"]})
+        return rows
+
+    for stat in stat_names:
+        if kinds[stat] == "extreme":
+            continue
+        rows = cellrows(stat, records)
+        try:
+            models[stat] = fit_model(rows, dimension, n_fit)
+        except ValueError:
+            continue
+        f = models[stat]
+        model_summary[stat] = {"chi2_per_dof_median": float(np.nanmedian(f.mean_chi2 / max(f.dof, 1))),
+                               "cells": len(f.cells)}
+        if stat == "nnmean":
+            model_summary[stat].update({"mu": float(f.mean_coef[0, 0]), "mu_se": float(f.mean_se[0, 0]),
+                                        "c": float(f.mean_coef[0, 1]), "c_se": float(f.mean_se[0, 1]),
+                                        "e": float(f.mean_coef[0, 2]), "e_se": float(f.mean_se[0, 2]),
+                                        "chi2": float(f.mean_chi2[0]), "dof": f.dof})
+        if holdout:
+            keep = [r for r in rows if r["shape"] != holdout]
+            held = [r for r in rows if r["shape"] == holdout and r["n"] >= n_fit]
+            if held and len(keep) >= 4:
+                try:
+                    hf = fit_model(keep, dimension, n_fit)
+                except ValueError:
+                    continue
+                err = holdout_errors(hf, held, dimension)
+                holdouts.setdefault(holdout, {})[stat] = (hf, err, [r["name"] for r in held])
+                fin = err[np.isfinite(err)]
+                model_summary[stat]["holdout_" + holdout] = {
+                    "rms_se": float(np.sqrt(np.mean(fin ** 2))) if fin.size else None,
+                    "max_abs_se": float(np.max(np.abs(fin))) if fin.size else None,
+                    "points": int(fin.size)}
+    attrs = {"stats": __import__("json").dumps(list(stat_names)), "model_n_fit": int(n_fit),
+             "holdout": str(holdout or "")}
+    attrs.update(extra_attrs or {})
+    write_table(out, dimension=dimension, root_seed=root_seed, grids=table_grids(), cells=records,
+                nmin=nmin, models=models, holdouts=holdouts, attrs=attrs)
+    nmin_summary = {shape: {s: dict(zip(t, (int(x) if x >= 0 else None for x in v)))
+                            for s, (t, v) in per.items()} for shape, per in nmin.items()}
+    return {"table": os.fspath(out), "dimension": dimension, "root_seed": int(root_seed),
+            "cells": len(records), "replicates": int(sum(r["replicates"] for r in records)),
+            "n_min": nmin_summary, "model": model_summary}
+
+
+def _plans(targets, ns, reps, dimension, first=None):
+    plans = []
+    for name, window in targets:
+        if window.dim != dimension:
+            raise OptionError(f"shape {name} is {window.dim}D, the table is {dimension}D")
+        for n in ns:
+            if n < 10:
+                raise OptionError(f"--n values must be at least 10, got {n}")
+            f = (first or {}).get((name, n), (0, chunk_size_for(n)))
+            plans.append(CellPlan(dimension, name, int(n), window.spec(), float(window.kappa),
+                                  int(reps), first_chunk=f[0], chunk_size=f[1]))
+    return plans
+
+
+def _simulate(out, plans, stat_names, root_seed, jobs, scheduler, progress, on_done):
+    dim = plans[0].dimension
+    ck = Checkpoints(_parts_dir(out), root_seed, stat_names)
+
+    def on_cell(plan, data):
+        rng = np.random.default_rng(chunk_seed(root_seed, dim, plan.shape, plan.n,
+                                               _AUDIT_INDEX + plan.first_chunk))
+        on_done(plan, asm.assemble_cell(plan.n, data, rng))
+
+    res = run_chunks(plans, stat_names, root_seed, jobs=jobs, scheduler=scheduler,
+                     checkpoints=ck, progress=progress, on_cell=on_cell)
+    return ck, res["_seconds"]
+
+
+def build_table(out, targets: list, ns: list, reps: int, *, stats=None,
+                root_seed: int = DEFAULT_SEED, jobs: int = 1, scheduler: str | None = None,
+                progress=None, n_fit: int = 200, holdout: str | None = None,
+                keep_parts: bool = False) -> dict:
+    """Simulate a new table.
+
+    Parameters
+    ----------
+    out : str
+        Output HDF5 file (written atomically; must not exist).
+    targets : list of (shape name, unit-content window)
+        From ``calibrate.shapes``.
+    ns : list of int
+    reps : int
+        Replicates per cell.
+    stats : list of str, optional
+        Default ``plan.DEFAULT_STATS[d]``.
+    holdout : str, optional
+        Also fit the model without this shape and store its prediction errors.
+    keep_parts : bool
+        Keep the chunk checkpoints (``<out>.parts``) after writing the table.
+
+    Returns
+    -------
+    dict summary (see the CLI's ``--json``).
+    """
+    if not targets:
+        raise OptionError("give at least one --shape or --window")
+    dims = {w.dim for _, w in targets}
+    if len(dims) != 1:
+        raise OptionError("all shapes of one table must have the same dimension")
+    dim = dims.pop()
+    if reps < 20:
+        raise OptionError(f"--reps must be at least 20, got {reps}")
+    if os.path.exists(out):
+        raise OptionError(f"{out} exists; use 'nullatlas-calibrate extend' to add replicates "
+                          "or remove it")
+    folder = os.path.dirname(os.path.abspath(out))
+    if not os.path.isdir(folder):
+        raise OptionError(f"{out}: the folder {folder} does not exist")
+    stat_names = [s.name for s in resolve_stats(stats or DEFAULT_STATS[dim], dim)]
+    plans = _plans(targets, sorted(set(int(n) for n in ns)), reps, dim)
+    desc = {name: w.describe() for name, w in targets}
+    records = []
+    t0 = time.perf_counter()
+
+    def done(plan, assembled):
+        records.append(_cell_record(plan, desc[plan.shape], _assembled_stats(assembled), plan.reps,
+                                    len(plan.chunks())))
+
+    ck, secs = _simulate(out, plans, stat_names, root_seed, jobs, scheduler, progress, done)
+    summary = _finish(out, dim, root_seed, stat_names, records, n_fit, holdout,
+                      {"simulation_seconds": float(secs)})
+    if not keep_parts:
+        ck.remove()
+    summary["seconds"] = time.perf_counter() - t0
+    summary["simulation_seconds"] = secs
+    return summary
+
+
+def _load_records(path):
+    info = open_table(path)
+    records = []
+    for c in info.cells:
+        raw = load_cell(path, c.name)
+        a = raw.get("attrs", {})
+        import json
+        records.append({"name": c.name, "shape": c.shape, "n": c.n, "replicates": c.replicates,
+                        "kappa": c.kappa, "geometry": json.loads(a.get("geometry", "{}")),
+                        "spec": c.spec, "chunk_size": c.chunk_size, "chunks": c.chunks,
+                        "stats": _stored_stats(raw)})
+    stats = __import__("json").loads(info.attrs.get("stats", "[]")) or \
+        sorted({s for c in info.cells for s in c.stats})
+    return info, records, stats
+
+
+def extend_table(path, reps: int, *, targets: list | None = None, ns: list | None = None,
+                 jobs: int = 1, scheduler: str | None = None, progress=None,
+                 n_fit: int | None = None, holdout: str | None = None,
+                 keep_parts: bool = False) -> dict:
+    """Add ``reps`` replicates to every cell (or to the cells of ``targets`` x
+    ``ns``, creating missing ones) and rewrite the table atomically."""
+    if reps < 20:
+        raise OptionError(f"--reps must be at least 20, got {reps}")
+    info, records, stat_names = _load_records(path)
+    dim = info.dimension
+    by = {(r["shape"], r["n"]): r for r in records}
+    if targets is None:
+        from nullatlas.lookup.windows import parse_window
+        groups = {}
+        for r in records:
+            groups.setdefault(r["shape"], (parse_window(r["spec"]), []))[1].append(r["n"])
+        plans = []
+        for shape, (w, nlist) in groups.items():
+            first = {(shape, n): (by[(shape, n)]["chunks"], by[(shape, n)]["chunk_size"]) for n in nlist}
+            plans += _plans([(shape, w)], nlist, reps, dim, first)
+    else:
+        ns = ns or sorted({r["n"] for r in records})
+        first = {k: (r["chunks"], r["chunk_size"]) for k, r in by.items()}
+        plans = _plans(targets, sorted(set(int(n) for n in ns)), reps, dim, first)
+    desc = {}
+    if targets:
+        desc = {name: w.describe() for name, w in targets}
+    t0 = time.perf_counter()
+
+    def done(plan, assembled):
+        new = _assembled_stats(assembled)
+        key = (plan.shape, plan.n)
+        if key in by:
+            r = by[key]
+            r["stats"] = {s: _merge_item(r["stats"][s], new[s], plan.n) if s in r["stats"] else new[s]
+                          for s in new}
+            r["replicates"] += plan.reps
+            r["chunks"] = plan.first_chunk + len(plan.chunks())
+        else:
+            rec = _cell_record(plan, desc.get(plan.shape, {}), new, plan.reps, len(plan.chunks()))
+            records.append(rec)
+            by[key] = rec
+
+    ck, secs = _simulate(path, plans, stat_names, info.root_seed, jobs, scheduler, progress, done)
+    summary = _finish(path, dim, info.root_seed, stat_names, records,
+                      n_fit if n_fit is not None else int(info.attrs.get("model_n_fit", 200)),
+                      holdout if holdout is not None else (info.attrs.get("holdout") or None),
+                      {"simulation_seconds": float(info.attrs.get("simulation_seconds", 0.0)) + secs})
+    if not keep_parts:
+        ck.remove()
+    summary["seconds"] = time.perf_counter() - t0
+    summary["simulation_seconds"] = secs
+    return summary
+
+
+def refit_table(path, *, n_fit: int | None = None, holdout: str | None = None) -> dict:
+    """Recompute n_min and the finite-window model of a table (no simulation)."""
+    info, records, stat_names = _load_records(path)
+    if holdout and holdout not in {r["shape"] for r in records}:
+        raise OptionError(f"--holdout {holdout}: the table has no such shape "
+                          f"(it has {', '.join(info.shapes())})")
+    extra = {k: info.attrs[k] for k in ("simulation_seconds",) if k in info.attrs}
+    return _finish(path, info.dimension, info.root_seed, stat_names, records,
+                   n_fit if n_fit is not None else int(info.attrs.get("model_n_fit", 200)),
+                   holdout if holdout is not None else (info.attrs.get("holdout") or None), extra)

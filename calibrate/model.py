@@ -1,0 +1,145 @@
+"""The finite-window model of the null moments, fitted over the cells of a table.
+
+For an additive summary S (a per-point density, S/n in DESIGN.md's
+notation), at every grid point,
+
+    E[S]      = mu + c * kappa * n^(-1/d) + e * n^(-2/d)
+    n Var[S]  = the same form with its own coefficients,
+
+kappa = |dW| / |W|^((d-1)/d) the window's shape factor (DESIGN.md, "The
+calibration stage").  The boundary term c * kappa * n^(-1/d) is the
+Miles/Donnelly edge effect; for the mean nearest-neighbour distance in 2D
+Donnelly (1978) gives mu = 0.5 (Clark & Evans 1954) and c = 0.0514.
+
+Fit: weighted least squares per grid point over the cells with n >= n_fit,
+weights 1 / SE^2 where SE is the standard error of the cell mean
+(sd / sqrt(R)) or, for n Var, of the sample variance under normality
+(n Var * sqrt(2 / (R - 1)); an approximation, stated).  Stored: the
+coefficients, their standard errors, chi-square and degrees of freedom per
+grid point, and the standardised residuals per cell.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+__all__ = ["design", "wls", "Fit", "fit_model", "predict", "holdout_errors"]
+
+
+def design(n, kappa, d: int) -> np.ndarray:
+    """Design matrix [1, kappa n^(-1/d), n^(-2/d)] (one row per cell)."""
+    n = np.asarray(n, float)
+    kappa = np.asarray(kappa, float)
+    return np.column_stack([np.ones_like(n), kappa * n ** (-1.0 / d), n ** (-2.0 / d)])
+
+
+def wls(X: np.ndarray, y: np.ndarray, se: np.ndarray):
+    """Weighted least squares of every column of ``y`` (cells x k) on ``X``.
+
+    Returns
+    -------
+    coef (k, p), coef_se (k, p), coef_cov (k, p, p), chi2 (k,), resid (cells, k)
+        ``resid`` are the standardised residuals (y - X b) / se.
+    """
+    y = np.atleast_2d(np.asarray(y, float).T).T
+    se = np.atleast_2d(np.asarray(se, float).T).T
+    ncell, k = y.shape
+    p = X.shape[1]
+    coef = np.full((k, p), np.nan)
+    cov = np.full((k, p, p), np.nan)
+    chi2 = np.full(k, np.nan)
+    resid = np.full((ncell, k), np.nan)
+    for j in range(k):
+        s = se[:, j]
+        # cells where the value did not vary at all (e.g. no loops at that radius)
+        # carry no usable weight
+        ok = np.isfinite(y[:, j]) & np.isfinite(s) & (s > 1e-12 * (1.0 + np.abs(y[:, j])))
+        if ok.sum() < p:
+            continue
+        Xw = X[ok] / s[ok, None]
+        yw = y[ok, j] / s[ok]
+        b, *_ = np.linalg.lstsq(Xw, yw, rcond=None)
+        coef[j] = b
+        cov[j] = np.linalg.pinv(Xw.T @ Xw)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            r = (y[:, j] - X @ b) / s
+        resid[:, j] = np.where(ok, r, np.nan)
+        chi2[j] = float(np.sum(r[ok] ** 2))
+    se_coef = np.sqrt(np.clip(np.diagonal(cov, axis1=1, axis2=2), 0, None))
+    return coef, se_coef, cov, chi2, resid
+
+
+@dataclass
+class Fit:
+    """Fitted finite-window model of one statistic (mean and n Var)."""
+
+    dimension: int
+    cells: list
+    mean_coef: np.ndarray
+    mean_se: np.ndarray
+    mean_cov: np.ndarray
+    mean_chi2: np.ndarray
+    var_coef: np.ndarray
+    var_se: np.ndarray
+    var_cov: np.ndarray
+    var_chi2: np.ndarray
+    mean_resid: np.ndarray
+    var_resid: np.ndarray
+    n_fit: int
+
+    @property
+    def dof(self) -> int:
+        return len(self.cells) - self.mean_coef.shape[1]
+
+
+def fit_model(cells: list[dict], d: int, n_fit: int = 200) -> Fit:
+    """Fit one statistic's model.
+
+    Parameters
+    ----------
+    cells : list of dict
+        Each with ``name``, ``n``, ``kappa``, ``mean`` (k,), ``var`` (k,),
+        ``count`` (replicates).
+    d : int
+    n_fit : int
+        Cells with smaller n are left out (higher-order boundary terms).
+    """
+    use = [c for c in cells if c["n"] >= n_fit and c["count"] > 2]
+    if len(use) < 4:
+        raise ValueError(f"the model needs at least 4 cells with n >= {n_fit}, got {len(use)}")
+    n = np.array([c["n"] for c in use], float)
+    X = design(n, [c["kappa"] for c in use], d)
+    R = np.array([c["count"] for c in use], float)
+    mean = np.array([c["mean"] for c in use])
+    var = np.array([c["var"] for c in use])
+    sem = np.sqrt(var / R[:, None])
+    nvar = n[:, None] * var
+    nvar_se = nvar * np.sqrt(2.0 / (R[:, None] - 1.0))
+    mc, ms, mcov, mchi, mres = wls(X, mean, sem)
+    vc, vs, vcov, vchi, vres = wls(X, nvar, nvar_se)
+    return Fit(d, [c["name"] for c in use], mc, ms, mcov, mchi, vc, vs, vcov, vchi, mres, vres,
+               int(n_fit))
+
+
+def predict(fit_coef: np.ndarray, fit_cov: np.ndarray, n, kappa, d: int):
+    """Model value and its standard error at (n, kappa): arrays (k,)."""
+    x = design([n], [kappa], d)[0]
+    val = fit_coef @ x
+    se = np.sqrt(np.clip(np.einsum("i,kij,j->k", x, fit_cov, x), 0, None))
+    return val, se
+
+
+def holdout_errors(fit: Fit, cells: list[dict], d: int) -> np.ndarray:
+    """Prediction errors of held-out cells in standard errors:
+    (mean - model) / sqrt(sem^2 + se_model^2), shape (cells, k)."""
+    out = []
+    for c in cells:
+        val, se = predict(fit.mean_coef, fit.mean_cov, c["n"], c["kappa"], d)
+        sem2 = np.asarray(c["var"], float) / c["count"]
+        mean = np.asarray(c["mean"], float)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            e = (mean - val) / np.sqrt(sem2 + se ** 2)
+        # grid points where the held-out cell did not vary carry no information
+        out.append(np.where(sem2 > 1e-24 * (1.0 + mean ** 2), e, np.nan))
+    return np.array(out)

@@ -1,0 +1,302 @@
+"""Calibration engine: reproducibility (jobs, resume, Dask), the audit, n_min
+and the finite-window model, including the Clark–Evans/Donnelly outside check."""
+import json
+import os
+
+import h5py
+import numpy as np
+import pytest
+
+from nullatlas.calibrate import build, cli, runner, shapes
+from nullatlas.calibrate.assemble import ALPHAS, audit_cell
+from nullatlas.calibrate.model import design, fit_model, holdout_errors, wls
+from nullatlas.calibrate.nmin import n_min_table
+from nullatlas.calibrate.plan import CellPlan, chunk_seed
+from nullatlas.lookup.tablereader import load_cell, open_table
+
+TINY_STATS = ["euler", "total1", "maxpers1", "nnmean"]
+
+
+def _contents(path):
+    """Every dataset and attribute of an HDF5 file except the creation time."""
+    out = {}
+    with h5py.File(path, "r") as fh:
+        def visit(name, obj):
+            for k, v in obj.attrs.items():
+                if k not in ("created", "simulation_seconds"):
+                    out[f"{name}@{k}"] = v
+            if isinstance(obj, h5py.Dataset):
+                out[name] = obj[()]
+        fh.visititems(visit)
+        for k, v in fh.attrs.items():
+            if k not in ("created", "simulation_seconds"):  # timing metadata
+                out[f"@{k}"] = v
+    return out
+
+
+def _same(a, b):
+    assert a.keys() == b.keys()
+    for k in a:
+        x, y = a[k], b[k]
+        if isinstance(x, np.ndarray):
+            assert x.dtype == y.dtype and x.shape == y.shape, k
+            assert np.array_equal(x, y, equal_nan=x.dtype.kind == "f"), k
+        else:
+            assert x == y, k
+
+
+def _tiny(out, jobs=1, reps=40, scheduler=None):
+    return build.build_table(str(out), [("square", shapes.shape_window("square")),
+                                        ("disk", shapes.shape_window("disk"))],
+                             [30, 60], reps, stats=TINY_STATS, root_seed=7, jobs=jobs,
+                             scheduler=scheduler, progress=False, n_fit=10)
+
+
+def test_jobs_do_not_change_the_table(tmp_path):
+    _tiny(tmp_path / "a.h5", jobs=1)
+    _tiny(tmp_path / "b.h5", jobs=2)
+    _same(_contents(tmp_path / "a.h5"), _contents(tmp_path / "b.h5"))
+    info = open_table(tmp_path / "a.h5")
+    assert [(c.shape, c.n, c.replicates) for c in info.cells] == \
+        [("disk", 30, 40), ("disk", 60, 40), ("square", 30, 40), ("square", 60, 40)]
+    assert not os.path.exists(str(tmp_path / "a.h5") + ".parts")   # checkpoints removed
+
+
+def test_interrupted_build_resumes_to_the_same_table(tmp_path, monkeypatch):
+    _tiny(tmp_path / "ref.h5")
+    real = runner.simulate_chunk
+    calls = []
+
+    def dying(*args, **kw):
+        if len(calls) == 2:
+            raise KeyboardInterrupt
+        calls.append(args)
+        return real(*args, **kw)
+
+    monkeypatch.setattr(runner, "simulate_chunk", dying)
+    out = tmp_path / "run.h5"
+    with pytest.raises(KeyboardInterrupt):
+        _tiny(out)
+    assert not out.exists()                                    # nothing half-written
+    parts = os.listdir(str(out) + ".parts")
+    assert len(parts) == 2                                     # two chunks checkpointed
+    calls.clear()
+    monkeypatch.setattr(runner, "simulate_chunk", lambda *a, **k: (calls.append(a), real(*a, **k))[1])
+    _tiny(out)
+    assert len(calls) == 4 - 2                                 # only the missing chunks ran
+    _same(_contents(tmp_path / "ref.h5"), _contents(out))
+
+
+def test_checkpoint_of_another_run_is_refused(tmp_path):
+    out = tmp_path / "t.h5"
+    ck = runner.Checkpoints(str(out) + ".parts", 99, TINY_STATS)   # other seed
+    plan = CellPlan(2, "square", 30, shapes.shape_window("square").spec(), 4.0, 40)
+    ck.save(plan, 0, 40, {s: np.zeros((40, 1)) for s in TINY_STATS})
+    with pytest.raises(ValueError, match="checkpoint of another run"):
+        _tiny(out)
+
+
+def test_dask_cluster_gives_the_joblib_table(tmp_path):
+    distributed = pytest.importorskip("distributed")
+    _tiny(tmp_path / "joblib.h5", jobs=2)
+    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
+                                  dashboard_address=None) as cluster:
+        _tiny(tmp_path / "dask.h5", scheduler=cluster.scheduler_address)
+    _same(_contents(tmp_path / "joblib.h5"), _contents(tmp_path / "dask.h5"))
+
+
+def test_extend_merges_moments_exactly(tmp_path):
+    """Extending by R2 replicates gives the moments of all R1 + R2 replicates,
+    the new ones drawn from chunk indices never used before."""
+    out = tmp_path / "t.h5"
+    _tiny(out, reps=40)
+    build.extend_table(str(out), 30, jobs=1, progress=False)
+    info = open_table(out)
+    assert {c.replicates for c in info.cells} == {70}
+    cell = [c for c in info.cells if c.shape == "square" and c.n == 30][0]
+    raw = load_cell(out, cell.name)
+    p = CellPlan(2, "square", 30, shapes.shape_window("square").spec(), 4.0, 70)
+    first = runner.simulate_chunk(p.spec, 30, TINY_STATS, 7, 2, "square", 0, 40)
+    second = runner.simulate_chunk(p.spec, 30, TINY_STATS, 7, 2, "square", 1, 30)
+    allv = np.concatenate([first["total1"], second["total1"]])[:, 0]
+    assert int(raw["total1"]["count"]) == 70
+    assert np.isclose(float(raw["total1"]["mean"][0]), allv.mean(), rtol=1e-12)
+    assert np.isclose(float(raw["total1"]["m2"][0, 0]), np.sum((allv - allv.mean()) ** 2),
+                      rtol=1e-10)
+    ext = np.concatenate([first["maxpers1"], second["maxpers1"]])[:, 0]
+    np.testing.assert_array_equal(raw["maxpers1"]["values"], np.sort(ext).astype(np.float32))
+
+
+def test_chunk_seeds_are_spawn_children():
+    ss = np.random.SeedSequence(5, spawn_key=(2, 1, 3))
+    kids = ss.spawn(4)
+    from nullatlas.calibrate import plan
+    base = plan.cell_seed(5, 2, "x", 3)
+    mine = chunk_seed(5, 2, "x", 3, 3)
+    assert mine.spawn_key == base.spawn_key + (3,)
+    assert base.spawn(4)[3].generate_state(4).tolist() == mine.generate_state(4).tolist()
+    assert kids[0].spawn_key == (2, 1, 3, 0)
+
+
+# ---------------------------------------------------------------- audit / n_min
+
+def test_audit_of_normal_and_skewed_statistics():
+    rng = np.random.default_rng(0)
+    R = 6000
+    a = audit_cell("scalar", rng.standard_normal((R, 1)) * 3 + 1, rng)
+    # exactly normal: every rate within 4 binomial SE of nominal
+    for kind, target in (("lower", ALPHAS / 2), ("upper", ALPHAS / 2), ("two_sided", ALPHAS)):
+        se = np.sqrt(target * (1 - target) / R)
+        assert np.all(np.abs(a[kind] - target) < 4 * se + 0.002), kind
+    assert a["ks"] < 0.03
+    b = audit_cell("scalar", rng.exponential(size=(R, 1)), rng)
+    # skewed to the right: lower tail empty, upper tail too heavy at 0.01
+    assert b["lower"][1] < 0.005 and b["upper"][0] > 0.015 and b["ks"] > 0.1
+    g = audit_cell("extreme", rng.gumbel(size=(R, 1)), rng)
+    assert abs(g["upper"][1] - 0.05) < 0.012 and g["ks_gumbel"] < 0.03
+
+
+def test_audit_of_correlated_gaussian_curves():
+    rng = np.random.default_rng(1)
+    k, R = 30, 4000
+    idx = np.arange(k)
+    C = 0.9 ** np.abs(idx[:, None] - idx[None, :])
+    x = rng.standard_normal((R, k)) @ np.linalg.cholesky(C).T * (1 + idx) + idx
+    a = audit_cell("curve", x, rng)
+    assert abs(a["maxabs"][1] - 0.05) < 0.015 and abs(a["mahalanobis"][1] - 0.05) < 0.015
+    # a curve whose null is wrong (heavy tails) is caught by the max |z| test
+    y = rng.standard_t(2, size=(R, k))
+    assert audit_cell("curve", y, rng)["maxabs"][1] < 0.03 or \
+        audit_cell("curve", y, rng)["maxabs"][1] > 0.07
+
+
+def test_n_min_needs_every_larger_cell_to_pass():
+    good = {"n": 5000, "lower": np.array([0, 0.025, 0]), "upper": np.array([0, 0.026, 0]),
+            "two_sided": np.array([0, 0.051, 0])}
+    bad_low = dict(good, lower=np.array([0, 0.012, 0]))
+    cells = [{"shape": "s", "n": n, "audit": {"t": a}}
+             for n, a in ((50, good), (100, bad_low), (200, good), (400, good))]
+    tests, v = n_min_table(cells, {"t": "scalar"})["s"]["t"]
+    d = dict(zip(tests, v.tolist()))
+    assert d == {"lower": 200, "upper": 50, "two_sided": 50}
+    cells[-1]["audit"]["t"] = bad_low
+    assert dict(zip(*n_min_table(cells, {"t": "scalar"})["s"]["t"]))["lower"] == -1
+
+
+# ---------------------------------------------------------------- model
+
+def test_model_recovers_known_coefficients():
+    rng = np.random.default_rng(2)
+    mu, c, e = np.array([0.3, -1.0]), np.array([0.07, 0.2]), np.array([-0.4, 1.5])
+    cells = []
+    for kappa in (4.0, 3.5449, 5.0):
+        for n in (100, 200, 500, 1000, 5000, 20000):
+            sd = np.array([0.01, 0.05]) / np.sqrt(n) * 5
+            R = 3000
+            true = mu + c * kappa / np.sqrt(n) + e / n
+            cells.append({"name": f"{kappa}-{n}", "n": n, "kappa": kappa, "count": R,
+                          "mean": true + rng.standard_normal(2) * sd / np.sqrt(R),
+                          "var": sd ** 2 * (1 + rng.standard_normal(2) * np.sqrt(2 / R))})
+    f = fit_model(cells, 2, n_fit=100)
+    for j in range(2):
+        for i, truth in enumerate((mu[j], c[j], e[j])):
+            assert abs(f.mean_coef[j, i] - truth) < 4 * f.mean_se[j, i], (j, i)
+    assert np.all(f.mean_chi2 / f.dof < 2.5)
+    err = holdout_errors(f, cells[:3], 2)
+    assert np.all(np.abs(err) < 4)
+    # a wrong model (no boundary term) is rejected by its chi-square
+    X = design([cl["n"] for cl in cells], [cl["kappa"] for cl in cells], 2)[:, [0, 2]]
+    y = np.array([cl["mean"] for cl in cells])
+    se = np.sqrt(np.array([cl["var"] for cl in cells]) / 3000)
+    chi2 = wls(X, y, se)[3]
+    assert np.all(chi2 / (len(cells) - 2) > 10)
+
+
+def test_mean_nn_distance_recovers_clark_evans_and_donnelly(tmp_path):
+    """Outside check of the finite-window model on real simulations.
+
+    Clark & Evans (Ecology 35, 1954): mean nearest-neighbour distance
+    0.5 / sqrt(lambda), i.e. mu = 0.5 in normalised units.  Donnelly (1978,
+    in *Simulation Methods in Archaeology*; from memory, hence 4 SE):
+    boundary coefficient c = 0.0514 of kappa n^(-1/2)."""
+    targets = [(s, shapes.shape_window(s)) for s in ("square", "rect4", "disk")]
+    s = build.build_table(str(tmp_path / "nn.h5"), targets, [100, 200, 400, 800, 1600], 600,
+                          stats=["nnmean"], root_seed=3, jobs=2, progress=False, n_fit=100)
+    m = s["model"]["nnmean"]
+    assert abs(m["mu"] - 0.5) < 4 * m["mu_se"] + 1e-4
+    assert abs(m["c"] - 0.0514) < 4 * m["c_se"]
+    assert m["c_se"] < 0.01 and m["chi2"] / m["dof"] < 3
+
+
+# ---------------------------------------------------------------- CLI
+
+def test_cli_build_fit_and_tables(tmp_path, capsys):
+    out = tmp_path / "c.h5"
+    rc = cli.main(["build", "--shape", "square,rect4", "--n", "30,60,120,240", "--reps", "30",
+                   "--out", str(out), "--stat", "nnmean,total0", "--no-progress", "--json",
+                   "--n-fit", "30", "--seed", "4"])
+    assert rc == 0
+    s = json.loads(capsys.readouterr().out)
+    assert s["cells"] == 8 and s["replicates"] == 240 and "nnmean" in s["model"]
+    assert set(s["n_min"]) == {"square", "rect4"}
+    rc = cli.main(["fit", str(out), "--holdout", "rect4", "--json"])
+    s2 = json.loads(capsys.readouterr().out)
+    assert rc == 0 and "holdout_rect4" in s2["model"]["nnmean"]
+    from nullatlas.lookup import cli as lcli
+    assert lcli.main(["tables", str(out), "--json"]) == 0
+    t = json.loads(capsys.readouterr().out)["tables"][0]
+    assert t["dimension"] == 2 and [c["n"] for c in t["shapes"]["square"]["cells"]] == [30, 60, 120, 240]
+    assert "two_sided" in t["shapes"]["rect4"]["n_min"]["nnmean"]
+
+
+@pytest.mark.parametrize("argv,frag", [
+    (["build", "--shape", "hexagon", "--n", "50", "--reps", "30", "--out", "X"], "unknown shape"),
+    (["build", "--shape", "square,cube", "--n", "50", "--reps", "30", "--out", "X"],
+     "same dimension"),
+    (["build", "--shape", "square", "--n", "50", "--reps", "5", "--out", "X"], "at least 20"),
+    (["build", "--shape", "square", "--n", "5", "--reps", "30", "--out", "X"], "at least 10"),
+    (["build", "--shape", "square", "--n", "50", "--reps", "30", "--out", "X", "--jobs", "-1"],
+     "--jobs"),
+    (["build", "--window", "bbox", "--n", "50", "--reps", "30", "--out", "X"], "window"),
+    (["build", "--shape", "square", "--n", "50", "--reps", "30", "--out", "nofolder/X.h5"],
+     "does not exist"),
+    (["extend", "missing.h5", "--reps", "30"], "no such table"),
+    (["fit", "missing.h5"], "no such table"),
+    (["build", "--shape", "square", "--n", "5x", "--reps", "30", "--out", "X"], "integers"),
+])
+def test_cli_bad_input_is_one_line(tmp_path, monkeypatch, capsys, argv, frag):
+    monkeypatch.chdir(tmp_path)
+    with pytest.raises(SystemExit) if frag == "integers" else _noraise():
+        rc = cli.main(argv)
+        assert rc == 2
+    err = capsys.readouterr().err
+    assert frag in err and err.count("\n") == 1 and "Traceback" not in err
+    assert os.listdir(tmp_path) == []
+
+
+class _noraise:
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc):
+        return False
+
+
+def test_cli_build_refuses_existing_output(tmp_path, capsys):
+    out = tmp_path / "t.h5"
+    out.write_bytes(b"keep me")
+    rc = cli.main(["build", "--shape", "square", "--n", "50", "--reps", "30", "--out", str(out)])
+    assert rc == 2 and "exists" in capsys.readouterr().err
+    assert out.read_bytes() == b"keep me"
+
+
+def test_user_window_normalisation_is_invariant():
+    from nullatlas.lookup.windows import parse_window
+    a = shapes.normalise(parse_window("polygon:POLYGON((0 0, 4 0, 5 2, 1 3, 0 0))"))
+    b = shapes.normalise(parse_window("polygon:POLYGON((10 10, 10 18, 6 20, 4 12, 10 10))"))
+    assert a[0] == b[0] and abs(a[1].measure - 1) < 1e-9          # rotated and scaled copy
+    assert shapes.normalise(parse_window("rect:3,4,5,12"))[0] == "rect4"
+    assert shapes.normalise(parse_window("disk:100,7,3"))[0] == "disk"
+    assert shapes.normalise(parse_window("box:0,0,0,2,2,8"))[0] == "box114"
+    name, w = shapes.normalise(parse_window("rect:0,0,3,1"))
+    assert name == "rect-1x3" and abs(w.measure - 1) < 1e-12
