@@ -300,3 +300,24 @@ def test_user_window_normalisation_is_invariant():
     assert shapes.normalise(parse_window("box:0,0,0,2,2,8"))[0] == "box114"
     name, w = shapes.normalise(parse_window("rect:0,0,3,1"))
     assert name == "rect-1x3" and abs(w.measure - 1) < 1e-12
+
+
+def test_cli_builds_a_users_polygon_and_extends_it(tmp_path, capsys):
+    """A user's own window: an L-shaped polygon, normalised, built, extended."""
+    poly = tmp_path / "lshape.wkt"
+    poly.write_text("POLYGON((0 0, 30 0, 30 10, 10 10, 10 30, 0 30, 0 0))")
+    out = tmp_path / "mine.h5"
+    assert cli.main(["build", "--window", str(poly), "--n", "40,80", "--reps", "24",
+                     "--out", str(out), "--stat", "euler,nnmean", "--json", "--n-fit", "10"]) == 0
+    s = json.loads(capsys.readouterr().out)
+    info = open_table(out)
+    shape = info.cells[0].shape
+    assert shape.startswith("polygon-") and s["cells"] == 2
+    from nullatlas.lookup.windows import parse_window
+    w = parse_window(info.cells[0].spec)
+    assert abs(w.measure - 1.0) < 1e-9 and abs(w.kappa - parse_window(str(poly)).kappa) < 1e-9
+    assert cli.main(["extend", str(out), "--reps", "20", "--window", str(poly), "--n", "40",
+                     "--json"]) == 0
+    capsys.readouterr()
+    reps = {c.n: c.replicates for c in open_table(out).cells}
+    assert reps == {40: 44, 80: 24}

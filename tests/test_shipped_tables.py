@@ -1,0 +1,149 @@
+"""The shipped null tables: coverage, contents the runtime needs, audit and
+n_min fields, and outside checks of their finite-window model."""
+import json
+import math
+import os
+
+import numpy as np
+import pytest
+
+from nullatlas.calibrate.nmin import TESTS
+from nullatlas.calibrate.plan import DEFAULT_STATS
+from nullatlas.calibrate.shapes import SHIPPED
+from nullatlas.lookup import grids
+from nullatlas.lookup.statistics import STATISTICS
+from nullatlas.lookup.tablereader import load_cell, load_holdout, load_model, open_table, shipped_tables
+
+TABLES = shipped_tables()
+LARGEST = {2: 100_000, 3: 20_000}
+
+
+@pytest.fixture(scope="module", params=[2, 3])
+def table(request):
+    d = request.param
+    assert d in TABLES, f"the {d}D table is not shipped (run scripts/make_tables.py)"
+    return d, TABLES[d], open_table(TABLES[d], dimension=d)
+
+
+def test_coverage_and_replicates(table):
+    d, path, info = table
+    assert info.shapes() == sorted(SHIPPED[d]) or set(info.shapes()) == set(SHIPPED[d])
+    for shape in SHIPPED[d]:
+        ns = sorted(c.n for c in info.cells if c.shape == shape)
+        assert ns[0] == 50 and ns[-1] >= LARGEST[d], (shape, ns)
+        assert max(b / a for a, b in zip(ns, ns[1:])) <= 2.5        # roughly doubling
+        for c in info.cells:
+            if c.shape == shape:
+                need = 5000 if (d == 2 and c.n <= 10_000) else 2000
+                assert c.replicates >= need, (c.name, c.replicates)
+
+
+def test_small_files():
+    total = sum(os.path.getsize(p) for p in TABLES.values())
+    assert total < 12e6, total
+
+
+def test_every_cell_has_what_the_runtime_needs(table):
+    d, path, info = table
+    for c in info.cells:
+        assert set(DEFAULT_STATS[d]) <= set(c.stats), c.name
+        raw = load_cell(path, c.name)
+        for s in DEFAULT_STATS[d]:
+            st, item = STATISTICS[s], raw[s]
+            k = 1 if st.kind != "curve" else len(st.grid)
+            assert item["mean"].shape == (k,) and item["m2"].shape == (k, k)
+            assert int(item["count"]) == c.replicates - int(item["attrs"]["nonfinite"])
+            assert int(item["attrs"]["nonfinite"]) <= 0.01 * c.replicates
+            sd = np.sqrt(np.diag(item["m2"]) / (int(item["count"]) - 1))
+            assert np.all(np.isfinite(item["mean"])) and np.all(np.isfinite(sd))
+            a = item["audit"]
+            assert int(a["n"]) >= 0.98 * int(item["count"])
+            want = {"scalar": ["ks", "lower", "upper", "two_sided"],
+                    "extreme": ["ks", "ks_gumbel", "upper"],
+                    "curve": ["maxabs", "mahalanobis", "point_lower", "point_upper"]}[st.kind]
+            for key in want:
+                assert key in a and np.all(np.isfinite(a[key])), (c.name, s, key)
+            if st.kind == "extreme":
+                assert len(item["values"]) == int(item["count"])
+                assert np.all(np.diff(item["values"]) >= 0)
+            if st.kind == "scalar":
+                assert np.all(np.diff(item["quantiles"]) >= 0)
+            if s.startswith("betti"):
+                np.testing.assert_allclose(item["expected_count"], c.n * item["mean"])
+
+
+def test_n_min_recorded_for_every_shape_and_statistic(table):
+    d, path, info = table
+    ns = {c.n for c in info.cells}
+    for shape in SHIPPED[d]:
+        for s in DEFAULT_STATS[d]:
+            got = info.n_min(shape, s)
+            assert set(got) == set(TESTS[STATISTICS[s].kind]), (shape, s)
+            assert all(v is None or v in ns for v in got.values())
+
+
+def test_normal_statistics_are_trusted_somewhere(table):
+    """Total H0 persistence is a sum of many weakly dependent terms: its
+    two-sided asymptotic test must hold from some calibrated n on in every
+    shape (a check that the audit is not simply failing everything)."""
+    d, path, info = table
+    for shape in SHIPPED[d]:
+        assert info.n_min(shape, "total0")["two_sided"] is not None, shape
+
+
+def test_euler_limit_matches_miles_formula(table):
+    """The model's n -> infinity limit of the Euler curve per point against
+    the Boolean-model formula (Miles; Chiu, Stoyan, Kendall & Mecke 2013):
+    2D exp(-eta)(1 - eta), eta = pi rho^2;
+    3D exp(-eta)(1 - 3 eta + (3 pi^2 / 32) eta^2), eta = 4/3 pi rho^3."""
+    d, path, info = table
+    m = load_model(path)["euler"]
+    mu, se = m["mean_coef"][:, 0], m["mean_se"][:, 0]
+    rho = grids.RHO
+    if d == 2:
+        eta = math.pi * rho ** 2
+        miles = np.exp(-eta) * (1 - eta)
+    else:
+        eta = 4 / 3 * math.pi * rho ** 3
+        miles = np.exp(-eta) * (1 - 3 * eta + 3 * math.pi ** 2 / 32 * eta ** 2)
+    z = (mu - miles) / np.maximum(se, 1e-12)
+    ok = np.isfinite(z)
+    assert ok.sum() > 40
+    # the model is fitted, not exact: most grid points within 3 SE, all within
+    # 0.005 absolute (a per-point Euler characteristic is O(1))
+    assert np.mean(np.abs(z[ok]) < 3) > 0.8, np.round(z, 1)
+    assert np.max(np.abs(mu - miles)) < 0.005
+
+
+def test_nn_distance_model_recovers_clark_evans_and_donnelly():
+    """2D mean nearest-neighbour distance, normalised: Clark & Evans (1954)
+    mu = 0.5; Donnelly (1978; from memory) boundary coefficient c = 0.0514.
+    Donnelly's value came from simulations of his time, hence a tolerance of
+    4 fit SE or 0.002, whichever is larger."""
+    m = load_model(TABLES[2])["nnmean"]
+    mu, c = m["mean_coef"][0, :2]
+    se_mu, se_c = m["mean_se"][0, :2]
+    assert abs(mu - 0.5) < max(4 * se_mu, 1e-4)
+    assert abs(c - 0.0514) < max(4 * se_c, 0.002)
+
+
+def test_disk_is_held_out_and_predicted():
+    """Second copy of the 2D model fitted without the disk: its cells' means
+    are predicted within a few standard errors for the additive summaries."""
+    h = load_holdout(TABLES[2])["disk"]
+    for s in ("euler", "total0", "nnmean", "apf0"):
+        err = np.asarray(h[s]["errors"], float)
+        err = err[np.isfinite(err)]
+        assert err.size > 0
+        assert np.sqrt(np.mean(err ** 2)) < 3.0, (s, np.sqrt(np.mean(err ** 2)))
+    assert json.loads(h["euler"]["attrs"]["heldout_cells"])
+
+
+def test_tables_command_lists_the_shipped_tables(capsys):
+    from nullatlas.lookup import cli
+    assert cli.main(["tables", "--json"]) == 0
+    t = json.loads(capsys.readouterr().out)["tables"]
+    assert sorted(x["dimension"] for x in t) == [2, 3]
+    for x in t:
+        for shape, sh in x["shapes"].items():
+            assert sh["n_min"] and sh["cells"]
