@@ -14,6 +14,7 @@ import numpy as np
 from scipy import stats as _st
 
 from nullatlas.lookup import globaltests as gt
+from nullatlas.lookup.extremes import GumbelTail
 from nullatlas.lookup.statistics import STATISTICS
 
 from .moments import Moments
@@ -66,7 +67,11 @@ def assemble_cell(n: int, data: dict, rng: np.random.Generator) -> dict:
                 np.full(len(QUANTILE_LEVELS), np.nan)
         if name.startswith("betti"):
             cd["expected_count"] = n * cd["moments"].mean
-        cd["audit"] = audit_cell(st.kind, x, rng)
+        if st.kind == "curve":
+            m = cd["moments"]
+            cd["usable"] = gt.usable_coordinates(m.mean, m.sd, m.skewness, n,
+                                                 name.startswith("betti")).astype(np.int8)
+        cd["audit"] = audit_cell(st.kind, x, rng, n=n, count_based=name.startswith("betti"))
         out[name] = cd
     return out
 
@@ -88,7 +93,8 @@ def _tails(z: np.ndarray) -> dict:
     return {"lower": lower, "upper": upper, "two_sided": lower + upper}
 
 
-def audit_cell(kind: str, x: np.ndarray, rng: np.random.Generator) -> dict:
+def audit_cell(kind: str, x: np.ndarray, rng: np.random.Generator, n: int = 0,
+               count_based: bool = False) -> dict:
     """Cross-fitted audit of the asymptotic tests of one statistic in one cell.
 
     Scalars: z = (x - mean') / sd' with the other fold's mean' and sd';
@@ -96,18 +102,22 @@ def audit_cell(kind: str, x: np.ndarray, rng: np.random.Generator) -> dict:
     rates of the lower tail, the upper tail (each at alpha/2) and the
     two-sided test at alpha, for alpha in ALPHAS.
 
-    Extremes: Gumbel fitted to the other fold (``scipy.stats.gumbel_r``);
-    rejection rate of the upper-tail Gumbel test at ALPHAS, and KS distances
-    of z to N(0, 1) and of the Gumbel probability transform to U(0, 1).
+    Extremes: the runtime's test, the other fold's values as the empirical
+    null with a Gumbel tail (``lookup.extremes.GumbelTail``): its upper-tail
+    rejection rate at ALPHAS; KS distances of z to N(0, 1) and of the
+    Gumbel probability transform (Gumbel fitted to the other fold) to U(0, 1).
 
     Curves: pointwise tail rates at 0.05 per grid point and the sizes at
     ALPHAS of the global max |z| test (critical values from GAUSS_SIMS
     Gaussian vectors with the other fold's correlation) and of the
-    regularised Mahalanobis test (``lookup.globaltests``).
+    regularised Mahalanobis test (``lookup.globaltests``), both over the
+    grid points usable in the other fold (``usable_coordinates``, with the
+    cell's ``n``; ``count_based`` for Betti curves).  No usable grid point:
+    no global rates (the global test is never trusted there).
     """
     a, b = _folds(x)
     res = {"n": np.int64(len(a) + len(b))}
-    if len(a) < 10 or len(b) < 10:
+    if len(a) < 20 or len(b) < 20:      # too few for an audit (and a Gumbel tail)
         res["n"] = np.int64(0)
         return res
     zs, extra = [], []
@@ -115,7 +125,8 @@ def audit_cell(kind: str, x: np.ndarray, rng: np.random.Generator) -> dict:
         m, sd = train.mean(axis=0), train.std(axis=0, ddof=1)
         valid = gt.valid_coordinates(sd, m)
         if kind == "curve":
-            extra.append((test, train, m, sd, valid))
+            skew = gt.skewness(train)
+            extra.append((test, train, m, sd, gt.usable_coordinates(m, sd, skew, n, count_based)))
         with np.errstate(divide="ignore", invalid="ignore"):
             zs.append(np.where(valid, (test - m) / np.where(valid, sd, 1.0), 0.0))
     z = np.concatenate(zs)
@@ -125,21 +136,22 @@ def audit_cell(kind: str, x: np.ndarray, rng: np.random.Generator) -> dict:
         if kind == "scalar":
             res.update(_tails(z1))
         else:
-            u, rej = [], []
+            u, p = [], []
             for test, train in ((a, b), (b, a)):
-                loc, scale = _st.gumbel_r.fit(train[:, 0])
-                u.append(_st.gumbel_r.cdf(test[:, 0], loc, scale))
-            u = np.concatenate(u)
+                tail = GumbelTail(train[:, 0])
+                u.append(_st.gumbel_r.cdf(test[:, 0], tail.loc, tail.scale))
+                p.append(tail.pvalue(test[:, 0]))
+            u, p = np.concatenate(u), np.concatenate(p)
             res["ks_gumbel"] = np.float64(_st.kstest(u, "uniform").statistic)
-            res["upper"] = np.array([np.mean(1.0 - u <= al) for al in ALPHAS])
+            res["upper"] = np.array([np.mean(p <= al) for al in ALPHAS])
         return res
     # curves
     c05 = _st.norm.isf(0.025)
     res["point_lower"] = np.mean(z < -c05, axis=0)
     res["point_upper"] = np.mean(z > c05, axis=0)
     pmax, pmah = [], []
-    for (test, train, m, sd, valid), zf in zip(extra, zs):
-        both = valid
+    for (test, train, m, sd, use), zf in zip(extra, zs):
+        both = use
         if both.sum() == 0:
             continue
         cov = np.cov(train[:, both].T).reshape(both.sum(), both.sum())
@@ -148,7 +160,7 @@ def audit_cell(kind: str, x: np.ndarray, rng: np.random.Generator) -> dict:
         pmax.append(gt.maxabs_pvalue(np.abs(zf[:, both]).max(axis=1), null))
         sp = gt.spectral(corr)
         pmah.append(gt.mahalanobis_pvalue(sp.statistic(zf[:, both]), sp.rank))
-    if pmax:
+    if len(pmax) == 2:
         pmax, pmah = np.concatenate(pmax), np.concatenate(pmah)
         res["maxabs"] = np.array([np.mean(pmax <= al) for al in ALPHAS])
         res["mahalanobis"] = np.array([np.mean(pmah <= al) for al in ALPHAS])

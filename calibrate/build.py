@@ -76,7 +76,7 @@ def _stored_stats(raw: dict) -> dict:
             continue
         item = {"moments": Moments.from_arrays(d), "kind": d.get("attrs", {}).get("kind", ""),
                 "nonfinite": int(d.get("attrs", {}).get("nonfinite", 0))}
-        for key in ("values", "quantiles", "expected_count"):
+        for key in ("values", "quantiles", "expected_count", "usable"):
             if key in d:
                 item[key] = d[key]
         if "audit" in d:
@@ -102,6 +102,10 @@ def _merge_item(old: dict, new: dict, n: int) -> dict:
                              ) / max(wo + wn, 1)
     if "expected_count" in new:
         item["expected_count"] = n * m.mean
+    if "usable" in new:
+        from nullatlas.lookup.globaltests import usable_coordinates
+        item["usable"] = usable_coordinates(m.mean, m.sd, m.skewness, n,
+                                            "expected_count" in new).astype(np.int8)
     ao, an = old.get("audit", {}), new.get("audit", {})
     no, nn = int(ao.get("n", 0)), int(an.get("n", 0))
     audit = {"n": np.int64(no + nn)}

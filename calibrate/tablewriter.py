@@ -59,7 +59,7 @@ def _write_stat(g, sname, item):
     if "kind" in item:
         sg.attrs["kind"] = str(item["kind"])
     sg.attrs["nonfinite"] = int(item.get("nonfinite", 0))
-    for key in ("values", "quantiles", "expected_count"):
+    for key in ("values", "quantiles", "expected_count", "usable"):
         if key in item:
             _put(sg, key, item[key], compress=True)
     if "audit" in item:

@@ -15,6 +15,8 @@ Layout, schema version 1 (written by ``calibrate.tablewriter``):
     /cells/<cell>/<stat>/values          sorted null values (extreme statistics)
     /cells/<cell>/<stat>/quantiles       quantiles at /grids/quantile_levels (scalars)
     /cells/<cell>/<stat>/expected_count  n E[beta_q(rho)] (Betti curves)
+    /cells/<cell>/<stat>/usable          grid points used by the global curve tests
+                                         (``globaltests.usable_coordinates``)
     /cells/<cell>/<stat>/audit/*         cross-fitted audit (``calibrate.assemble``)
     /nmin/<shape>/<stat>                 n_min per test (attrs tests: JSON list);
                                          -1: no calibrated n is large enough
