@@ -11,9 +11,16 @@ tolerance *in every larger calibrated cell of that shape*:
   0.05 +- 0.01;
 * curves: the global ``maxabs`` and ``mahalanobis`` tests within 0.05 +- 0.01.
 
--1 means that not even the largest calibrated n passes.
+A cell is out of tolerance when its audited rate lies outside
+target +- tolerance by more than two binomial standard errors of the audit,
+sqrt(target (1 - target) / N) with N audited replicates (about 0.005 for a
+two-sided size at N = 2,000, 0.003 at N = 5,000): audit noise alone then
+rarely fails a good cell, while a size clearly outside the band still fails
+it.  -1 means that not even the largest calibrated n passes.
 """
 from __future__ import annotations
+
+import math
 
 import numpy as np
 
@@ -35,7 +42,8 @@ def passes(kind: str, test: str, audit: dict) -> bool:
         return False
     target, tol = TOLERANCE[(kind, test)]
     rate = float(np.asarray(audit[test])[_I05])
-    return abs(rate - target) <= tol + 1e-12
+    se = math.sqrt(target * (1 - target) / int(audit["n"]))
+    return abs(rate - target) <= tol + 2.0 * se + 1e-12
 
 
 def n_min_table(cells: list[dict], kinds: dict) -> dict:

@@ -49,23 +49,37 @@ def _write_stat(g, sname, item):
     if not isinstance(m, Moments):
         raise TypeError(f"statistic {sname}: expected Moments")
     arrays = m.as_arrays()
-    for part, arr in arrays.items():
+    sg.attrs["count"] = np.int64(arrays["count"])
+    for part in ("mean", "m2", "m3"):
+        arr = arrays[part]
         if part == "m2" and np.ndim(arr) == 2 and arr.shape[0] > 1:
-            # scatter matrices of curves: float32 is ample for a covariance and
-            # halves the file
-            _put(sg, part, np.asarray(arr, dtype=np.float32), compress=True)
+            # scatter matrices of curves: the upper triangle (row-major, see
+            # lookup.tablereader.unpack_symmetric) in float32 -- ample for a
+            # covariance and a quarter of the full float64 matrix
+            k = arr.shape[0]
+            _put(sg, part, np.asarray(arr[np.triu_indices(k)], dtype=np.float32), compress=True)
+            sg[part].attrs["packed_upper"] = np.int64(k)
         else:
             _put(sg, part, arr)
     if "kind" in item:
         sg.attrs["kind"] = str(item["kind"])
     sg.attrs["nonfinite"] = int(item.get("nonfinite", 0))
-    for key in ("values", "quantiles", "expected_count", "usable"):
+    for key in ("values", "quantiles", "expected_count"):
         if key in item:
             _put(sg, key, item[key], compress=True)
+    if "usable" in item:
+        sg.attrs["usable"] = np.asarray(item["usable"], dtype=np.int8)
     if "audit" in item:
+        # small audit arrays are attributes of the audit group (an HDF5
+        # dataset costs about a kilobyte of headers); pointwise rates are
+        # datasets
         ag = sg.create_group("audit")
         for k, v in item["audit"].items():
-            _put(ag, k, v)
+            v = np.asarray(v)
+            if v.size <= 8:
+                ag.attrs[k] = v
+            else:
+                _put(ag, k, v.astype(np.float32), compress=True)
 
 
 def _write_fit(g, fit, extra=None):
@@ -109,7 +123,7 @@ def write_table(path, *, dimension: int, root_seed: int, grids: dict, cells: lis
     import h5py
 
     with atomic_path(path) as tmp:
-        with h5py.File(tmp, "w") as fh:
+        with h5py.File(tmp, "w", libver=("v110", "latest")) as fh:
             fh.attrs["schema"] = SCHEMA
             fh.attrs["schema_version"] = SCHEMA_VERSION
             fh.attrs["created"] = datetime.now(timezone.utc).isoformat(timespec="seconds")

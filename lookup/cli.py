@@ -58,12 +58,16 @@ def build_parser() -> argparse.ArgumentParser:
     t.add_argument("--stat", action="append", metavar="NAME",
                    help="statistic to test (repeat or comma-separate); the first is the primary "
                    "test, the rest are secondary and unadjusted. Default: euler, then "
-                   "total0,total1[,total2],maxpers1,nnmean,lfunc. See 'nullatlas stats'")
-    t.add_argument("--method", default="mc", choices=["mc"],
-                   help="how p-values are computed: mc = Monte Carlo simulation of the null "
-                   "(default: mc)")
+                   "total0,total1[,total2],maxpers1 (2D) or maxpers2 (3D),nnmean,lfunc. See 'nullatlas stats'")
+    t.add_argument("--method", default="auto", choices=["auto", "asymptotic", "mc"],
+                   help="how p-values are computed: auto = instant test from the null tables "
+                   "where it is trusted, Monte Carlo where it is not (default); asymptotic = "
+                   "always the instant test, untrusted results flagged; mc = always Monte Carlo")
+    t.add_argument("--table", action="append", metavar="FILE",
+                   help="your own null table (nullatlas-calibrate build); takes precedence over "
+                   "the shipped tables for its window (repeatable)")
     t.add_argument("--sims", type=_int, default=999, metavar="M",
-                   help="number of null simulations (default: 999)")
+                   help="number of null simulations of the Monte Carlo route (default: 999)")
     t.add_argument("--seed", type=_int, default=None, metavar="S",
                    help="root random seed (default: fresh; the seed used is reported)")
     t.add_argument("--jobs", "-j", type=_int, default=1, metavar="N",
@@ -109,7 +113,7 @@ def build_parser() -> argparse.ArgumentParser:
 def _fmt(v, width=10):
     if v is None or (isinstance(v, float) and not np.isfinite(v)):
         return "-".rjust(width)
-    return f"{v:.4g}".rjust(width)
+    return (" " + f"{v:.4g}").rjust(width)
 
 
 def _print_table(res, alpha, out=None):
@@ -126,16 +130,23 @@ def _print_table(res, alpha, out=None):
     out.write(head + "\n" + "-" * len(head) + "\n")
     for r in res.results:
         name = r.name + ("*" if r.primary else "")
+        flag = "" if r.trusted else "  UNTRUSTED"
         out.write(f"{name:<12}{r.kind:<9}{_fmt(r.observed)}{_fmt(r.null_mean, 11)}"
-                  f"{_fmt(r.null_sd)}{_fmt(r.z, 8)}{_fmt(r.pvalue)}  {r.method}\n")
+                  f"{_fmt(r.null_sd)}{_fmt(r.z, 8)}{_fmt(r.pvalue)}  {r.method}{flag}\n")
     out.write("* primary test; the others are secondary, p-values unadjusted. "
               "Curves: observed = max |z| over the grid.\n")
+    for r in res.results:
+        if not r.trusted:
+            out.write(f"untrusted {r.name}: {r.reason}\n")
     p = res.primary
-    if p.pvalue <= alpha:
-        verdict = f"CSR rejected at alpha = {alpha:g} by the primary test {p.name} (p = {p.pvalue:.3g})"
+    if not np.isfinite(p.pvalue):
+        verdict = f"no p-value for the primary test {p.name} ({p.reason})"
+    elif p.pvalue <= alpha:
+        verdict = (f"CSR rejected at alpha = {alpha:g} by the primary test {p.name} "
+                   f"(p = {p.pvalue:.3g}{'' if p.trusted else ', UNTRUSTED'})")
     else:
         verdict = (f"no evidence against CSR at alpha = {alpha:g} from the primary test "
-                   f"{p.name} (p = {p.pvalue:.3g})")
+                   f"{p.name} (p = {p.pvalue:.3g}{'' if p.trusted else ', UNTRUSTED'})")
     out.write(f"Verdict: {verdict}.\n")
 
 
@@ -157,7 +168,7 @@ def _cmd_test(a) -> int:
         window = parse_window(a.window, pts)
     res = csr_test(pts, window, a.stat, method=a.method, n_sims=a.sims, seed=a.seed,
                    jobs=a.jobs, alternative=a.alternative, on_duplicates=a.on_duplicates,
-                   alpha=a.alpha, progress=a.progress, engine=a.engine)
+                   alpha=a.alpha, progress=a.progress, engine=a.engine, tables=a.table)
     res.warnings[:0] = [str(w.message) for w in caught]
     if a.plot:
         plot_result(res, a.plot)

@@ -17,7 +17,7 @@ from .windows import Window, parse_window
 
 __all__ = ["csr_test", "METHODS", "ALTERNATIVES"]
 
-METHODS = ("mc",)
+METHODS = ("auto", "asymptotic", "mc")
 ALTERNATIVES = ("two-sided", "clustered", "regular")
 
 
@@ -36,9 +36,9 @@ def _check_options(method, n_sims, jobs, alternative, alpha, engine="fast"):
         raise OptionError(f"alpha must lie in (0, 1), got {alpha}")
 
 
-def csr_test(points, window, stats=None, *, method="mc", n_sims=999, seed=None, jobs=1,
+def csr_test(points, window, stats=None, *, method="auto", n_sims=999, seed=None, jobs=1,
              alternative="two-sided", on_duplicates="error", alpha=0.05, columns=None,
-             progress=False, engine="fast") -> CSRTestResult:
+             progress=False, engine="fast", tables=None, use_shipped=True) -> CSRTestResult:
     """Test a point pattern for complete spatial randomness.
 
     Parameters
@@ -51,8 +51,12 @@ def csr_test(points, window, stats=None, *, method="mc", n_sims=999, seed=None, 
         Statistic names; the first is the primary test.  Default: the Euler
         characteristic curve, then total H0/H1(/H2) persistence, max H1
         lifetime, Clark–Evans mean NN distance and Besag's L as secondary.
-    method : {"mc"}
-        ``"mc"``: Monte Carlo, ``n_sims`` CSR patterns conditional on n.
+    method : {"auto", "asymptotic", "mc"}
+        ``"auto"`` (default): the instant test from the null tables where it
+        is trusted, Monte Carlo for the statistics where it is not (each
+        result says which was used and why); ``"asymptotic"``: always the
+        instant test, untrusted results flagged (``trusted``, ``reason``);
+        ``"mc"``: always Monte Carlo, ``n_sims`` CSR patterns conditional on n.
     n_sims : int
         Number of null simulations m (p-values are multiples of 1/(m+1)).
     seed : int, optional
@@ -73,6 +77,11 @@ def csr_test(points, window, stats=None, *, method="mc", n_sims=999, seed=None, 
     engine : {"fast", "gudhi"}
         Persistence engine: our exact kernels (default) or gudhi's generic
         path, the reference (see :func:`lookup.diagram.alpha_diagram`).
+    tables : list of str, optional
+        Your own null tables (``nullatlas-calibrate build``); they take
+        precedence over the shipped ones for their windows.
+    use_shipped : bool
+        Also consult the shipped tables (default True).
 
     Returns
     -------
@@ -108,13 +117,41 @@ def csr_test(points, window, stats=None, *, method="mc", n_sims=999, seed=None, 
     n = len(pts)
     summary = PatternSummary(pts, window, engine)
     observed = evaluate(summary, chosen)
-    seeds = nulls.replicate_seeds(sim_seed, int(n_sims))
-    null = montecarlo.simulate_null(window, n, chosen, seeds, jobs=int(jobs), progress=progress,
-                                    engine=engine)
-    results = montecarlo.mc_results(observed, null, chosen, alternative=alternative, alpha=alpha)
+    results = [None] * len(chosen)
+    if method in ("auto", "asymptotic"):
+        from .asymptotic import asymptotic_result, verdict
+        from .nullmoments import TableSet, default_tables, null_moments
+
+        tset = TableSet(tables or (), use_shipped) if (tables or not use_shipped) \
+            else default_tables()
+        for i, st in enumerate(chosen):
+            alt, note = montecarlo._alternative_for(st, alternative)
+            nm = null_moments(tset, window, n, st.name)
+            ok, why = verdict(nm, st, n, window, alt, report.n_duplicates)
+            if nm is None:
+                results[i] = None if method == "auto" else montecarlo.untested_result(st, why, i == 0)
+                continue
+            r = asymptotic_result(st, observed[st.name], nm, alt, n, ok, why, primary=(i == 0),
+                                  note=note)
+            results[i] = r if (ok or method == "asymptotic") else None
+            if not ok and method == "auto":
+                caught.append(f"{st.name}: instant test not trusted ({'; '.join(why)}); "
+                              "Monte Carlo used instead")
+    todo = [st for st, r in zip(chosen, results) if r is None]
+    if todo:
+        seeds = nulls.replicate_seeds(sim_seed, int(n_sims))
+        null = montecarlo.simulate_null(window, n, todo, seeds, jobs=int(jobs), progress=progress,
+                                        engine=engine)
+        mc = montecarlo.mc_results(observed, null, todo, alternative=alternative, alpha=alpha)
+        it = iter(mc)
+        for i, r in enumerate(results):
+            if r is None:
+                results[i] = next(it)
+                results[i].primary = (i == 0)
     if report.n_duplicates:
         caught.append(f"{report.n_duplicates} duplicate point(s) were handled by '{on_duplicates}'")
     diag = summary.diagram if any(s.needs_diagram for s in chosen) else None
     return CSRTestResult(results=results, n=n, dimension=pts.shape[1], window=window.describe(),
                          seed=int(seed), validation=report.as_dict(), diagram=diag,
-                         warnings=caught, elapsed_s=time.perf_counter() - t0, engine=engine)
+                         warnings=caught, elapsed_s=time.perf_counter() - t0, engine=engine,
+                         method=method)

@@ -13,7 +13,7 @@ from . import nulls, ranks
 from .results import StatResult
 from .statistics import Statistic, compute
 
-__all__ = ["simulate_null", "mc_results"]
+__all__ = ["simulate_null", "mc_results", "untested_result"]
 
 
 def _chunk(window, n, stats, seeds, engine="fast"):
@@ -120,3 +120,11 @@ def mc_results(observed: dict, null: dict, stats: list[Statistic], alternative: 
                               alternative=alt if not note else "two-sided", trusted=True,
                               reason=reason, primary=(i == 0), n_sims=m, curve=curve))
     return out
+
+
+def untested_result(stat: Statistic, reasons: list, primary: bool) -> StatResult:
+    """A result without a p-value (no table and Monte Carlo not requested)."""
+    nan = float("nan")
+    return StatResult(name=stat.name, kind=stat.kind, statistic=nan, pvalue=nan, observed=nan,
+                      null_mean=nan, null_sd=nan, z=nan, method="none", trusted=False,
+                      reason="; ".join(reasons) + "; use --method mc or auto", primary=primary)

@@ -50,6 +50,9 @@ class StatResult:
     curve : dict or None
         For curves: grid, observed curve, null mean and sd, pointwise and
         global 95% envelopes.
+    details : dict or None
+        Method-specific extras: for instant tests the table route and cells,
+        n_min, and for curves the Mahalanobis variant's statistic and p-value.
     """
 
     name: str
@@ -67,6 +70,7 @@ class StatResult:
     primary: bool = False
     n_sims: int = 0
     curve: dict | None = None
+    details: dict | None = None
 
     def as_dict(self, curves: bool = True) -> dict:
         d = {"statistic": self.name, "kind": self.kind, "observed": self.observed,
@@ -74,6 +78,8 @@ class StatResult:
              "p_value": self.pvalue, "method": self.method, "alternative": self.alternative,
              "trusted": self.trusted, "reason": self.reason, "primary": self.primary,
              "n_sims": self.n_sims}
+        if self.details:
+            d["details"] = self.details
         if curves and self.curve is not None:
             d["curve"] = self.curve
         return _clean(d)
@@ -100,6 +106,9 @@ class CSRTestResult:
     elapsed_s : float
     engine : str
         Persistence engine used ("fast" or "gudhi").
+    method : str
+        Method requested: "auto", "asymptotic" or "mc" (each result's
+        ``method`` says how its p-value was obtained).
     """
 
     results: list
@@ -112,6 +121,7 @@ class CSRTestResult:
     warnings: list = field(default_factory=list)
     elapsed_s: float = 0.0
     engine: str = "fast"
+    method: str = "mc"
 
     @property
     def primary(self) -> StatResult:
@@ -135,6 +145,6 @@ class CSRTestResult:
         return _clean({
             "n": self.n, "dimension": self.dimension, "window": self.window,
             "seed": self.seed, "validation": self.validation, "warnings": list(self.warnings),
-            "elapsed_s": round(self.elapsed_s, 4), "engine": self.engine,
+            "elapsed_s": round(self.elapsed_s, 4), "engine": self.engine, "method": self.method,
             "results": [r.as_dict(curves) for r in self.results],
         })

@@ -9,15 +9,16 @@ Layout, schema version 1 (written by ``calibrate.tablewriter``):
     /cells/<cell>        one cell (d, shape, n); attrs: dimension, shape, n,
                          replicates, kappa, geometry (JSON, normalised to unit
                          area/volume)
-    /cells/<cell>/<stat>/{count, mean, m2, m3}
+    /cells/<cell>/<stat>/{mean, m2, m3}
                          streaming moments of the statistic (``calibrate.moments``);
-                         attrs kind, nonfinite (replicates where it was not finite)
+                         attrs count, kind, nonfinite (replicates where it was not
+                         finite), usable (curves)
     /cells/<cell>/<stat>/values          sorted null values (extreme statistics)
     /cells/<cell>/<stat>/quantiles       quantiles at /grids/quantile_levels (scalars)
     /cells/<cell>/<stat>/expected_count  n E[beta_q(rho)] (Betti curves)
-    /cells/<cell>/<stat>/usable          grid points used by the global curve tests
-                                         (``globaltests.usable_coordinates``)
-    /cells/<cell>/<stat>/audit/*         cross-fitted audit (``calibrate.assemble``)
+    /cells/<cell>/<stat>/audit           cross-fitted audit (``calibrate.assemble``):
+                                         small arrays as attributes, pointwise rates
+                                         as datasets
     /nmin/<shape>/<stat>                 n_min per test (attrs tests: JSON list);
                                          -1: no calibrated n is large enough
     /model/<stat>/*                      finite-window model (``calibrate.model``)
@@ -40,7 +41,8 @@ import numpy as np
 from .errors import TableError
 
 __all__ = ["SCHEMA", "SCHEMA_VERSION", "TableInfo", "CellInfo", "open_table", "load_cell",
-           "load_model", "load_holdout", "shipped_tables"]
+           "load_model", "load_holdout", "shipped_tables", "read_m2",
+           "unpack_symmetric"]
 
 SCHEMA = "nullatlas-null-table"
 SCHEMA_VERSION = 1
@@ -151,7 +153,7 @@ def open_table(path, dimension: int | None = None) -> TableInfo:
                 stats = tuple(sorted(g.keys()))
                 for s in stats:
                     for part in ("count", "mean", "m2", "m3"):
-                        if part not in g[s]:
+                        if part not in g[s] and part not in g[s].attrs:
                             raise TableError(f"{where}: statistic {s} lacks '{part}'")
                 info.cells.append(CellInfo(
                     name=name, dimension=int(_attr(g, "dimension", where)),
@@ -178,6 +180,22 @@ def open_table(path, dimension: int | None = None) -> TableInfo:
     return info
 
 
+def unpack_symmetric(packed, k: int) -> np.ndarray:
+    """Symmetric (k, k) matrix from its row-major upper triangle."""
+    out = np.zeros((k, k))
+    iu = np.triu_indices(k)
+    out[iu] = np.asarray(packed, dtype=float)
+    out.T[iu] = out[iu]
+    return out
+
+
+def read_m2(ds) -> np.ndarray:
+    """The scatter matrix of an h5py dataset ``m2`` (packed or full)."""
+    v = np.asarray(ds[()])
+    k = ds.attrs.get("packed_upper")
+    return unpack_symmetric(v, int(k)) if k is not None else v.astype(float)
+
+
 def shipped_tables() -> dict:
     """Paths of the tables shipped with nullatlas: dimension -> path (those present)."""
     from importlib import resources
@@ -199,7 +217,12 @@ def _read_group(g) -> dict:
 
     out = {}
     for k, v in g.items():
-        out[k] = _read_group(v) if isinstance(v, h5py.Group) else np.asarray(v[()])
+        if isinstance(v, h5py.Group):
+            out[k] = _read_group(v)
+        elif k == "m2":
+            out[k] = read_m2(v)
+        else:
+            out[k] = np.asarray(v[()])
     for k, v in g.attrs.items():
         out.setdefault("attrs", {})[k] = v.decode() if isinstance(v, bytes) else v
     return out
@@ -222,7 +245,19 @@ def _read(path, where: str) -> dict:
 def load_cell(path, name: str) -> dict:
     """All stored arrays of one cell: ``{stat: {count, mean, m2, m3, ..., audit: {...},
     attrs: {...}}, "attrs": {...}}`` (plain numpy arrays; call :func:`open_table` first)."""
-    return _read(path, f"cells/{name}")
+    raw = _read(path, f"cells/{name}")
+    for s, d in raw.items():
+        if s == "attrs" or not isinstance(d, dict):
+            continue
+        a = d.get("attrs", {})
+        for k in ("count", "usable"):
+            if k not in d and k in a:
+                d[k] = np.asarray(a[k])
+        if isinstance(d.get("audit"), dict):
+            au = d["audit"]
+            for k, v in au.pop("attrs", {}).items():
+                au.setdefault(k, np.asarray(v))
+    return raw
 
 
 def load_model(path) -> dict:

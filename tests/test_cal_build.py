@@ -178,12 +178,18 @@ def test_audit_of_correlated_gaussian_curves():
 def test_n_min_needs_every_larger_cell_to_pass():
     good = {"n": 5000, "lower": np.array([0, 0.025, 0]), "upper": np.array([0, 0.026, 0]),
             "two_sided": np.array([0, 0.051, 0])}
+    # N = 5000: 2 SE of a tail is 0.0044, so 0.025 +- (0.005 + 0.0044) passes
     bad_low = dict(good, lower=np.array([0, 0.012, 0]))
+    edge = dict(good, upper=np.array([0, 0.034, 0]))
     cells = [{"shape": "s", "n": n, "audit": {"t": a}}
-             for n, a in ((50, good), (100, bad_low), (200, good), (400, good))]
+             for n, a in ((50, good), (100, bad_low), (200, good), (400, edge))]
     tests, v = n_min_table(cells, {"t": "scalar"})["s"]["t"]
     d = dict(zip(tests, v.tolist()))
     assert d == {"lower": 200, "upper": 50, "two_sided": 50}
+    cells[-1]["audit"]["t"] = dict(good, n=500, upper=np.array([0, 0.034, 0]))   # N small: noisy
+    assert dict(zip(*n_min_table(cells, {"t": "scalar"})["s"]["t"]))["upper"] == 50
+    cells[-1]["audit"]["t"] = dict(good, upper=np.array([0, 0.040, 0]))          # clearly off
+    assert dict(zip(*n_min_table(cells, {"t": "scalar"})["s"]["t"]))["upper"] == -1
     cells[-1]["audit"]["t"] = bad_low
     assert dict(zip(*n_min_table(cells, {"t": "scalar"})["s"]["t"]))["lower"] == -1
 

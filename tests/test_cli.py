@@ -15,7 +15,7 @@ PART = "box:0,0,0,20,20,10"
 
 
 def run_json(capsys, *args):
-    rc = main(["test", *args, "--json", "--no-progress"])
+    rc = main(["test", *args, "--json", "--no-progress", "--method", "mc"])
     out = capsys.readouterr().out
     assert rc == 0
     return json.loads(out)
@@ -26,7 +26,8 @@ def run_json(capsys, *args):
     ("wafer_lot_regular.csv", WAFER), ("pores_part.csv", PART)])
 def test_demo_files_plain_and_json(capsys, name, window):
     path = os.path.join(EX, name)
-    assert main(["test", path, "--window", window, "--sims", "39", "--seed", "5", "--no-progress"]) == 0
+    assert main(["test", path, "--window", window, "--sims", "39", "--seed", "5", "--no-progress",
+                 "--method", "mc"]) == 0
     text = capsys.readouterr().out
     assert "Verdict:" in text and "p-value" in text
     d = run_json(capsys, path, "--window", window, "--sims", "39", "--seed", "5")
@@ -78,7 +79,7 @@ def test_same_seed_same_json_any_jobs(capsys):
 
 def test_plot_written(tmp_path, capsys):
     fig = tmp_path / "fig.png"
-    rc = main(["test", os.path.join(EX, "wafer_lot_clustered.csv"), "-w", WAFER, "--sims", "19",
+    rc = main(["test", os.path.join(EX, "wafer_lot_clustered.csv"), "-w", WAFER, "--method", "mc", "--sims", "19",
                "--seed", "1", "--plot", str(fig), "--no-progress"])
     assert rc == 0 and fig.stat().st_size > 10_000
     assert fig.read_bytes()[:4] == b"\x89PNG"
@@ -145,7 +146,7 @@ def test_bad_input_one_line_exit_2(tmp_path, capsys, case):
     text, window, needle = BAD[case]
     path = _csv(tmp_path, text) if text is not None else _square_csv(tmp_path)
     fig = tmp_path / "never.png"
-    rc = main(["test", path, "--window", window, "--sims", "5", "--seed", "1", "--no-progress",
+    rc = main(["test", path, "--window", window, "--method", "mc", "--sims", "5", "--seed", "1", "--no-progress",
                "--plot", str(fig)])
     err = capsys.readouterr().err
     assert rc == 2

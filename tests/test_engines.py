@@ -66,15 +66,15 @@ def test_statistics_agree(dim, window):
 
 def test_mc_pvalues_identical_across_engines():
     path = os.path.join(EX, "wafer_lot_random.csv")
-    r1 = csr_test(path, "disk:0,0,150", n_sims=49, seed=21, engine="fast")
-    r2 = csr_test(path, "disk:0,0,150", n_sims=49, seed=21, engine="gudhi")
+    r1 = csr_test(path, "disk:0,0,150", method="mc", n_sims=49, seed=21, engine="fast")
+    r2 = csr_test(path, "disk:0,0,150", method="mc", n_sims=49, seed=21, engine="gudhi")
     assert [r.pvalue for r in r1.results] == [r.pvalue for r in r2.results]
     assert r1.engine == "fast" and r2.engine == "gudhi"
 
 
 def test_cli_engine_option(capsys):
     path = os.path.join(EX, "wafer_lot_regular.csv")
-    rc = main(["test", path, "--window", "disk:0,0,150", "--sims", "19", "--seed", "2",
+    rc = main(["test", path, "--window", "disk:0,0,150", "--method", "mc", "--sims", "19", "--seed", "2",
                "--engine", "gudhi", "--json", "--no-progress"])
     assert rc == 0
     assert json.loads(capsys.readouterr().out)["engine"] == "gudhi"

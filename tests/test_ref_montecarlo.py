@@ -158,7 +158,7 @@ def test_csr_test_rank_pvalues_uniform_under_csr(alternative):
     m, reps = 19, 200
     W = windows.Disk(0.0, 0.0, 1.0)
     data_rng = np.random.default_rng(2025 if alternative == "clustered" else 2026)
-    p = np.array([csr_test(W.sample(15, data_rng), W, stats=["nnmean"], n_sims=m, seed=i,
+    p = np.array([csr_test(W.sample(15, data_rng), W, stats=["nnmean"], method="mc", n_sims=m, seed=i,
                            alternative=alternative).pvalue
                   for i in range(reps)])
     assert p.min() >= 1 / (m + 1)
@@ -249,7 +249,7 @@ def test_csr_test_bit_identical_for_jobs_1_and_2():
     # sample and every p-value are the same whatever the worker count.
     W = windows.Rectangle(0.0, 0.0, 2.0, 1.0)
     pts = W.sample(60, np.random.default_rng(8))
-    kw = dict(stats=["euler", "nnmean", "lfunc", "total1"], n_sims=39, seed=123)
+    kw = dict(stats=["euler", "nnmean", "lfunc", "total1"], method="mc", n_sims=39, seed=123)
     r1 = csr_test(pts, W, jobs=1, **kw)
     r2 = csr_test(pts, W, jobs=2, **kw)
     assert _strip(r1.as_dict()) == _strip(r2.as_dict())      # exact equality, curves included

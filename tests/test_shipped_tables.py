@@ -40,7 +40,7 @@ def test_coverage_and_replicates(table):
 
 def test_small_files():
     total = sum(os.path.getsize(p) for p in TABLES.values())
-    assert total < 12e6, total
+    assert total < 10e6, total
 
 
 def test_every_cell_has_what_the_runtime_needs(table):

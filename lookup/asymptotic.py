@@ -1,0 +1,189 @@
+"""Instant tests from the null tables, and the trust verdict.
+
+For an observed summary S with tabled null mean m and covariance C
+(``lookup.nullmoments``):
+
+* additive scalars: z = (S - m) / sd, p from N(0, 1) (``scipy.stats.norm``):
+  two-sided 2 P(Z > |z|), or one-sided towards the direction the statistic
+  moves under the chosen alternative;
+* extremes: the tabled empirical null with a Gumbel tail
+  (``lookup.extremes``), never a normal approximation; the lower tail is the
+  empirical rank p-value, two-sided is twice the smaller tail;
+* curves: z_j over the usable grid points; the primary p-value is that of
+  max_j |z_j| under the Gaussian limit N(0, R), R the tabled correlation,
+  by simulating ``n_gauss`` Gaussian vectors.  Their seed is derived from
+  the null moments used (table, cells, statistic, n, grid points), so the
+  p-value is a function of the data and the table alone (not of ``--seed``),
+  and the simulated null is cached per process; the regularised
+  Mahalanobis chi-square p-value is reported beside it
+  (``lookup.globaltests``).
+
+Trust verdict (:func:`verdict`): a result is untrusted when there is no
+table for the dimension or statistic, the window is not convex or has
+holes, its kappa lies outside the table's shapes, n is below the audited
+n_min of the test (or no calibrated n passed the audit), n is outside the
+calibrated range where no model applies (extremes), a curve has no usable
+grid point, or more than 1 % of the points were duplicates dropped or
+jittered.
+"""
+from __future__ import annotations
+
+import numpy as np
+from scipy import stats as _st
+
+from . import globaltests as gt
+from .extremes import GumbelTail
+from .nullmoments import NullMoments
+from .results import StatResult
+
+import zlib
+
+__all__ = ["N_GAUSS", "DUPLICATE_LIMIT", "test_key", "verdict", "asymptotic_result"]
+
+#: Gaussian vectors simulated for the max |z| p-value of a curve.
+N_GAUSS = 10_000
+#: Fraction of handled duplicate points above which no asymptotic answer is trusted.
+DUPLICATE_LIMIT = 0.01
+_KAPPA_SLACK = 0.02
+
+
+def test_key(kind: str, alternative: str, curve_test: str = "maxabs") -> str:
+    """Which audited test (n_min key) a run uses."""
+    if kind == "curve":
+        return curve_test
+    if kind == "extreme":
+        return "upper"
+    return {"two-sided": "two_sided", "greater": "upper", "less": "lower"}[alternative]
+
+
+def verdict(nm: NullMoments | None, stat, n: int, window, alternative: str,
+            n_duplicates: int = 0, curve_test: str = "maxabs") -> tuple[bool, list]:
+    """(trusted, reasons) of the asymptotic test of ``stat`` (a Statistic)."""
+    reasons = []
+    if nm is None:
+        return False, [f"no null table covers '{stat.name}' in {window.dim}D"]
+    if not getattr(window, "convex", True):
+        reasons.append("the window is not convex (the tables and their model are for convex "
+                       "windows)")
+    if getattr(window, "holes", 0):
+        reasons.append(f"the window has {window.holes} hole(s)")
+    if nm.shape is None:
+        lo, hi = nm.kappa_range
+        k = float(window.kappa)
+        if not lo * (1 - _KAPPA_SLACK) <= k <= hi * (1 + _KAPPA_SLACK):
+            reasons.append(f"the window's kappa {k:.3g} is outside the calibrated range "
+                           f"[{lo:.3g}, {hi:.3g}]")
+    if nm.approximate:
+        reasons.append(nm.approximate)
+    if n < nm.n_range[0]:
+        reasons.append(f"n = {n} is below the smallest calibrated n ({nm.n_range[0]})")
+    if nm.route == "nearest":
+        reasons.append(f"n = {n} is beyond the calibrated n of '{stat.name}' "
+                       f"({nm.n_range[0]}..{nm.n_range[1]}) and extremes have no model")
+    key = test_key(nm.kind, alternative, curve_test)
+    nmin = nm.n_min.get(key, "missing")
+    where = nm.shape or "the calibrated shapes"
+    if nmin == "missing":
+        reasons.append(f"the table has no audit of the {key} test of '{stat.name}'")
+    elif nmin is None:
+        reasons.append(f"the asymptotic {key} test of '{stat.name}' did not hold at any "
+                       f"calibrated n for {where}")
+    elif n < nmin:
+        reasons.append(f"n = {n} is below n_min = {nmin} of the {key} test of '{stat.name}' "
+                       f"for {where}")
+    if nm.kind == "curve" and (nm.usable is None or not np.any(nm.usable)):
+        reasons.append(f"no grid point of '{stat.name}' has a near-normal null at this n")
+    if n_duplicates > DUPLICATE_LIMIT * max(n, 1):
+        reasons.append(f"{n_duplicates} duplicate points were dropped or jittered "
+                       f"(more than {DUPLICATE_LIMIT:.0%})")
+    return (not reasons), reasons
+
+
+_NULL_CACHE: dict = {}
+
+
+def _maxabs_null(nm: NullMoments, n: int, use: np.ndarray, corr: np.ndarray, n_gauss: int,
+                 rng=None) -> np.ndarray:
+    if rng is not None:
+        return gt.maxabs_null(corr, n_gauss, rng)
+    key = (nm.table, tuple(nm.cells), nm.stat, nm.route, int(n), use.tobytes(), int(n_gauss))
+    hit = _NULL_CACHE.get(key)
+    if hit is None:
+        seed = zlib.crc32(repr(key[:5] + (use.astype(np.int8).tolist(),)).encode())
+        hit = gt.maxabs_null(corr, n_gauss, np.random.default_rng(seed))
+        if len(_NULL_CACHE) > 256:
+            _NULL_CACHE.clear()
+        _NULL_CACHE[key] = hit
+    return hit
+
+
+def _scalar_p(z: float, alternative: str) -> float:
+    if alternative == "greater":
+        return float(_st.norm.sf(z))
+    if alternative == "less":
+        return float(_st.norm.cdf(z))
+    return float(min(1.0, 2 * _st.norm.sf(abs(z))))
+
+
+def asymptotic_result(stat, observed, nm: NullMoments, alternative: str, n: int,
+                      trusted: bool, reasons: list, primary: bool = False, note: str = "",
+                      n_gauss: int = N_GAUSS, rng=None) -> StatResult:
+    """The instant test of one statistic (a :class:`StatResult`).
+
+    ``rng``: a Generator for the Gaussian vectors instead of the derived seed
+    (no caching)."""
+    obs = np.asarray(observed, float)
+    mean, sd = nm.mean, nm.sd
+    details = {"route": nm.route, "cells": list(nm.cells), "table": nm.table,
+               "shape": nm.shape, "replicates": nm.replicates, "n_min": nm.n_min}
+    curve = None
+    if nm.kind == "curve":
+        use = np.asarray(nm.usable, bool) if nm.usable is not None else np.zeros(len(mean), bool)
+        use &= np.isfinite(obs) & (sd > 0)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            z = np.where(sd > 0, (obs - mean) / np.where(sd > 0, sd, 1.0), np.nan)
+        if use.any():
+            cov = nm.cov[np.ix_(use, use)]
+            corr = gt.correlation(cov)
+            null = _maxabs_null(nm, n, use, corr, n_gauss, rng)
+            t = float(np.max(np.abs(z[use])))
+            p = float(gt.maxabs_pvalue(t, null))
+            sp = gt.spectral(corr)
+            d2 = float(sp.statistic(z[use]))
+            details.update({"mahalanobis": d2, "mahalanobis_df": sp.rank,
+                            "mahalanobis_pvalue": float(gt.mahalanobis_pvalue(d2, sp.rank)),
+                            "grid_points_used": int(use.sum()), "gaussian_vectors": n_gauss})
+            c95 = float(np.quantile(null, 0.95))
+        else:
+            t, p, c95 = float("nan"), float("nan"), float("nan")
+        grid = np.asarray(stat.grid).tolist()
+        curve = {"grid": grid, "observed": obs, "null_mean": mean, "null_sd": sd,
+                 "z": np.where(use, z, np.nan), "usable": use,
+                 "pointwise_lo": mean - 1.959964 * sd, "pointwise_hi": mean + 1.959964 * sd,
+                 "global_lo": mean - c95 * sd, "global_hi": mean + c95 * sd,
+                 "global_critical_z": c95}
+        statistic, method, alt = t, "asymptotic-maxabs", "two-sided"
+        zz, mu_s, sd_s = t, float("nan"), float("nan")
+    elif nm.kind == "extreme":
+        x = float(obs.reshape(-1)[0])
+        tail = GumbelTail(nm.values)
+        up = float(tail.pvalue(x))
+        low = float((np.searchsorted(tail.values, x, side="right") + 1.0) / (tail.m + 1.0))
+        p = {"greater": up, "less": low}.get(alternative, min(1.0, 2 * min(up, low)))
+        details.update({"gumbel_loc": tail.loc, "gumbel_scale": tail.scale,
+                        "null_values": tail.m})
+        mu_s, sd_s = float(mean[0]), float(sd[0])
+        zz = (x - mu_s) / sd_s if sd_s > 0 else float("nan")
+        statistic, method, alt = x, "table-empirical-gumbel-tail", alternative
+    else:
+        x = float(obs.reshape(-1)[0])
+        mu_s, sd_s = float(mean[0]), float(sd[0])
+        zz = (x - mu_s) / sd_s if sd_s > 0 else float("nan")
+        p = _scalar_p(zz, alternative) if np.isfinite(zz) else float("nan")
+        statistic, method, alt = x, "asymptotic-normal", alternative
+    reason = "; ".join(([note] if note else []) + reasons) if not trusted else \
+        (note or f"instant test from the null table ({nm.route}: {', '.join(nm.cells)})")
+    return StatResult(name=stat.name, kind=stat.kind, statistic=statistic, pvalue=p,
+                      observed=statistic, null_mean=mu_s, null_sd=sd_s, z=zz, method=method,
+                      alternative=alt, trusted=trusted, reason=reason, primary=primary,
+                      n_sims=0, curve=curve, details=details)

@@ -1,0 +1,310 @@
+"""Null moments of a statistic for any window and n, from the null tables.
+
+Three routes, tried in this order (the result says which one was used):
+
+``cell``
+    The table has a cell of this window's shape (``lookup.shapes.normalise``)
+    and this n: its moments as stored.
+``interpolated``
+    The shape is calibrated and n lies between two of its cells n1 < n < n2:
+    linear interpolation in x = n^(-1/d) (the order of the boundary term of
+    the finite-window model) of the mean and of the per-point covariance
+    n Cov; extremes interpolate the two cells' quantile functions.
+``model``
+    A convex window of a shape not in the table, or n beyond the shape's
+    largest cell: the finite-window model (``calibrate.model``) at (n, kappa)
+    for the mean and n Var, with the correlation matrix and usable grid points
+    of the nearest calibrated cell (closest kappa, then closest n^(-1/d)).
+    Extremes have no model: the nearest shape's cells are interpolated in n
+    and the route is marked approximate.
+
+Tables are read lazily, one (cell, statistic) at a time, and cached in the
+process, so that a lookup after the first costs microseconds.
+"""
+from __future__ import annotations
+
+import functools
+import json
+import os
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .errors import TableError
+from .shapes import normalise
+from .statistics import STATISTICS
+from .tablereader import open_table, read_m2, shipped_tables
+
+__all__ = ["NullMoments", "TableSet", "null_moments", "default_tables"]
+
+
+@dataclass
+class NullMoments:
+    """The null distribution of one statistic for one (window, n).
+
+    Attributes
+    ----------
+    stat, kind : str
+    mean : ndarray (k,)
+    cov : ndarray (k, k)
+    usable : ndarray of bool (k,) or None
+        Grid points used by the global curve tests.
+    values : ndarray or None
+        Null values (extremes), sorted.
+    route : {"cell", "interpolated", "model"}
+    cells : list of str
+        Cells the moments come from.
+    shape : str or None
+        Calibrated shape of the window (None: not calibrated).
+    n_min : dict
+        Test name -> n_min for this shape (for the model route: the largest
+        over the calibrated shapes); None where no calibrated n suffices.
+    kappa_range : (float, float)
+        Range of kappa of the table's shapes.
+    n_range : (int, int)
+        Calibrated n of this shape (or of the table).
+    expected_count : ndarray or None
+        n E[beta(rho)] for Betti curves.
+    replicates : int
+        Replicates behind the moments (smallest over the cells used).
+    table : str
+    approximate : str
+        Non-empty when the route is an approximation beyond the model
+        (extremes of an uncalibrated shape).
+    """
+
+    stat: str
+    kind: str
+    mean: np.ndarray
+    cov: np.ndarray
+    usable: np.ndarray | None
+    values: np.ndarray | None
+    route: str
+    cells: list
+    shape: str | None
+    n_min: dict
+    kappa_range: tuple
+    n_range: tuple
+    expected_count: np.ndarray | None = None
+    replicates: int = 0
+    table: str = ""
+    approximate: str = ""
+    extra: dict = field(default_factory=dict)
+
+    @property
+    def sd(self) -> np.ndarray:
+        return np.sqrt(np.clip(np.diag(self.cov), 0, None))
+
+
+class _Table:
+    """One open table: metadata plus a cache of (cell, stat) arrays."""
+
+    def __init__(self, path: str):
+        self.path = os.fspath(path)
+        self.info = open_table(self.path)
+        self.d = self.info.dimension
+        self.by_shape = {}
+        for c in self.info.cells:
+            self.by_shape.setdefault(c.shape, []).append(c)
+        for v in self.by_shape.values():
+            v.sort(key=lambda c: c.n)
+        self.kappas = {s: cs[0].kappa for s, cs in self.by_shape.items()}
+        self._model = None
+
+    @functools.lru_cache(maxsize=4096)
+    def stat(self, cell: str, stat: str) -> dict:
+        import h5py
+
+        try:
+            with h5py.File(self.path, "r") as fh:
+                g = fh[f"cells/{cell}/{stat}"]
+                out = {"mean": np.asarray(g["mean"][()]), "m2": read_m2(g["m2"])}
+                out["count"] = g.attrs["count"] if "count" in g.attrs else g["count"][()]
+                for k in ("values", "usable", "expected_count"):
+                    if k in g:
+                        out[k] = np.asarray(g[k][()])
+                    elif k in g.attrs:
+                        out[k] = np.asarray(g.attrs[k])
+        except (OSError, KeyError) as exc:
+            raise TableError(f"{self.path}: cannot read {cell}/{stat} ({exc})") from None
+        cnt = int(out["count"])
+        out["count"] = cnt
+        out["mean"] = out["mean"].astype(float)
+        out["cov"] = out["m2"].astype(float) / max(cnt - 1, 1)
+        return out
+
+    def model(self, stat: str):
+        if self._model is None:
+            import h5py
+
+            self._model = {}
+            with h5py.File(self.path, "r") as fh:
+                for s, g in fh.get("model", {}).items():
+                    self._model[s] = {k: np.asarray(g[k][()]) for k in
+                                      ("mean_coef", "var_coef")}
+        return self._model.get(stat)
+
+
+class TableSet:
+    """The tables consulted by the runtime: user tables first, then the shipped ones."""
+
+    def __init__(self, paths=(), use_shipped: bool = True):
+        self.tables = [_Table(p) for p in paths]
+        if use_shipped:
+            have = {os.path.realpath(t.path) for t in self.tables}
+            for d, p in sorted(shipped_tables().items()):
+                if os.path.realpath(p) not in have:
+                    self.tables.append(_Table(p))
+
+    def for_dimension(self, d: int) -> list:
+        return [t for t in self.tables if t.d == d]
+
+
+@functools.lru_cache(maxsize=1)
+def default_tables() -> TableSet:
+    """The shipped tables (opened once per process)."""
+    return TableSet()
+
+
+def _nmin(table: _Table, shape: str | None, stat: str) -> dict:
+    if shape is not None:
+        return table.info.n_min(shape, stat)
+    # uncalibrated shape: the most demanding calibrated shape
+    out = {}
+    for s in table.by_shape:
+        for k, v in table.info.n_min(s, stat).items():
+            if k not in out:
+                out[k] = v
+            elif out[k] is not None:
+                out[k] = None if v is None else max(out[k], v)
+    return out
+
+
+def _interp_values(a: np.ndarray, b: np.ndarray, w: float) -> np.ndarray:
+    m = min(len(a), len(b))
+    q = (np.arange(m) + 0.5) / m
+    return np.sort(w * np.quantile(a, q) + (1 - w) * np.quantile(b, q))
+
+
+def _from_cells(t: _Table, stat: str, cells: list, n: int, d: int) -> dict:
+    """Moments at n from one cell (exact) or two bracketing cells (interpolated)."""
+    if len(cells) == 1:
+        s = t.stat(cells[0].name, stat)
+        return {"mean": s["mean"], "cov": s["cov"], "usable": s.get("usable"),
+                "values": s.get("values"), "replicates": s["count"]}
+    c1, c2 = cells
+    s1, s2 = t.stat(c1.name, stat), t.stat(c2.name, stat)
+    x, x1, x2 = n ** (-1.0 / d), c1.n ** (-1.0 / d), c2.n ** (-1.0 / d)
+    w = (x - x2) / (x1 - x2)
+    mean = w * s1["mean"] + (1 - w) * s2["mean"]
+    cov = (w * c1.n * s1["cov"] + (1 - w) * c2.n * s2["cov"]) / n
+    use = None
+    if s1.get("usable") is not None:
+        use = (s1["usable"] > 0) & (s2["usable"] > 0)
+    vals = None
+    if s1.get("values") is not None:
+        vals = _interp_values(s1["values"], s2["values"], w)
+    return {"mean": mean, "cov": cov, "usable": use, "values": vals,
+            "replicates": min(s1["count"], s2["count"])}
+
+
+def _bracket(cells: list, n: int):
+    ns = [c.n for c in cells]
+    if n in ns:
+        return [cells[ns.index(n)]]
+    if n < ns[0] or n > ns[-1]:
+        return None
+    j = int(np.searchsorted(ns, n))
+    return [cells[j - 1], cells[j]]
+
+
+def _model_moments(t: _Table, stat: str, n: int, kappa: float, d: int, near: list):
+    """Model mean and covariance at (n, kappa); correlation of the nearest cell."""
+    m = t.model(stat)
+    if m is None:
+        return None
+    x = np.array([1.0, kappa * n ** (-1.0 / d), n ** (-2.0 / d)])
+    mean = np.asarray(m["mean_coef"], float) @ x
+    nvar = np.asarray(m["var_coef"], float) @ x
+    base = _from_cells(t, stat, near, n, d)
+    sd_b = np.sqrt(np.clip(np.diag(base["cov"]), 0, None))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        corr = base["cov"] / np.outer(sd_b, sd_b)
+    corr = np.where(np.isfinite(corr), corr, 0.0)
+    sd = np.sqrt(np.clip(nvar / n, 0, None))
+    cov = corr * np.outer(sd, sd)
+    np.fill_diagonal(cov, sd ** 2)
+    return {"mean": mean, "cov": cov, "usable": base["usable"], "values": base["values"],
+            "replicates": base["replicates"]}
+
+
+def null_moments(tables: TableSet, window, n: int, stat: str) -> NullMoments | None:
+    """Null moments of ``stat`` for ``n`` points in ``window``; None when no
+    table of the window's dimension has the statistic.
+
+    Raises TableError only for damaged tables."""
+    st = STATISTICS[stat]
+    d = window.dim
+    for t in tables.for_dimension(d):
+        if not any(stat in c.stats for c in t.info.cells):
+            continue
+        try:
+            shape, _ = normalise(window)
+        except ValueError:
+            shape = None
+        kap = float(window.kappa)
+        krange = (min(t.kappas.values()), max(t.kappas.values()))
+        if shape in t.by_shape:
+            cells = [c for c in t.by_shape[shape] if stat in c.stats]
+            ns = (cells[0].n, cells[-1].n)
+            br = _bracket(cells, n)
+            if br is not None:
+                mom = _from_cells(t, stat, br, n, d)
+                route = "cell" if len(br) == 1 else "interpolated"
+                used = [c.name for c in br]
+            else:
+                near = [cells[0]] if n < cells[0].n else [cells[-1]]
+                mom = _model_moments(t, stat, n, kap, d, near) if st.kind != "extreme" else None
+                if mom is None:
+                    mom = _from_cells(t, stat, near, near[0].n, d)
+                    route = "nearest"
+                else:
+                    route = "model"
+                used = [near[0].name]
+            res = NullMoments(stat, st.kind, mom["mean"], mom["cov"],
+                              None if mom["usable"] is None else np.asarray(mom["usable"]) > 0,
+                              mom["values"], route, used, shape, _nmin(t, shape, stat), krange, ns,
+                              replicates=int(mom["replicates"]), table=t.path)
+        else:
+            # uncalibrated shape: nearest kappa, then the model
+            near_shape = min(t.by_shape, key=lambda s: abs(t.kappas[s] - kap))
+            cells = [c for c in t.by_shape[near_shape] if stat in c.stats]
+            br = _bracket(cells, n)
+            if br is None:
+                br = [cells[0]] if n < cells[0].n else [cells[-1]]
+            nn = n if len(br) == 2 or br[0].n == n else br[0].n
+            approx = ""
+            if st.kind == "extreme":
+                mom = _from_cells(t, stat, br, nn, d)
+                approx = (f"no finite-window model for the extreme '{stat}': null of the calibrated "
+                          f"shape with the nearest kappa ({near_shape})")
+                route = "nearest-shape"
+            else:
+                mom = _model_moments(t, stat, n, kap, d, br)
+                route = "model"
+                if mom is None:
+                    continue
+            ns = (min(c.n for c in t.info.cells), max(c.n for c in t.info.cells))
+            res = NullMoments(stat, st.kind, mom["mean"], mom["cov"],
+                              None if mom["usable"] is None else np.asarray(mom["usable"]) > 0,
+                              mom["values"], route, [c.name for c in br], None,
+                              _nmin(t, None, stat), krange, ns, replicates=int(mom["replicates"]),
+                              table=t.path, approximate=approx)
+            res.extra["nearest_shape"] = near_shape
+        if stat.startswith("betti"):
+            res.expected_count = n * res.mean
+            if res.usable is not None:
+                from .globaltests import MIN_COUNT
+                res.usable = res.usable & (res.expected_count >= MIN_COUNT)
+        return res
+    return None
