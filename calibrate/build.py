@@ -27,7 +27,7 @@ from nullatlas.lookup.statistics import STATISTICS, resolve_stats
 from nullatlas.lookup.tablereader import load_cell, open_table
 
 from . import assemble as asm
-from .model import fit_model, holdout_errors
+from .model import MODEL_TOL_SD, fit_model, holdout_errors, holdout_sd_errors, model_n_ok
 from .moments import Moments
 from .nmin import n_min_table
 from .plan import DEFAULT_STATS, CellPlan, chunk_seed, chunk_size_for
@@ -134,9 +134,11 @@ def _finish(out, dimension, root_seed, stat_names, records, n_fit, holdout, extr
         for r in recs:
             m = r["stats"][stat]["moments"]
             if m.count > 2:
+                use = r["stats"][stat].get("usable")
                 rows.append({"name": r["name"], "n": r["n"], "kappa": r["kappa"],
                              "mean": m.mean, "var": np.diag(m.cov), "count": m.count,
-                             "shape": r["shape"]})
+                             "shape": r["shape"],
+                             "usable": None if use is None else np.asarray(use) > 0})
         return rows
 
     for stat in stat_names:
@@ -164,11 +166,18 @@ def _finish(out, dimension, root_seed, stat_names, records, n_fit, holdout, extr
                 except ValueError:
                     continue
                 err = holdout_errors(hf, held, dimension)
-                holdouts.setdefault(holdout, {})[stat] = (hf, err, [r["name"] for r in held])
+                err_sd = holdout_sd_errors(hf, held, dimension)
+                n_model = model_n_ok([r["n"] for r in held], err_sd)
+                holdouts.setdefault(holdout, {})[stat] = (hf, err, [r["name"] for r in held],
+                                                          {"errors_sd": err_sd, "n_model": n_model,
+                                                           "model_tolerance_sd": MODEL_TOL_SD})
                 fin = err[np.isfinite(err)]
+                fsd = err_sd[np.isfinite(err_sd)]
                 model_summary[stat]["holdout_" + holdout] = {
                     "rms_se": float(np.sqrt(np.mean(fin ** 2))) if fin.size else None,
                     "max_abs_se": float(np.max(np.abs(fin))) if fin.size else None,
+                    "max_abs_sd": float(np.max(np.abs(fsd))) if fsd.size else None,
+                    "n_model": None if n_model < 0 else int(n_model),
                     "points": int(fin.size)}
     attrs = {"stats": __import__("json").dumps(list(stat_names)), "model_n_fit": int(n_fit),
              "holdout": str(holdout or "")}

@@ -142,8 +142,11 @@ def _print_summary(s, out=None):
     for stat, m in s["model"].items():
         for k, v in m.items():
             if k.startswith("holdout_") and v.get("rms_se") is not None:
+                nm = v.get("n_model")
                 out.write(f"held-out {k[8:]}: {stat} predicted with RMS error {v['rms_se']:.2f} SE "
-                          f"(max {v['max_abs_se']:.2f}) over {v['points']} cell grid points\n")
+                          f"(max {v['max_abs_se']:.2f} SE = {v.get('max_abs_sd', float('nan')):.3f} "
+                          f"pattern sd) over {v['points']} cell grid points; within 0.1 sd from "
+                          f"n = {'-' if nm is None else nm}\n")
     out.write("n_min (smallest calibrated n from which the asymptotic test holds; - = none):\n")
     for shape, per in s["n_min"].items():
         items = []

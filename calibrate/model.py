@@ -24,7 +24,13 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["design", "wls", "Fit", "fit_model", "predict", "holdout_errors"]
+__all__ = ["design", "wls", "Fit", "fit_model", "predict", "holdout_errors",
+           "holdout_sd_errors", "model_n_ok", "MODEL_TOL_SD"]
+
+#: Largest model error in a held-out shape, in units of one pattern's null sd,
+#: from which the model route is trusted: a bias of 0.1 sd moves the size of a
+#: two-sided test at 0.05 by about 0.001 (to 0.0510).
+MODEL_TOL_SD = 0.1
 
 
 def design(n, kappa, d: int) -> np.ndarray:
@@ -143,3 +149,33 @@ def holdout_errors(fit: Fit, cells: list[dict], d: int) -> np.ndarray:
         # grid points where the held-out cell did not vary carry no information
         out.append(np.where(sem2 > 1e-24 * (1.0 + mean ** 2), e, np.nan))
     return np.array(out)
+
+
+def holdout_sd_errors(fit: Fit, cells: list[dict], d: int) -> np.ndarray:
+    """Prediction errors of held-out cells in units of one pattern's null sd:
+    (mean - model) / sd, shape (cells, k) -- what a z-test feels.  Only at
+    the grid points a test uses (``usable`` of a curve cell, when given)."""
+    out = []
+    for c in cells:
+        val, _ = predict(fit.mean_coef, fit.mean_cov, c["n"], c["kappa"], d)
+        sd = np.sqrt(np.asarray(c["var"], float))
+        use = c.get("usable")
+        ok = sd > 0 if use is None else (sd > 0) & np.asarray(use, bool)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            out.append(np.where(ok, (np.asarray(c["mean"]) - val) / sd, np.nan))
+    return np.array(out)
+
+
+def model_n_ok(ns, err_sd: np.ndarray, tol: float = MODEL_TOL_SD) -> int:
+    """Smallest held-out n from which every larger held-out cell has all its
+    model errors within ``tol`` pattern sd (-1: none)."""
+    order = np.argsort(ns)[::-1]
+    best = -1
+    for i in order:
+        e = err_sd[i]
+        e = e[np.isfinite(e)]
+        if e.size and np.max(np.abs(e)) <= tol:
+            best = int(ns[i])
+        else:
+            break
+    return best

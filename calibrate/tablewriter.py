@@ -90,7 +90,7 @@ def _write_fit(g, fit, extra=None):
     g.attrs["n_fit"] = int(fit.n_fit)
     g.attrs["dof"] = int(fit.dof)
     for k, v in (extra or {}).items():
-        if isinstance(v, (str, int, float)):
+        if isinstance(v, (str, int, float, np.integer, np.floating)):
             g.attrs[k] = v
         else:
             _put(g, k, v)
@@ -167,6 +167,8 @@ def write_table(path, *, dimension: int, root_seed: int, grids: dict, cells: lis
                 hg = fh.create_group("holdout")
                 for shape, per in holdouts.items():
                     sg = hg.create_group(shape)
-                    for sname, (fit, errors, names) in per.items():
-                        _write_fit(sg.create_group(sname), fit,
-                                   {"errors": errors, "heldout_cells": json.dumps(list(names))})
+                    for sname, (fit, errors, names, *more) in per.items():
+                        extra = {"errors": errors, "heldout_cells": json.dumps(list(names))}
+                        for k, v in (more[0] if more else {}).items():
+                            extra[k] = v
+                        _write_fit(sg.create_group(sname), fit, extra)

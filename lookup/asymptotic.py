@@ -21,7 +21,9 @@ For an observed summary S with tabled null mean m and covariance C
 Trust verdict (:func:`verdict`): a result is untrusted when there is no
 table for the dimension or statistic, the window is not convex or has
 holes, its kappa lies outside the table's shapes, n is below the audited
-n_min of the test (or no calibrated n passed the audit), n is outside the
+n_min of the test (or no calibrated n passed the audit), the window's shape
+is not calibrated and n is below the n from which the finite-window model
+predicted a held-out shape within 0.1 pattern sd, n is outside the
 calibrated range where no model applies (extremes), a curve has no usable
 grid point, or more than 1 % of the points were duplicates dropped or
 jittered.
@@ -91,6 +93,14 @@ def verdict(nm: NullMoments | None, stat, n: int, window, alternative: str,
     elif n < nmin:
         reasons.append(f"n = {n} is below n_min = {nmin} of the {key} test of '{stat.name}' "
                        f"for {where}")
+    if nm.shape is None and nm.route == "model":
+        nmod = nm.n_min.get("model")
+        if nmod is None:
+            reasons.append(f"the finite-window model of '{stat.name}' did not predict a held-out "
+                           "shape within 0.1 sd at any calibrated n (or was not checked)")
+        elif n < nmod:
+            reasons.append(f"n = {n} is below n = {nmod}, from which the finite-window model of "
+                           f"'{stat.name}' predicted a held-out shape within 0.1 sd")
     if nm.kind == "curve" and (nm.usable is None or not np.any(nm.usable)):
         reasons.append(f"no grid point of '{stat.name}' has a near-normal null at this n")
     if n_duplicates > DUPLICATE_LIMIT * max(n, 1):

@@ -133,6 +133,19 @@ class _Table:
         out["cov"] = out["m2"].astype(float) / max(cnt - 1, 1)
         return out
 
+    @functools.lru_cache(maxsize=256)
+    def n_model(self, stat: str):
+        """Smallest n from which the model predicted a held-out shape within
+        tolerance (``calibrate.model.model_n_ok``); None if never or not checked."""
+        import h5py
+
+        with h5py.File(self.path, "r") as fh:
+            vals = [int(g[stat].attrs.get("n_model", -1)) for g in fh.get("holdout", {}).values()
+                    if stat in g]
+        if not vals or min(vals) < 0:
+            return None
+        return max(vals)
+
     def model(self, stat: str):
         if self._model is None:
             import h5py
@@ -295,10 +308,13 @@ def null_moments(tables: TableSet, window, n: int, stat: str) -> NullMoments | N
                 if mom is None:
                     continue
             ns = (min(c.n for c in t.info.cells), max(c.n for c in t.info.cells))
+            nmin = _nmin(t, None, stat)
+            if route == "model":
+                nmin["model"] = t.n_model(stat)
             res = NullMoments(stat, st.kind, mom["mean"], mom["cov"],
                               None if mom["usable"] is None else np.asarray(mom["usable"]) > 0,
                               mom["values"], route, [c.name for c in br], None,
-                              _nmin(t, None, stat), krange, ns, replicates=int(mom["replicates"]),
+                              nmin, krange, ns, replicates=int(mom["replicates"]),
                               table=t.path, approximate=approx)
             res.extra["nearest_shape"] = near_shape
         if stat.startswith("betti"):
