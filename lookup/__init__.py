@@ -11,18 +11,30 @@ Quick use
 >>> 0 < res.pvalue <= 1
 True
 """
-from .csrtest import csr_test
-from .diagram import Diagram, alpha_diagram
-from .errors import NullAtlasError, OptionError, PointsError, TableError, WindowError
-from .readers import read_points
-from .results import CSRTestResult, StatResult
-from .statistics import STATISTICS, default_stats
-from .validate import validate_pattern
-from .windows import Ball, Box, ConvexPolytope, Disk, PolygonWindow, Rectangle, Window, parse_window
+import importlib
 
-__all__ = [
-    "csr_test", "Diagram", "alpha_diagram", "NullAtlasError", "OptionError", "PointsError",
-    "TableError", "WindowError", "read_points", "CSRTestResult", "StatResult", "STATISTICS",
-    "default_stats", "validate_pattern", "Ball", "Box", "ConvexPolytope", "Disk",
-    "PolygonWindow", "Rectangle", "Window", "parse_window",
-]
+# Names are imported on first use (PEP 562) so that ``nullatlas --help`` and
+# other light commands start without loading numba, gudhi and scipy.
+_WHERE = {
+    "csr_test": "csrtest", "Diagram": "diagram", "alpha_diagram": "diagram",
+    "NullAtlasError": "errors", "OptionError": "errors", "PointsError": "errors",
+    "TableError": "errors", "WindowError": "errors", "read_points": "readers",
+    "CSRTestResult": "results", "StatResult": "results", "STATISTICS": "statistics",
+    "default_stats": "statistics", "validate_pattern": "validate", "Ball": "windows",
+    "Box": "windows", "ConvexPolytope": "windows", "Disk": "windows",
+    "PolygonWindow": "windows", "Rectangle": "windows", "Window": "windows",
+    "parse_window": "windows",
+}
+__all__ = list(_WHERE)
+
+
+def __getattr__(name):
+    if name in _WHERE:
+        value = getattr(importlib.import_module(f".{_WHERE[name]}", __name__), name)
+        globals()[name] = value
+        return value
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+
+
+def __dir__():
+    return sorted(list(globals()) + __all__)

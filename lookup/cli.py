@@ -9,8 +9,6 @@ import json
 import sys
 import warnings
 
-import numpy as np
-
 from .errors import NullAtlasError, OptionError
 
 PROG = "nullatlas"
@@ -39,7 +37,7 @@ def _float(text):
 
 
 def build_parser() -> argparse.ArgumentParser:
-    from .windows import SPEC_HELP
+    from .windowspec import SPEC_HELP
 
     p = _Parser(prog=PROG, description=(
         "Test whether a 2D or 3D point pattern is consistent with complete spatial "
@@ -111,12 +109,16 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def _fmt(v, width=10):
+    import numpy as np
+
     if v is None or (isinstance(v, float) and not np.isfinite(v)):
         return "-".rjust(width)
     return (" " + f"{v:.4g}").rjust(width)
 
 
 def _print_table(res, alpha, out=None):
+    import numpy as np
+
     out = out or sys.stdout
     w = res.window
     size = w.get("area", w.get("volume"))

@@ -197,10 +197,20 @@ def read_m2(ds) -> np.ndarray:
 
 
 def shipped_tables() -> dict:
-    """Paths of the tables shipped with nullatlas: dimension -> path (those present)."""
+    """Paths of the tables shipped with nullatlas: dimension -> path (those present).
+
+    The environment variable ``NULLATLAS_TABLES`` names a folder holding
+    ``null2d.h5``/``null3d.h5`` to use instead (e.g. a site's extended tables)."""
     from importlib import resources
 
     out = {}
+    folder = os.environ.get("NULLATLAS_TABLES")
+    if folder:
+        for d in (2, 3):
+            p = os.path.join(folder, f"null{d}d.h5")
+            if os.path.isfile(p):
+                out[d] = p
+        return out
     try:
         base = resources.files("nullatlas.tables")
     except ModuleNotFoundError:  # pragma: no cover - broken install

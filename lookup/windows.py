@@ -431,8 +431,7 @@ class ConvexPolytope(Window):
 
 _NUMERIC = {"rect": (Rectangle, 4), "disk": (Disk, 3), "box": (Box, 6), "ball": (Ball, 4)}
 
-SPEC_HELP = ("rect:xmin,ymin,xmax,ymax | disk:cx,cy,r | box:xmin,ymin,zmin,xmax,ymax,zmax"
-             " | ball:cx,cy,cz,r | FILE.geojson | FILE.wkt | bbox | hull")
+from .windowspec import SPEC_HELP  # noqa: E402  (re-exported)
 
 
 def _load_polygon_file(path: str) -> PolygonWindow:

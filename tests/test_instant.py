@@ -1,0 +1,165 @@
+"""The instant (table) test: size on fresh null patterns, agreement with Monte
+Carlo, the trust verdict and its fallback, user tables."""
+import json
+
+import numpy as np
+import pytest
+import shapely
+
+from nullatlas.lookup import csr_test, windows
+from nullatlas.lookup.asymptotic import asymptotic_result, verdict
+from nullatlas.lookup.montecarlo import simulate_null
+from nullatlas.lookup.nullmoments import default_tables, null_moments
+from nullatlas.lookup.statistics import PatternSummary, evaluate, resolve_stats
+
+# Fresh null patterns: a seed family unrelated to the tables' root seed.
+FRESH = 777_001
+
+
+def _sizes(window, n, stats, reps, seed):
+    """Rejection rates at 0.05 of the trusted instant tests on CSR patterns."""
+    tabs = default_tables()
+    chosen = resolve_stats(stats, window.dim)
+    nms = {s.name: null_moments(tabs, window, n, s.name) for s in chosen}
+    trusted = {s.name: verdict(nms[s.name], s, n, window, "two-sided") for s in chosen}
+    rej = {s.name: 0 for s in chosen}
+    for ss in np.random.SeedSequence(seed).spawn(reps):
+        pts = window.sample(n, np.random.default_rng(ss))
+        obs = evaluate(PatternSummary(pts, window), chosen)
+        for s in chosen:
+            r = asymptotic_result(s, obs[s.name], nms[s.name], "two-sided", n, True, [])
+            rej[s.name] += r.pvalue <= 0.05
+    return {k: v / reps for k, v in rej.items()}, trusted, nms
+
+
+@pytest.mark.slow
+def test_size_in_a_shipped_cell():
+    """Square, n = 1000 (a shipped cell): every trusted test rejects CSR at
+    0.05 in 0.05 +- 0.015 of 1200 fresh null patterns."""
+    w = windows.Rectangle(0, 0, 3, 3)
+    sizes, trusted, nms = _sizes(w, 1000, ["euler", "total0", "total1", "nnmean", "lfunc",
+                                           "maxpers1"], 1200, FRESH)
+    for name, size in sizes.items():
+        assert trusted[name][0], (name, trusted[name])
+        assert nms[name].route == "cell"
+        assert abs(size - 0.05) <= 0.015, (name, size)
+
+
+@pytest.mark.slow
+def test_size_in_a_convex_window_not_in_the_tables():
+    """A regular hexagon (kappa 3.72, between disk and square) at n = 1500:
+    the finite-window model route; its trusted tests hold their size."""
+    hexa = shapely.Polygon([(10 + 5 * np.cos(a), 5 * np.sin(a)) for a in np.arange(6) * np.pi / 3])
+    w = windows.PolygonWindow(hexa)
+    sizes, trusted, nms = _sizes(w, 1500, ["euler", "total0", "nnmean", "total1"], 1000, FRESH + 1)
+    assert nms["euler"].route == "model" and nms["euler"].shape is None
+    checked = 0
+    for name, size in sizes.items():
+        if trusted[name][0]:
+            checked += 1
+            assert abs(size - 0.05) <= 0.015, (name, size)
+    assert checked >= 3
+    # total H1 persistence: the held-out disk showed model errors above 0.1 sd
+    # below n = 5000, so it is (correctly) not trusted here
+    assert not trusted["total1"][0] and "finite-window model" in trusted["total1"][1][0]
+
+
+def test_asymptotic_and_monte_carlo_agree():
+    """Same pattern, same statistics: instant p-values against Monte Carlo
+    p-values from 999 simulations of the same statistic, within 3 Monte
+    Carlo standard errors (plus the 1/(m+1) grid)."""
+    w = windows.Disk(0, 0, 1)
+    rng = np.random.default_rng(5)
+    # a mildly clustered pattern, so that p-values are not all near 1/2
+    parents = w.sample(60, rng)
+    pts = parents[rng.integers(0, 60, 2000)] + rng.normal(0, 0.06, (2000, 2))
+    pts = pts[w.contains(pts)][:1600]
+    n = len(pts)
+    stats = resolve_stats(["total0", "nnmean", "total1", "euler"], 2)
+    r = csr_test(pts, w, [s.name for s in stats], method="asymptotic", seed=3)
+    null = simulate_null(w, n, stats, np.random.SeedSequence(9).spawn(999), jobs=2)
+    obs = evaluate(PatternSummary(pts, w), stats)
+    m = 999
+    for s in stats:
+        res = r[s.name]
+        assert res.trusted, res.reason
+        if s.kind == "curve":
+            mu, sd = null[s.name].mean(0), null[s.name].std(0, ddof=1)
+            use = np.asarray(res.curve["usable"], bool)
+            t_sim = np.max(np.abs((null[s.name][:, use] - mu[use]) / sd[use]), axis=1)
+            t_obs = np.max(np.abs((obs[s.name][use] - mu[use]) / sd[use]))
+            p_mc = (1 + np.sum(t_sim >= t_obs)) / (m + 1)
+        else:
+            x, v = obs[s.name], null[s.name]
+            p_mc = min(1.0, 2 * min((1 + np.sum(v >= x)) / (m + 1), (1 + np.sum(v <= x)) / (m + 1)))
+        se = np.sqrt(max(p_mc * (1 - p_mc), 1 / m) / m)
+        assert abs(res.pvalue - p_mc) <= 3 * se + 2 / (m + 1), (s.name, res.pvalue, p_mc)
+
+
+def test_trust_verdicts_and_auto_fallback():
+    rng = np.random.default_rng(1)
+    # a 30-point pattern: below every calibrated n
+    w = windows.Rectangle(0, 0, 1, 1)
+    r = csr_test(w.sample(30, rng), w, ["total0"], method="asymptotic", seed=1)
+    assert not r.primary.trusted and "below the smallest calibrated n" in r.primary.reason
+    r = csr_test(w.sample(30, rng), w, ["total0"], method="auto", n_sims=39, seed=1)
+    assert r.primary.method == "mc-rank" and r.primary.trusted
+    assert any("Monte Carlo used instead" in m for m in r.warnings)
+    # a polygon with a hole
+    poly = shapely.Polygon([(0, 0), (4, 0), (4, 4), (0, 4)], [[(1, 1), (3, 1), (3, 3), (1, 3)]])
+    pw = windows.PolygonWindow(poly)
+    r = csr_test(pw.sample(800, rng), pw, ["total0"], method="asymptotic", seed=1)
+    assert not r.primary.trusted and "hole" in r.primary.reason and "not convex" in r.primary.reason
+    r = csr_test(pw.sample(800, rng), pw, ["total0"], method="auto", n_sims=19, seed=1)
+    assert r.primary.method == "mc-rank"
+    # an uncalibrated 3D ball: kappa below the calibrated cube and 1:1:4 box
+    b = windows.Ball(0, 0, 0, 1)
+    r = csr_test(b.sample(600, rng), b, ["total0"], method="asymptotic", seed=1)
+    assert not r.primary.trusted and "kappa" in r.primary.reason
+    r = csr_test(b.sample(600, rng), b, ["total0"], method="auto", n_sims=19, seed=1)
+    assert r.primary.method == "mc-rank"
+
+
+def test_trusted_result_fields_and_json(capsys, tmp_path):
+    from nullatlas.lookup import cli
+    w = windows.Disk(0, 0, 150)
+    pts = w.sample(2000, np.random.default_rng(4))
+    f = tmp_path / "p.npy"
+    np.save(f, pts)
+    assert cli.main(["test", str(f), "-w", "disk:0,0,150", "--json", "--seed", "2"]) == 0
+    d = json.loads(capsys.readouterr().out)
+    assert d["method"] == "auto"
+    prim = d["results"][0]
+    assert prim["statistic"] == "euler" and prim["method"] == "asymptotic-maxabs"
+    assert prim["trusted"] is True and prim["details"]["route"] == "cell"
+    assert 0 < prim["p_value"] <= 1 and "mahalanobis_pvalue" in prim["details"]
+    # p-values of the instant test do not depend on --seed
+    assert cli.main(["test", str(f), "-w", "disk:0,0,150", "--json", "--seed", "3"]) == 0
+    d2 = json.loads(capsys.readouterr().out)
+    assert [r["p_value"] for r in d2["results"]] == [r["p_value"] for r in d["results"]]
+
+
+def test_users_table_takes_precedence(tmp_path):
+    from nullatlas.calibrate import build, shapes
+    out = tmp_path / "mine.h5"
+    build.build_table(str(out), [("disk", shapes.shape_window("disk"))], [300, 600], 60,
+                      stats=["nnmean"], root_seed=5, progress=False, n_fit=10)
+    w = windows.Disk(5, 5, 2)
+    pts = w.sample(300, np.random.default_rng(2))
+    r = csr_test(pts, w, ["nnmean"], method="asymptotic", tables=[str(out)])
+    assert r.primary.details["table"] == str(out)
+    r2 = csr_test(pts, w, ["nnmean"], method="asymptotic")
+    assert r2.primary.details["table"] != str(out)
+
+
+def test_interpolation_between_cells_is_between_them():
+    tabs = default_tables()
+    w = windows.Rectangle(0, 0, 2, 1)           # aspect 2: shape rect2
+    a = null_moments(tabs, w, 1000, "total0")
+    b = null_moments(tabs, w, 2000, "total0")
+    c = null_moments(tabs, w, 1400, "total0")
+    assert a.route == b.route == "cell" and c.route == "interpolated" and c.shape == "rect2"
+    lo, hi = sorted([a.mean[0], b.mean[0]])
+    assert lo <= c.mean[0] <= hi
+    # n Var interpolates: the sd of total0 per point scales like n^(-1/2)
+    assert a.sd[0] > c.sd[0] > b.sd[0]
