@@ -112,27 +112,41 @@ def verdict(nm: NullMoments | None, stat, n: int, window, alternative: str,
 _NULL_CACHE: dict = {}
 
 
-def _maxabs_null(nm: NullMoments, n: int, use: np.ndarray, corr: np.ndarray, n_gauss: int,
-                 rng=None) -> np.ndarray:
-    if rng is not None:
-        return gt.maxabs_null(corr, n_gauss, rng)
-    key = (nm.table, tuple(nm.cells), nm.stat, nm.route, int(n), use.tobytes(), int(n_gauss))
+def _cached(key, make):
     hit = _NULL_CACHE.get(key)
     if hit is None:
-        seed = zlib.crc32(repr(key[:5] + (use.astype(np.int8).tolist(),)).encode())
-        hit = gt.maxabs_null(corr, n_gauss, np.random.default_rng(seed))
-        if len(_NULL_CACHE) > 256:
+        if len(_NULL_CACHE) > 512:
             _NULL_CACHE.clear()
-        _NULL_CACHE[key] = hit
+        hit = _NULL_CACHE[key] = make()
     return hit
 
 
+def _curve_null(nm: NullMoments, n: int, use: np.ndarray, n_gauss: int, rng=None):
+    """(sorted simulated max |z|, Spectral) of a curve's usable grid points."""
+    def make(rng=rng):
+        corr = gt.correlation(nm.cov[np.ix_(use, use)])
+        if rng is None:
+            seed = zlib.crc32(repr(key[:5] + (use.astype(np.int8).tolist(),)).encode())
+            rng = np.random.default_rng(seed)
+        return gt.maxabs_null(corr, n_gauss, rng), gt.spectral(corr)
+
+    key = (nm.table, tuple(nm.cells), nm.stat, nm.route, int(n), use.tobytes(), int(n_gauss))
+    return make() if rng is not None else _cached(key, make)
+
+
+def _gumbel(nm: NullMoments, n: int) -> GumbelTail:
+    return _cached((nm.table, tuple(nm.cells), nm.stat, nm.route, int(n), "gumbel"),
+                   lambda: GumbelTail(nm.values))
+
+
 def _scalar_p(z: float, alternative: str) -> float:
+    from scipy.special import ndtr
+
     if alternative == "greater":
-        return float(_st.norm.sf(z))
+        return float(ndtr(-z))
     if alternative == "less":
-        return float(_st.norm.cdf(z))
-    return float(min(1.0, 2 * _st.norm.sf(abs(z))))
+        return float(ndtr(z))
+    return float(min(1.0, 2 * ndtr(-abs(z))))
 
 
 def asymptotic_result(stat, observed, nm: NullMoments, alternative: str, n: int,
@@ -153,17 +167,14 @@ def asymptotic_result(stat, observed, nm: NullMoments, alternative: str, n: int,
         with np.errstate(invalid="ignore", divide="ignore"):
             z = np.where(sd > 0, (obs - mean) / np.where(sd > 0, sd, 1.0), np.nan)
         if use.any():
-            cov = nm.cov[np.ix_(use, use)]
-            corr = gt.correlation(cov)
-            null = _maxabs_null(nm, n, use, corr, n_gauss, rng)
+            null, sp = _curve_null(nm, n, use, n_gauss, rng)
             t = float(np.max(np.abs(z[use])))
             p = float(gt.maxabs_pvalue(t, null))
-            sp = gt.spectral(corr)
             d2 = float(sp.statistic(z[use]))
             details.update({"mahalanobis": d2, "mahalanobis_df": sp.rank,
                             "mahalanobis_pvalue": float(gt.mahalanobis_pvalue(d2, sp.rank)),
                             "grid_points_used": int(use.sum()), "gaussian_vectors": n_gauss})
-            c95 = float(np.quantile(null, 0.95))
+            c95 = float(null[int(0.95 * (len(null) - 1))])
         else:
             t, p, c95 = float("nan"), float("nan"), float("nan")
         grid = np.asarray(stat.grid).tolist()
@@ -176,7 +187,7 @@ def asymptotic_result(stat, observed, nm: NullMoments, alternative: str, n: int,
         zz, mu_s, sd_s = t, float("nan"), float("nan")
     elif nm.kind == "extreme":
         x = float(obs.reshape(-1)[0])
-        tail = GumbelTail(nm.values)
+        tail = _gumbel(nm, n)
         up = float(tail.pvalue(x))
         low = float((np.searchsorted(tail.values, x, side="right") + 1.0) / (tail.m + 1.0))
         p = {"greater": up, "less": low}.get(alternative, min(1.0, 2 * min(up, low)))

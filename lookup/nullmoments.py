@@ -179,6 +179,35 @@ def default_tables() -> TableSet:
     return TableSet()
 
 
+@functools.lru_cache(maxsize=256)
+def _shape_by_spec(spec: str, kind: str):
+    from .windows import parse_window
+
+    try:
+        return normalise(parse_window(spec))[0]
+    except ValueError:
+        return None
+
+
+def _shape_name(window) -> str | None:
+    """Calibrated-shape name of a window (cached by its specification)."""
+    if window.estimated or window.kind in ("hull",):
+        try:
+            return normalise(window, allow_estimated=True)[0]
+        except ValueError:
+            return None
+    try:
+        spec = window.spec()
+    except NotImplementedError:
+        spec = None
+    if spec is None or not isinstance(spec, str) or spec.endswith((".geojson", ".json", ".wkt")):
+        try:
+            return normalise(window)[0]
+        except ValueError:
+            return None
+    return _shape_by_spec(spec, window.kind)
+
+
 def _nmin(table: _Table, shape: str | None, stat: str) -> dict:
     if shape is not None:
         return table.info.n_min(shape, stat)
@@ -261,10 +290,7 @@ def null_moments(tables: TableSet, window, n: int, stat: str) -> NullMoments | N
     for t in tables.for_dimension(d):
         if not any(stat in c.stats for c in t.info.cells):
             continue
-        try:
-            shape, _ = normalise(window)
-        except ValueError:
-            shape = None
+        shape = _shape_name(window)
         kap = float(window.kappa)
         krange = (min(t.kappas.values()), max(t.kappas.values()))
         if shape in t.by_shape:

@@ -109,18 +109,20 @@ def _poly_normalise(w: W.PolygonWindow) -> W.Window:
     return W.PolygonWindow(shapely.normalize(g)), best[0]
 
 
-def normalise(window: W.Window) -> tuple[str, W.Window]:
+def normalise(window: W.Window, allow_estimated: bool = False) -> tuple[str, W.Window]:
     """Name and unit-content representative of a user's window.
 
     Rectangles and boxes keep their aspect (sides sorted); disks and balls
     become the unit disk/ball; polygons are centred, scaled and rotated onto
-    their principal axes.  Windows estimated from the data are refused.
+    their principal axes.  Windows estimated from the data are refused
+    unless ``allow_estimated`` (the runtime looks their shape up; a table is
+    never built for them).
 
     Returns
     -------
     (name, window)
     """
-    if window.estimated:
+    if window.estimated and not allow_estimated:
         raise WindowError("a table cannot be built for a window estimated from the data "
                           "(bbox/hull); give the window explicitly")
     if isinstance(window, W.Rectangle):       # also Box
