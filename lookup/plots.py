@@ -10,7 +10,7 @@ import numpy as np
 from .atomic import atomic_path
 from .errors import OptionError
 
-__all__ = ["plot_result", "check_plot_path", "PLOT_FORMATS"]
+__all__ = ["plot_result", "plot_batch", "check_plot_path", "PLOT_FORMATS"]
 
 PLOT_FORMATS = (".png", ".pdf", ".svg")
 
@@ -86,5 +86,47 @@ def plot_result(result, path: str, title: str | None = None) -> str:
     ext = os.path.splitext(path)[1]
     with atomic_path(path) as tmp:
         fig.savefig(tmp, format=ext[1:], dpi=110)
+    plt.close(fig)
+    return path
+
+
+def plot_batch(res, path: str, alpha: float = 0.05) -> str:
+    """Summary figure of a batch: histogram of the primary p-values, and the
+    sorted p-values against the Benjamini–Hochberg line alpha i / m."""
+    check_plot_path(path)
+    import matplotlib
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    p = res.pvalue
+    p = p[np.isfinite(p)]
+    fig, axes = plt.subplots(1, 2, figsize=(10, 3.9))
+    ax = axes[0]
+    ax.hist(p, bins=np.linspace(0, 1, 21), color="0.55", edgecolor="white")
+    if len(p):
+        ax.axhline(len(p) / 20, color="k", ls=":", lw=1, label="expected under CSR")
+        ax.legend(fontsize=8)
+    ax.set_xlabel("p-value of the primary test")
+    ax.set_ylabel("files")
+    ax.set_title(f"{len(p)} files ({len(res.rows) - len(p)} without a p-value)")
+    ax = axes[1]
+    m = len(p)
+    if m:
+        ps = np.sort(p)
+        i = np.arange(1, m + 1)
+        bh = benjamini_hochberg_line = alpha * i / m
+        rej = ps <= bh
+        ax.plot(i, ps, "o", ms=3, color="C0", label="sorted p-values")
+        ax.plot(i, benjamini_hochberg_line, "k-", lw=1, label=f"BH line {alpha:g} i/m")
+        ax.plot(i[rej], ps[rej], "o", ms=4, color="C3", label="below the line")
+        ax.set_yscale("log")
+        ax.legend(fontsize=8)
+    ax.set_xlabel("rank i")
+    ax.set_ylabel("p-value")
+    ax.set_title("Benjamini-Hochberg")
+    fig.tight_layout()
+    ext = os.path.splitext(path)[1].lower().lstrip(".")
+    with atomic_path(path) as tmp:
+        fig.savefig(tmp, format=ext, dpi=110)
     plt.close(fig)
     return path

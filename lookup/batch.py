@@ -1,0 +1,235 @@
+"""Batch mode: test many pattern files, in parallel, with adjusted p-values.
+
+Inputs are files, folders (every ``.csv``, ``.tsv``, ``.txt``, ``.dat``,
+``.npy`` file in it, sorted by name), glob patterns, or a manifest CSV with
+columns ``file`` and ``window`` (optionally ``columns``) giving a window per
+file; manifest paths are relative to the manifest's folder and may not leave
+it (an absolute path or ``..`` is refused unless ``allow_absolute``).
+
+Each file is tested by :func:`lookup.csr_test` in a worker process that
+reads it itself, so memory stays bounded by one pattern per worker whatever
+the batch size; results stream back in file order.  File i gets the i-th
+``SeedSequence.spawn`` child of the batch seed, so results do not depend on
+the number of workers.  A file that fails (unreadable, bad window, bad
+points) is reported with its one-line error and the others are processed.
+The primary test's p-values are adjusted over the files that produced one:
+Holm (family-wise) and Benjamini–Hochberg (false discovery rate), see
+``lookup.adjust``.
+"""
+from __future__ import annotations
+
+import csv
+import glob
+import json
+import os
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .adjust import benjamini_hochberg, holm
+from .errors import NullAtlasError, OptionError
+
+__all__ = ["BatchItem", "BatchResult", "collect_inputs", "read_manifest", "run_batch",
+           "POINT_SUFFIXES"]
+
+POINT_SUFFIXES = (".csv", ".tsv", ".txt", ".dat", ".npy")
+
+
+@dataclass
+class BatchItem:
+    """One file of a batch and its window specification."""
+
+    path: str
+    window: str
+    columns: str | None = None
+
+
+@dataclass
+class BatchResult:
+    """Rows of a batch (one per file, input order) and the adjustment used.
+
+    Attributes
+    ----------
+    rows : list of dict
+        ``file``, ``n``, ``statistic`` (primary), ``value``, ``p_value``,
+        ``method``, ``trusted``, ``reason``, ``p_holm``, ``p_bh``, ``error``,
+        ``secondary`` (name -> p-value, unadjusted).
+    statistic, pvalue : ndarray
+        Primary statistics and raw p-values (NaN for failed files).
+    """
+
+    rows: list = field(default_factory=list)
+
+    @property
+    def pvalue(self) -> np.ndarray:
+        return np.array([r["p_value"] if r["p_value"] is not None else np.nan for r in self.rows])
+
+    @property
+    def statistic(self) -> np.ndarray:
+        return np.array([r["value"] if r["value"] is not None else np.nan for r in self.rows])
+
+    @property
+    def failed(self) -> list:
+        return [r for r in self.rows if r["error"]]
+
+
+def _inside(base: str, path: str) -> bool:
+    base = os.path.realpath(base)
+    return os.path.commonpath([base, os.path.realpath(path)]) == base
+
+
+def read_manifest(path: str, allow_absolute: bool = False) -> list[BatchItem]:
+    """Items of a manifest CSV (columns ``file``, ``window``, optional ``columns``)."""
+    if not os.path.isfile(path):
+        raise OptionError(f"{path}: no such manifest file")
+    base = os.path.dirname(os.path.abspath(path))
+    try:
+        with open(path, newline="", encoding="utf-8") as fh:
+            rows = list(csv.DictReader(fh))
+    except (OSError, UnicodeDecodeError, csv.Error) as exc:
+        raise OptionError(f"{path}: cannot read the manifest ({exc})") from None
+    if not rows or not {"file", "window"} <= set(rows[0].keys() or ()):
+        raise OptionError(f"{path}: a manifest needs a header with columns 'file' and 'window'")
+    out = []
+    for i, r in enumerate(rows, start=2):
+        f, w = (r.get("file") or "").strip(), (r.get("window") or "").strip()
+        if not f or not w:
+            raise OptionError(f"{path}, row {i}: empty 'file' or 'window'")
+        full = f if os.path.isabs(f) else os.path.join(base, f)
+        if not allow_absolute and (os.path.isabs(f) or not _inside(base, full)):
+            raise OptionError(f"{path}, row {i}: '{f}' is outside the manifest's folder "
+                              "(use --allow-absolute to permit it)")
+        out.append(BatchItem(full, w, (r.get("columns") or "").strip() or None))
+    return out
+
+
+def collect_inputs(inputs: list[str], window: str | None, columns: str | None = None,
+                   manifest: str | None = None, allow_absolute: bool = False) -> list[BatchItem]:
+    """Expand files, folders and globs (or read a manifest) into items."""
+    if manifest:
+        if inputs:
+            raise OptionError("give either a manifest or input files, not both")
+        return read_manifest(manifest, allow_absolute)
+    if not window:
+        raise OptionError("give --window for all files, or a --manifest with a window per file")
+    paths = []
+    for spec in inputs:
+        if os.path.isdir(spec):
+            found = sorted(os.path.join(spec, f) for f in os.listdir(spec)
+                           if f.lower().endswith(POINT_SUFFIXES))
+            if not found:
+                raise OptionError(f"{spec}: the folder holds no point files ({', '.join(POINT_SUFFIXES)})")
+            paths += found
+        elif any(ch in spec for ch in "*?["):
+            found = sorted(glob.glob(spec))
+            if not found:
+                raise OptionError(f"'{spec}' matches no file")
+            paths += found
+        else:
+            paths.append(spec)       # a missing file is reported in its row
+    if not paths:
+        raise OptionError("no input files")
+    return [BatchItem(p, window, columns) for p in paths]
+
+
+def _one(item: BatchItem, opts: dict, seed: int) -> dict:
+    """Test one file; any input error becomes the row's ``error``."""
+    import warnings
+
+    from .csrtest import csr_test
+    from .readers import parse_columns
+
+    row = {"file": item.path, "window": item.window, "n": None, "statistic": None, "value": None,
+           "p_value": None, "method": None, "trusted": None, "reason": "", "error": "",
+           "secondary": {}, "seed": seed}
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            res = csr_test(item.path, item.window, opts.get("stats"), method=opts["method"],
+                           n_sims=opts["n_sims"], seed=seed, jobs=1,
+                           alternative=opts["alternative"], on_duplicates=opts["on_duplicates"],
+                           alpha=opts["alpha"], columns=parse_columns(item.columns),
+                           progress=False, engine=opts["engine"], tables=opts.get("tables"))
+    except NullAtlasError as exc:
+        row["error"] = str(exc)
+        return row
+    p = res.primary
+    row.update({"n": res.n, "statistic": p.name, "value": p.statistic, "p_value": p.pvalue,
+                "method": p.method, "trusted": p.trusted, "reason": p.reason,
+                "secondary": {r.name: r.pvalue for r in res.results[1:]}})
+    return row
+
+
+def run_batch(items: list[BatchItem], *, stats=None, method="auto", n_sims=999, seed=None,
+              jobs=1, alternative="two-sided", on_duplicates="error", alpha=0.05,
+              engine="fast", tables=None, progress=None) -> BatchResult:
+    """Test every item; see the module docstring.
+
+    Returns
+    -------
+    BatchResult
+    """
+    from tqdm.auto import tqdm
+
+    if jobs < 0:
+        raise OptionError(f"--jobs must be 0 (all cores) or positive, got {jobs}")
+    jobs = jobs or os.cpu_count() or 1
+    if seed is None:
+        seed = int(np.random.SeedSequence().entropy % (2 ** 63))
+    kids = np.random.SeedSequence(int(seed)).spawn(len(items))
+    seeds = [int(k.generate_state(2, np.uint32).astype(np.uint64) @ np.array([1, 2 ** 32],
+                                                                            np.uint64) % (2 ** 63))
+             for k in kids]
+    opts = {"stats": stats, "method": method, "n_sims": n_sims, "alternative": alternative,
+            "on_duplicates": on_duplicates, "alpha": alpha, "engine": engine, "tables": tables}
+    bar = tqdm(total=len(items), desc="patterns", unit="file",
+               disable=None if progress is None else not progress, leave=False)
+    rows = []
+    try:
+        if jobs == 1:
+            for it, s in zip(items, seeds):
+                rows.append(_one(it, opts, s))
+                bar.update(1)
+        else:
+            from joblib import Parallel, delayed
+
+            gen = Parallel(n_jobs=jobs, return_as="generator")(
+                delayed(_one)(it, opts, s) for it, s in zip(items, seeds))
+            for r in gen:
+                rows.append(r)
+                bar.update(1)
+    finally:
+        bar.close()
+    p = np.array([r["p_value"] if r["p_value"] is not None and np.isfinite(r["p_value"])
+                  else np.nan for r in rows])
+    ph, pb = holm(p), benjamini_hochberg(p)
+    for r, a, b in zip(rows, ph, pb):
+        r["p_holm"] = None if not np.isfinite(a) else float(a)
+        r["p_bh"] = None if not np.isfinite(b) else float(b)
+    res = BatchResult(rows)
+    res.seed = int(seed)
+    return res
+
+
+def write_results(res: BatchResult, path: str) -> None:
+    """Write the rows to ``path`` (.csv or .json), atomically."""
+    from .atomic import atomic_path
+    from .results import _clean
+
+    ext = os.path.splitext(path)[1].lower()
+    with atomic_path(path) as tmp:
+        if ext == ".json":
+            with open(tmp, "w", encoding="utf-8") as fh:
+                json.dump({"seed": getattr(res, "seed", None), "rows": _clean(res.rows)}, fh,
+                          indent=1, allow_nan=False)
+        else:
+            keys = ["file", "window", "n", "statistic", "value", "p_value", "p_holm", "p_bh",
+                    "method", "trusted", "reason", "error", "seed"]
+            sec = sorted({k for r in res.rows for k in r["secondary"]})
+            with open(tmp, "w", newline="", encoding="utf-8") as fh:
+                w = csv.writer(fh)
+                w.writerow(keys + [f"p_{s}" for s in sec])
+                for r in res.rows:
+                    w.writerow([("" if r.get(k) is None else r.get(k)) for k in keys]
+                               + [("" if r["secondary"].get(s) is None else r["secondary"][s])
+                                  for s in sec])

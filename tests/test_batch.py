@@ -1,0 +1,142 @@
+"""Batch mode: adjusted p-values against references, bounded memory, bad files,
+determinism, manifests; and the figures of instant tests and batches."""
+import json
+import os
+import tracemalloc
+
+import numpy as np
+import pytest
+from scipy import stats as st
+
+from nullatlas.lookup import cli, csr_test, windows
+from nullatlas.lookup.adjust import benjamini_hochberg, holm
+from nullatlas.lookup.batch import collect_inputs, read_manifest, run_batch
+from nullatlas.lookup.errors import OptionError
+
+
+def test_bh_matches_scipy_and_holm_matches_its_definition():
+    rng = np.random.default_rng(0)
+    for m in (1, 2, 7, 50):
+        p = rng.random(m) ** 3
+        # Benjamini & Hochberg (1995): scipy.stats.false_discovery_control
+        np.testing.assert_allclose(benjamini_hochberg(p), st.false_discovery_control(p, method="bh"))
+        # Holm (1979), from the definition: max_{j<=i} (m - j + 1) p_(j), capped at 1
+        o = np.argsort(p)
+        ref = np.empty(m)
+        run = 0.0
+        for i, k in enumerate(o):
+            run = max(run, min(1.0, (m - i) * p[k]))
+            ref[k] = run
+        np.testing.assert_allclose(holm(p), ref)
+    q = np.array([0.01, np.nan, 0.04])
+    assert np.isnan(holm(q)[1]) and holm(q)[0] == pytest.approx(0.02)
+    with pytest.raises(ValueError):
+        holm([1.5])
+
+
+def _files(folder, k, n=120, bad=False):
+    w = windows.Rectangle(0, 0, 1, 1)
+    rng = np.random.default_rng(1)
+    os.makedirs(folder, exist_ok=True)
+    for i in range(k):
+        np.save(os.path.join(folder, f"p{i:04d}.npy"), w.sample(n, rng))
+    if bad:
+        with open(os.path.join(folder, "p0002.csv"), "w") as fh:
+            fh.write("x,y\n0.1,0.2\n0.5,abc\n")
+
+
+def test_batch_reports_a_bad_file_and_processes_the_rest(tmp_path):
+    _files(tmp_path / "in", 6, bad=True)
+    items = collect_inputs([str(tmp_path / "in")], "rect:0,0,1,1")
+    res = run_batch(items, stats=["total0"], method="asymptotic", seed=3, progress=False)
+    assert len(res.rows) == 7 and len(res.failed) == 1
+    badrow = res.failed[0]
+    assert badrow["file"].endswith("p0002.csv") and "abc" in badrow["error"]
+    ok = [r for r in res.rows if not r["error"]]
+    assert all(0 < r["p_value"] <= 1 and r["p_holm"] >= r["p_value"] for r in ok)
+    p = np.array([r["p_value"] for r in ok])
+    np.testing.assert_allclose([r["p_bh"] for r in ok], st.false_discovery_control(p))
+
+
+def test_batch_is_the_same_for_any_number_of_workers(tmp_path):
+    _files(tmp_path / "in", 5)
+    items = collect_inputs([str(tmp_path / "in" / "*.npy")], "rect:0,0,1,1")
+    kw = dict(stats=["nnmean"], method="mc", n_sims=19, seed=11, progress=False)
+    a = run_batch(items, jobs=1, **kw)
+    b = run_batch(items, jobs=2, **kw)
+    assert [r["p_value"] for r in a.rows] == [r["p_value"] for r in b.rows]
+    assert len({r["seed"] for r in a.rows}) == 5          # a distinct seed per file
+
+
+@pytest.mark.slow
+def test_batch_memory_is_bounded_by_one_pattern(tmp_path):
+    """200 small files: the peak of traced allocations does not grow with the
+    number of files (50 vs 200), since each file is read, tested and dropped."""
+    _files(tmp_path / "in", 200, n=80)
+    items = collect_inputs([str(tmp_path / "in")], "rect:0,0,1,1")
+    peaks = []
+    for k in (50, 200):
+        run_batch(items[:5], stats=["total0"], method="asymptotic", seed=1, progress=False)
+        tracemalloc.start()
+        res = run_batch(items[:k], stats=["total0"], method="asymptotic", seed=1, progress=False)
+        peaks.append(tracemalloc.get_traced_memory()[1])
+        tracemalloc.stop()
+        assert len(res.rows) == k and not res.failed
+    assert peaks[1] < peaks[0] + 2_000_000, peaks      # rows are small; patterns are not kept
+
+
+def test_manifest_windows_and_escape(tmp_path):
+    _files(tmp_path / "m", 2)
+    man = tmp_path / "m" / "list.csv"
+    man.write_text("file,window\np0000.npy,rect:0,0,1,1\np0001.npy,\"rect:0,0,1,1\"\n")
+    items = read_manifest(str(man))
+    assert [os.path.basename(i.path) for i in items] == ["p0000.npy", "p0001.npy"]
+    evil = tmp_path / "m" / "evil.csv"
+    evil.write_text("file,window\n../../etc/passwd,rect:0,0,1,1\n")
+    with pytest.raises(OptionError, match="outside the manifest's folder"):
+        read_manifest(str(evil))
+    with pytest.raises(OptionError, match="columns 'file' and 'window'"):
+        (tmp_path / "m" / "nohead.csv").write_text("a,b\n1,2\n")
+        read_manifest(str(tmp_path / "m" / "nohead.csv"))
+
+
+def test_batch_cli_writes_csv_json_and_figure(tmp_path, capsys):
+    _files(tmp_path / "in", 4)
+    out, fig = tmp_path / "res.json", tmp_path / "batch.png"
+    rc = cli.main(["batch", str(tmp_path / "in"), "-w", "rect:0,0,1,1", "--stat", "total0",
+                   "--method", "asymptotic", "--seed", "2", "--out", str(out), "--plot", str(fig),
+                   "--json", "--no-progress"])
+    assert rc == 0
+    d = json.loads(capsys.readouterr().out)
+    assert d["files"] == 4 and d["failed"] == 0 and json.loads(out.read_text())["rows"]
+    assert fig.stat().st_size > 1000
+    rc = cli.main(["batch", str(tmp_path / "in"), "-w", "rect:0,0,1,1", "--out", str(tmp_path / "x.txt")])
+    assert rc == 2 and "--out must end" in capsys.readouterr().err
+
+
+def test_figures_have_the_expected_panels(tmp_path):
+    import matplotlib
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    from nullatlas.lookup.plots import plot_result
+    w = windows.Disk(0, 0, 1)
+    pts = w.sample(1500, np.random.default_rng(3))
+    r = csr_test(pts, w, ["euler", "total0", "nnmean"], method="asymptotic", seed=1)
+    seen = {}
+    real = plt.Figure.savefig
+
+    def spy(self, *a, **k):
+        seen["titles"] = [ax.get_title() for ax in self.axes]
+        seen["xlabels"] = [ax.get_xlabel() for ax in self.axes]
+        return real(self, *a, **k)
+
+    plt.Figure.savefig = spy
+    try:
+        plot_result(r, str(tmp_path / "r.png"))
+    finally:
+        plt.Figure.savefig = real
+    assert any("persistence diagram" in t for t in seen["titles"])
+    assert any(t.startswith("euler") for t in seen["titles"])
+    assert any("z" in x for x in seen["xlabels"])
+    assert (tmp_path / "r.png").stat().st_size > 1000
