@@ -54,30 +54,51 @@ def plot_result(result, path: str, title: str | None = None) -> str:
         ax.legend(fontsize=8)
     ax.set_title("persistence diagram")
     for ax, r in zip(axes[1:], curves):
+        # each curve standardised: z = (observed - null mean) / null sd, with
+        # the pointwise (+-1.96) and global 95% bands in the same units
         c = r.curve
         g = np.asarray(c["grid"], float)
-        mean = np.asarray(c["null_mean"], float)
         f = lambda key: np.asarray([np.nan if v is None else v for v in c[key]], float)
-        ax.fill_between(g, f("global_lo"), f("global_hi"), color="tab:blue", alpha=0.18,
-                        label="global 95% envelope")
-        ax.fill_between(g, f("pointwise_lo"), f("pointwise_hi"), color="tab:blue", alpha=0.35,
-                        label="pointwise 95%")
-        ax.plot(g, mean, color="tab:blue", lw=1, label="null mean")
-        ax.plot(g, f("observed"), color="black", lw=1.6, label="observed")
+        mean, sd = f("null_mean"), f("null_sd")
+        with np.errstate(invalid="ignore", divide="ignore"):
+            z = np.where(sd > 0, (f("observed") - mean) / sd, np.nan)
+            glo = np.where(sd > 0, (f("global_lo") - mean) / sd, np.nan)
+            ghi = np.where(sd > 0, (f("global_hi") - mean) / sd, np.nan)
+        used = np.isfinite(f("z")) if "z" in c else np.isfinite(z)
+        ax.fill_between(g, glo, ghi, color="tab:blue", alpha=0.18, label="global 95% band")
+        ax.fill_between(g, -1.96, 1.96, color="tab:blue", alpha=0.30, label="pointwise 95%")
+        ax.axhline(0, color="tab:blue", lw=0.8)
+        ax.plot(g, np.where(used, z, np.nan), color="black", lw=1.6, label="observed z")
+        if (~used & np.isfinite(z)).any():
+            ax.plot(g, np.where(~used, z, np.nan), color="grey", lw=1, ls=":",
+                    label="not used by the test")
         tag = " (primary)" if r.primary else ""
-        ax.set_title(f"{r.name}{tag}: p = {r.pvalue:.3g}")
-        ax.set_xlabel("normalised radius")
+        ax.set_title(f"{r.name}{tag}: p = {r.pvalue:.3g}" + ("" if r.trusted else " (untrusted)"))
+        ax.set_xlabel("normalised radius" if r.name not in ("apf0", "apf1", "apf2")
+                      else "mean age (normalised)")
+        ax.set_ylabel("z (standardised)")
         ax.legend(fontsize=7)
     if scalars:
+        # observed z of each scalar against the null density of z
         ax = axes[1 + len(curves)]
-        zs = [r.z for r in scalars]
-        colors = ["tab:red" if r.pvalue <= 0.05 else "tab:grey" for r in scalars]
-        ax.barh([r.name for r in scalars], zs, color=colors)
-        ax.axvline(0, color="black", lw=0.8)
-        for v in (-1.96, 1.96):
-            ax.axvline(v, color="grey", ls="--", lw=0.8)
-        ax.set_xlabel("z against the simulated null (red: p <= 0.05)")
+        xx = np.linspace(-4, 4, 200)
+        ax.plot(xx, np.exp(-xx ** 2 / 2) / np.sqrt(2 * np.pi), color="tab:blue", lw=1,
+                label="null density of z (normal limit)")
+        ax.fill_between(xx, 0, np.exp(-xx ** 2 / 2) / np.sqrt(2 * np.pi),
+                        where=np.abs(xx) >= 1.96, color="tab:blue", alpha=0.25,
+                        label="two-sided 5% tails")
+        for k, r in enumerate(scalars):
+            if r.z is None or not np.isfinite(r.z):
+                continue
+            zc = float(np.clip(r.z, -4, 4))
+            col = "tab:red" if (r.pvalue is not None and r.pvalue <= 0.05) else "black"
+            ax.axvline(zc, color=col, lw=1.2)
+            ax.annotate(f"{r.name}{'' if abs(r.z) <= 4 else ' (off scale)'}", (zc, 0.42 - 0.04 * (k % 8)),
+                        fontsize=7, rotation=90, ha="right", va="top", color=col)
+        ax.set_xlabel("observed z (red: p <= 0.05)")
+        ax.set_ylim(0, 0.45)
         ax.set_title("scalar statistics")
+        ax.legend(fontsize=7, loc="upper right")
     for ax in axes[npanel:]:
         ax.set_visible(False)
     w = result.window
