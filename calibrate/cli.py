@@ -13,8 +13,8 @@ import argparse
 import json
 import sys
 
-from nullatlas.lookup.cli import _int, _Parser
-from nullatlas.lookup.errors import NullAtlasError, OptionError
+from nullatlas.lookup.cli import _int, _Parser, guarded
+from nullatlas.lookup.errors import OptionError
 
 PROG = "nullatlas-calibrate"
 
@@ -208,25 +208,17 @@ def _clean(v):
 def main(argv=None) -> int:
     """Entry point of ``nullatlas-calibrate``."""
     a = build_parser().parse_args(argv)
-    try:
+
+    def run():
         s = {"build": _cmd_build, "extend": _cmd_extend, "fit": _cmd_fit}[a.command](a)
         if a.json:
             json.dump(_clean(s), sys.stdout, indent=2, allow_nan=False)
             sys.stdout.write("\n")
         else:
             _print_summary(s)
-        sys.stdout.flush()
-    except NullAtlasError as exc:
-        sys.stderr.write(f"{PROG}: error: {exc}\n")
-        return 2
-    except BrokenPipeError:       # output piped into head & co.
-        import os
-        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
         return 0
-    except KeyboardInterrupt:
-        sys.stderr.write(f"{PROG}: interrupted; run the same command again to resume\n")
-        return 130
-    return 0
+
+    return guarded(PROG, run, "interrupted; run the same command again to resume")
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -23,32 +23,25 @@ def _prep(p):
     return p, ok
 
 
-def holm(p) -> np.ndarray:
-    """Holm-adjusted p-values (NaN kept)."""
+def _adjusted(p, step) -> np.ndarray:
+    """Apply ``step(sorted finite p, m)`` and put the result back in place."""
     p, ok = _prep(p)
     out = np.full(p.shape, np.nan)
     q = p[ok]
-    m = len(q)
-    if m:
+    if len(q):
         order = np.argsort(q, kind="stable")
-        adj = np.minimum(1.0, np.maximum.accumulate((m - np.arange(m)) * q[order]))
-        res = np.empty(m)
-        res[order] = adj
+        res = np.empty(len(q))
+        res[order] = step(q[order], len(q))
         out[ok] = res
     return out
+
+
+def holm(p) -> np.ndarray:
+    """Holm-adjusted p-values (NaN kept)."""
+    return _adjusted(p, lambda s, m: np.minimum(1.0, np.maximum.accumulate((m - np.arange(m)) * s)))
 
 
 def benjamini_hochberg(p) -> np.ndarray:
     """Benjamini–Hochberg adjusted p-values (NaN kept)."""
-    p, ok = _prep(p)
-    out = np.full(p.shape, np.nan)
-    q = p[ok]
-    m = len(q)
-    if m:
-        order = np.argsort(q, kind="stable")
-        ranked = q[order] * m / np.arange(1, m + 1)
-        adj = np.minimum(1.0, np.minimum.accumulate(ranked[::-1])[::-1])
-        res = np.empty(m)
-        res[order] = adj
-        out[ok] = res
-    return out
+    return _adjusted(p, lambda s, m: np.minimum(
+        1.0, np.minimum.accumulate((s * m / np.arange(1, m + 1))[::-1])[::-1]))

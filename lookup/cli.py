@@ -330,23 +330,30 @@ def _cmd_tables(a) -> int:
     return 0
 
 
-def main(argv=None) -> int:
-    """Entry point of the ``nullatlas`` command."""
-    parser = build_parser()
-    a = parser.parse_args(argv)
+def guarded(prog: str, run, interrupted: str = "interrupted") -> int:
+    """Run ``run()`` the way every nullatlas command ends: an input error is one
+    line on standard error and status 2; a closed output pipe (``| head``) is
+    not an error; Ctrl-C is status 130."""
     try:
-        return {"test": _cmd_test, "stats": _cmd_stats, "tables": _cmd_tables,
-                "batch": _cmd_batch}[a.command](a)
+        rc = run()
+        sys.stdout.flush()
+        return rc
     except NullAtlasError as exc:
-        sys.stderr.write(f"{PROG}: error: {exc}\n")
+        sys.stderr.write(f"{prog}: error: {exc}\n")
         return 2
-    except BrokenPipeError:       # output piped into head & co.
-        import os
+    except BrokenPipeError:
         os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
         return 0
     except KeyboardInterrupt:
-        sys.stderr.write(f"{PROG}: interrupted\n")
+        sys.stderr.write(f"{prog}: {interrupted}\n")
         return 130
+
+
+def main(argv=None) -> int:
+    """Entry point of the ``nullatlas`` command."""
+    a = build_parser().parse_args(argv)
+    cmds = {"test": _cmd_test, "stats": _cmd_stats, "tables": _cmd_tables, "batch": _cmd_batch}
+    return guarded(PROG, lambda: cmds[a.command](a))
 
 
 if __name__ == "__main__":  # pragma: no cover
