@@ -13,7 +13,7 @@ import argparse
 import json
 import sys
 
-from nullatlas.lookup.cli import _int, _Parser, guarded
+from nullatlas.lookup.cli import _float, _int, _Parser, guarded
 from nullatlas.lookup.errors import OptionError
 
 PROG = "nullatlas-calibrate"
@@ -27,6 +27,17 @@ def _int_list(text):
             from None
     if not vals:
         raise argparse.ArgumentTypeError("empty list of n values")
+    return vals
+
+
+def _float_list(text):
+    try:
+        vals = [float(v) for v in text.split(",") if v.strip()]
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"'{text}' is not a comma-separated list of numbers") \
+            from None
+    if not vals:
+        raise argparse.ArgumentTypeError("empty list")
     return vals
 
 
@@ -91,6 +102,54 @@ def build_parser() -> argparse.ArgumentParser:
     g.add_argument("--window", metavar="SPEC")
     e.add_argument("--n", type=_int_list, metavar="LIST")
     _add_run_options(e)
+
+    c = sub.add_parser("check", help="check the instant test on fresh CSR patterns",
+                       description="Simulate fresh CSR patterns in a window, standardise them "
+                       "with the tables as 'nullatlas test' does, and report per statistic the "
+                       "KS distance, the size at 0.01/0.05/0.10 with Wilson intervals, the "
+                       "tails, mean and sd of z, and whether the instant test holds.")
+    g = c.add_mutually_exclusive_group(required=True)
+    g.add_argument("--window", metavar="SPEC", help="the window (any spec)")
+    g.add_argument("--shape", metavar="NAME", help="a calibrated shape (unit area/volume)")
+    c.add_argument("--n", type=_int_list, required=True, metavar="LIST")
+    c.add_argument("--reps", type=_int, default=1000, metavar="R",
+                   help="fresh CSR patterns per n (default: 1000)")
+    c.add_argument("--stat", action="append", metavar="NAME",
+                   help="statistics (default: those of 'nullatlas test')")
+    c.add_argument("--table", action="append", metavar="FILE", help="your own table(s)")
+    c.add_argument("--seed", type=_int, default=None, metavar="S",
+                   help="seed of the fresh patterns (default: fixed, not the tables' seed)")
+    c.add_argument("--pattern", metavar="FILE",
+                   help="also compare instant and Monte Carlo p-values on this pattern")
+    c.add_argument("--sims", type=_int, default=999, metavar="M",
+                   help="Monte Carlo simulations for --pattern (default: 999)")
+    c.add_argument("--plot", metavar="FILE", help="QQ plots and size against n")
+    _add_run_options(c)
+
+    pw = sub.add_parser("power", help="power of every statistic against alternatives",
+                        description="Empirical power at alpha = 0.05 of every statistic "
+                        "(instant topological and classical tests, and the Monte Carlo L and G "
+                        "envelope tests and the Clark-Evans z-test as baselines) against "
+                        "alternatives, as a function of their strength (share of structured "
+                        "points; 0 = CSR).")
+    g = pw.add_mutually_exclusive_group(required=True)
+    g.add_argument("--window", metavar="SPEC")
+    g.add_argument("--shape", metavar="NAME")
+    pw.add_argument("--n", type=_int, required=True, metavar="N", help="points per pattern")
+    pw.add_argument("--alt", action="append", required=True, metavar="NAME[:k=v,...]",
+                    help="alternative: thomas, matern, hardcore, strauss, lattice, "
+                    "inhom:EXPR (repeatable)")
+    pw.add_argument("--strength", type=_float_list, default=[0.0, 0.25, 0.5, 0.75, 1.0],
+                    metavar="LIST", help="strengths in [0, 1] (default: 0,0.25,0.5,0.75,1)")
+    pw.add_argument("--reps", type=_int, default=200, metavar="R",
+                    help="patterns per alternative and strength (default: 200)")
+    pw.add_argument("--sims", type=_int, default=199, metavar="M",
+                    help="CSR simulations of the Monte Carlo baselines (default: 199)")
+    pw.add_argument("--stat", action="append", metavar="NAME")
+    pw.add_argument("--table", action="append", metavar="FILE")
+    pw.add_argument("--seed", type=_int, default=None, metavar="S")
+    pw.add_argument("--plot", metavar="FILE", help="power against strength")
+    _add_run_options(pw)
 
     f = sub.add_parser("fit", help="refit the finite-window model and n_min",
                        description="Recompute n_min and the finite-window model of a table "
@@ -176,6 +235,107 @@ def _cmd_extend(a):
                               scheduler=a.dask_scheduler, progress=a.progress)
 
 
+def _cmd_check(a):
+    from nullatlas.lookup.windows import parse_window
+
+    from . import check, shapes
+
+    if a.plot:
+        from nullatlas.lookup.plots import check_plot_path
+        check_plot_path(a.plot)
+    w = shapes.shape_window(a.shape) if a.shape else parse_window(a.window)
+    res = check.check_window(w, a.n, a.reps, stats=a.stat, tables=a.table,
+                             seed=check.CHECK_SEED if a.seed is None else a.seed,
+                             jobs=_jobs(a.jobs), progress=a.progress)
+    if a.pattern:
+        from nullatlas.lookup import csr_test
+        kw = dict(stats=a.stat, seed=check.CHECK_SEED if a.seed is None else a.seed,
+                  tables=a.table)
+        inst = csr_test(a.pattern, w, method="asymptotic", **kw)
+        mc = csr_test(a.pattern, w, method="mc", n_sims=a.sims, jobs=_jobs(a.jobs), **kw)
+        res["pattern"] = {"file": a.pattern, "n": inst.n, "rows": [
+            {"statistic": r.name, "instant_p": r.pvalue, "instant_trusted": r.trusted,
+             "mc_p": q.pvalue, "mc_sims": q.n_sims} for r, q in zip(inst.results, mc.results)]}
+    if a.plot:
+        check.plot_check(res, a.plot)
+        res["plot"] = a.plot
+    for r in res["results"]:
+        r.pop("qq", None)
+    res["_kind"] = "check"
+    return res
+
+
+def _print_check(s, out=None):
+    out = out or sys.stdout
+    w = s["window"]
+    out.write(f"check of the instant test: window {w['kind']} (kappa {w['kappa']:.4g}), "
+              f"{s['reps']} fresh CSR patterns per n, seed {s['seed']}\n")
+    out.write(f"{'n':>7}  {'statistic':<10}{'size@.05':>9} {'95% CI':<15}{'tails@.025':<14}"
+              f"{'KS':>7}{'z mean':>8}{'z sd':>7}  {'trusted':<8}verdict\n")
+    for r in s["results"]:
+        if "size" not in r:
+            out.write(f"{r['n']:>7}  {r['statistic']:<10}no table: {r['reason']}\n")
+            continue
+        ci = "[%.3f, %.3f]" % tuple(r["size_ci"][1])
+        tails = ("%.3f/%.3f" % (r["tails"]["lower"][1], r["tails"]["upper"][1])) if "tails" in r else "-"
+        ks = r.get("ks", r.get("ks_pvalues"))
+        zm = r.get("z_mean")
+        zs = r.get("z_sd")
+        out.write(f"{r['n']:>7}  {r['statistic']:<10}{r['size'][1]:>9.3f} {ci:<15}{tails:<14}"
+                  f"{ks:>7.3f}{'' if zm is None else format(zm, '8.3f'):>8}"
+                  f"{'' if zs is None else format(zs, '7.3f'):>7}  {str(r['trusted']):<8}"
+                  f"{'agrees' if r['agrees'] else 'does not agree'}\n")
+    if "pattern" in s:
+        pt = s["pattern"]
+        out.write(f"pattern {pt['file']} (n = {pt['n']}): instant vs Monte Carlo p-values\n")
+        for r in pt["rows"]:
+            out.write(f"  {r['statistic']:<10} instant {r['instant_p']:.4g}"
+                      f"{'' if r['instant_trusted'] else ' (untrusted)'}   Monte Carlo "
+                      f"{r['mc_p']:.4g} ({r['mc_sims']} sims)\n")
+    out.write("KS: to N(0,1) for scalars, of the p-values to U(0,1) for curves and extremes. "
+              "Tails: lower/upper at 0.025 (scalars).\n")
+
+
+def _cmd_power(a):
+    from nullatlas.lookup.windows import parse_window
+
+    from . import power, shapes
+
+    if a.plot:
+        from nullatlas.lookup.plots import check_plot_path
+        check_plot_path(a.plot)
+    if a.sims < 19:
+        raise OptionError(f"--sims must be at least 19, got {a.sims}")
+    w = shapes.shape_window(a.shape) if a.shape else parse_window(a.window)
+    res = power.power_study(w, a.n, a.alt, a.strength, a.reps, stats=a.stat, tables=a.table,
+                            sims=a.sims, seed=power.POWER_SEED if a.seed is None else a.seed,
+                            jobs=_jobs(a.jobs), progress=a.progress)
+    if a.plot:
+        power.plot_power(res, a.plot)
+        res["plot"] = a.plot
+    res["_kind"] = "power"
+    return res
+
+
+def _print_power(s, out=None):
+    out = out or sys.stdout
+    out.write(f"power at alpha = {s['alpha']:g}: n = {s['n']}, window {s['window']['kind']}, "
+              f"{s['reps']} patterns per cell, seed {s['seed']}\n")
+    alts = list(dict.fromkeys(r["alternative"] for r in s["rows"]))
+    stats = list(dict.fromkeys(r["statistic"] for r in s["rows"]))
+    for a in alts:
+        strengths = sorted({r["strength"] for r in s["rows"] if r["alternative"] == a})
+        out.write(f"{a}\n  {'statistic':<13}" + "".join(f"{'s=' + format(x, 'g'):>9}" for x in strengths)
+                  + "\n")
+        for st in stats:
+            rs = {r["strength"]: r for r in s["rows"] if r["alternative"] == a and r["statistic"] == st}
+            mark = "" if not rs or list(rs.values())[0]["trusted"] in (True, None) else " (untrusted)"
+            out.write(f"  {st + mark:<13}" + "".join(f"{rs[x]['power']:>9.3f}" if x in rs else f"{'-':>9}"
+                                                     for x in strengths) + "\n")
+    out.write("Power = share of patterns with p <= alpha; 95% Wilson intervals in --json. "
+              "s = 0 is CSR: the power there is the size.\n")
+
+
 def _cmd_fit(a):
     from . import build
 
@@ -210,10 +370,16 @@ def main(argv=None) -> int:
     a = build_parser().parse_args(argv)
 
     def run():
-        s = {"build": _cmd_build, "extend": _cmd_extend, "fit": _cmd_fit}[a.command](a)
+        s = {"build": _cmd_build, "extend": _cmd_extend, "fit": _cmd_fit,
+             "check": _cmd_check, "power": _cmd_power}[a.command](a)
+        kind = s.pop("_kind", "table")
         if a.json:
             json.dump(_clean(s), sys.stdout, indent=2, allow_nan=False)
             sys.stdout.write("\n")
+        elif kind == "check":
+            _print_check(s)
+        elif kind == "power":
+            _print_power(s)
         else:
             _print_summary(s)
         return 0

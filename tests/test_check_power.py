@@ -1,0 +1,79 @@
+"""nullatlas-calibrate check and power."""
+import json
+
+import numpy as np
+import pytest
+
+from nullatlas.calibrate import check, cli, power
+from nullatlas.calibrate.shapes import shape_window
+from nullatlas.lookup import windows
+
+
+def test_wilson_interval():
+    # Wilson (1927): 5 of 100 -> about [0.0215, 0.1118] (common textbook value, from memory)
+    lo, hi = check.wilson(5, 100)
+    assert abs(lo - 0.0215) < 5e-4 and abs(hi - 0.1118) < 5e-4
+    assert check.wilson(0, 50)[0] == 0.0
+
+
+@pytest.mark.slow
+def test_check_agrees_in_a_shipped_cell_and_not_far_below_n_min():
+    w = windows.Rectangle(0, 0, 2, 2)          # the square shape at any size
+    good = check.check_window(w, [1000], 600, stats=["total0", "nnmean"], jobs=2, progress=False)
+    for r in good["results"]:
+        assert r["trusted"] and r["agrees"], r
+        assert 0.3 < r["z_sd"] ** 2 * 3 < 3.3 and abs(r["z_mean"]) < 0.2
+    bad = check.check_window(w, [12], 1500, stats=["nnmean", "euler"], jobs=2, progress=False)
+    for r in bad["results"]:
+        assert not r["trusted"] and r["agrees"] is False, r     # far below n_min: disagreement
+
+
+def test_check_cli_json_and_plot(tmp_path, capsys):
+    fig = tmp_path / "check.png"
+    rc = cli.main(["check", "--shape", "disk", "--n", "200,400", "--reps", "60", "--stat", "total0",
+                   "--json", "--plot", str(fig), "--no-progress"])
+    assert rc == 0
+    d = json.loads(capsys.readouterr().out)
+    assert [r["n"] for r in d["results"]] == [200, 400]
+    r = d["results"][0]
+    assert {"size", "size_ci", "tails", "ks", "z_mean", "z_sd", "agrees", "trusted"} <= set(r)
+    assert len(r["size"]) == 3 and fig.stat().st_size > 1000
+
+
+@pytest.mark.slow
+def test_power_is_the_size_at_strength_zero_and_grows_with_clustering():
+    w = windows.Disk(0, 0, 150)
+    res = power.power_study(w, 300, ["thomas"], [0.0, 0.1, 0.3], 160, stats=["total0", "nnmean"],
+                            sims=39, jobs=2, progress=False)
+    by = {(r["statistic"], r["strength"]): r for r in res["rows"]}
+    for s in ("total0", "nnmean", "L-mc", "clark-evans"):
+        p0 = by[(s, 0.0)]
+        assert p0["ci"][0] <= 0.05 <= p0["ci"][1] or abs(p0["power"] - 0.05) < 0.04, p0
+        assert by[(s, 0.3)]["power"] >= by[(s, 0.1)]["power"] >= p0["power"] - 0.03
+        assert by[(s, 0.3)]["power"] > p0["power"] + 0.3
+
+
+def test_structured_part_has_exactly_k_points():
+    w = windows.Rectangle(0, 0, 10, 10)
+    rng = np.random.default_rng(0)
+    for spec in ("thomas", "matern", "hardcore", "strauss", "lattice", "inhom:1+x/10"):
+        name, params = power.parse_alternative(spec)
+        assert power.structured(w, name, params, 150, rng, 300).shape == (150, 2)
+
+
+@pytest.mark.parametrize("argv,frag", [
+    (["power", "--shape", "disk", "--n", "100", "--alt", "spiral"], "unknown alternative"),
+    (["power", "--shape", "disk", "--n", "100", "--alt", "thomas:width=3"], "unknown parameter"),
+    (["power", "--shape", "disk", "--n", "100", "--alt", "hardcore:r=0.9"], "too large"),
+    (["power", "--shape", "disk", "--n", "100", "--alt", "thomas", "--strength", "0,2"], "[0, 1]"),
+    (["power", "--shape", "disk", "--n", "100", "--alt", "inhom:__import__('os')"], "allowed"),
+    (["check", "--shape", "disk", "--n", "100", "--reps", "10"], "at least 50"),
+])
+def test_bad_power_and_check_input(argv, frag, capsys):
+    assert cli.main(argv + ["--no-progress"]) == 2
+    err = capsys.readouterr().err
+    assert frag in err and err.count("\n") == 1
+
+
+def test_shape_window_is_unit_area():
+    assert abs(shape_window("rect4").measure - 1) < 1e-12
