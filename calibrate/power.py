@@ -16,6 +16,8 @@ Alternatives (``--alt NAME[:key=value,...]``), lengths in normalised units
   that about 1.3 n points are retained, which needs r below about 0.49);
 * ``strauss:gamma=0.2,r=0.7`` — Strauss inhibition (birth–death MH);
 * ``lattice:jitter=0.5`` — jittered triangular/cubic lattice (regular);
+* ``voids:fraction=0.3,radius=3`` — Poisson points outside random balls
+  covering that fraction of the window (holes, loops);
 * ``inhom:EXPR`` — inhomogeneous Poisson with intensity proportional to an
   expression in x, y (z) of the window's coordinates.
 
@@ -54,6 +56,7 @@ FAMILIES = {
     "hardcore": {"r": 0.4},
     "strauss": {"gamma": 0.2, "r": 0.7},
     "lattice": {"jitter": 0.5},
+    "voids": {"fraction": 0.3, "radius": 3.0},
     "inhom": {},
 }
 
@@ -107,6 +110,12 @@ def _raw(window, name, p, n, rng, unit_n=None):
         return alt.strauss(window, 1.5 * lam, p["gamma"], p["r"] * unit, rng)
     if name == "lattice":
         return nulls.perturbed_lattice(window, int(1.3 * n) + 1, p["jitter"], rng)
+    if name == "voids":
+        if not 0 <= p["fraction"] < 0.95:
+            raise OptionError("voids: fraction must lie in [0, 0.95)")
+        R = p["radius"] * unit
+        hole = -math.log(1 - p["fraction"]) / alt.ball_volume(R, d)
+        return alt.voids(window, 1.3 * lam / (1 - p["fraction"]), hole, R, rng)
     f = alt.intensity_function(p["expr"], d)
     probe = f(window.sample(20_000, rng))
     top = float(np.max(probe))

@@ -23,6 +23,12 @@ Monte Carlo route.
   21, 1994) started from a binomial pattern, ``steps`` proposals (default
   200 per expected point); gamma = 1 is a Poisson process.
 * Perturbed (jittered) lattice: ``nulls.perturbed_lattice``.
+* Poisson points with Poisson voids ("Swiss cheese"): a Poisson process of
+  intensity lambda restricted to the complement of a Boolean model of balls
+  of radius R whose centres have intensity lambda_h (centres in the window
+  dilated by R); the vacant fraction is exp(-lambda_h v) (Chiu, Stoyan,
+  Kendall & Mecke 2013), v the ball volume.  Holes make long-lived H1/H2
+  features.
 * Inhomogeneous Poisson process with intensity lambda(x) <= lambda_max:
   thinning of a homogeneous process of intensity lambda_max (Lewis & Shedler
   1979).  From the command line the intensity is an arithmetic expression in
@@ -40,7 +46,7 @@ import numpy as np
 from .errors import OptionError
 from .nulls import _bounds, perturbed_lattice, thomas
 
-__all__ = ["matern_cluster", "matern_hardcore", "strauss", "inhomogeneous_poisson",
+__all__ = ["matern_cluster", "matern_hardcore", "strauss", "inhomogeneous_poisson", "voids",
            "intensity_function", "ball_volume", "thomas", "perturbed_lattice"]
 
 
@@ -172,6 +178,23 @@ def strauss(window, beta: float, gamma: float, r: float, rng, steps: int | None 
     cand = window.sample(steps, rng)
     return _strauss_chain(x0, n0, beta * vol, float(gamma), r * r, steps, rng.random(steps),
                           rng.random(steps), cand, rng.random(steps))
+
+
+def voids(window, lam: float, hole_intensity: float, radius: float, rng) -> np.ndarray:
+    """Poisson points outside Poisson balls (see module doc)."""
+    from scipy.spatial import cKDTree
+
+    if lam <= 0 or hole_intensity < 0 or radius <= 0:
+        raise OptionError("voids need lam > 0, hole_intensity >= 0 and radius > 0")
+    pts = window.sample(rng.poisson(lam * float(window.measure)), rng)
+    lo, hi = _bounds(window)
+    lo, hi = lo - radius, hi + radius
+    h = rng.poisson(hole_intensity * float(np.prod(hi - lo)))
+    if h == 0 or len(pts) == 0:
+        return pts
+    centres = lo + (hi - lo) * rng.random((h, window.dim))
+    d, _ = cKDTree(centres).query(pts, k=1)
+    return pts[d > radius]
 
 
 def inhomogeneous_poisson(window, intensity, lambda_max: float, rng) -> np.ndarray:

@@ -101,3 +101,15 @@ def test_matern_cluster_is_stationary_up_to_the_boundary():
     assert abs(c.mean() - expect) <= 4 * c.std(ddof=1) / math.sqrt(len(c))
     x = A.matern_cluster(windows.Box(0, 0, 0, 5, 5, 5), 0.1, 8, 0.6, rng)
     assert x.shape[1] == 3
+
+
+def test_voids_leave_the_vacant_fraction():
+    """Vacant fraction of a Boolean model of discs: exp(-lambda_h pi R^2)
+    (Chiu, Stoyan, Kendall & Mecke 2013); the retained share of Poisson points
+    estimates it."""
+    W = windows.Rectangle(0, 0, 40, 40)
+    rng = np.random.default_rng(8)
+    lam_h, R = 0.01, 2.5
+    kept = [len(A.voids(W, 5.0, lam_h, R, rng)) / (5.0 * W.measure) for _ in range(60)]
+    expect = math.exp(-lam_h * math.pi * R * R)
+    assert abs(np.mean(kept) - expect) <= 4 * np.std(kept, ddof=1) / math.sqrt(60) + 0.005

@@ -56,7 +56,7 @@ def test_power_is_the_size_at_strength_zero_and_grows_with_clustering():
 def test_structured_part_has_exactly_k_points():
     w = windows.Rectangle(0, 0, 10, 10)
     rng = np.random.default_rng(0)
-    for spec in ("thomas", "matern", "hardcore", "strauss", "lattice", "inhom:1+x/10"):
+    for spec in ("thomas", "matern", "hardcore", "strauss", "lattice", "voids", "inhom:1+x/10"):
         name, params = power.parse_alternative(spec)
         assert power.structured(w, name, params, 150, rng, 300).shape == (150, 2)
 
