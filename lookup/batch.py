@@ -15,6 +15,13 @@ points) is reported with its one-line error and the others are processed.
 The primary test's p-values are adjusted over the files that produced one:
 Holm (family-wise) and Benjamini–Hochberg (false discovery rate), see
 ``lookup.adjust``.
+
+Resuming: with a ``journal`` path every finished row is appended to it (JSON
+lines, flushed and synced) after a header line with the batch's options and
+seed; a run interrupted at any point and started again with the same
+journal reuses the finished rows and tests only the rest (a journal of
+other options is refused).  The CLI keeps the journal beside ``--out`` and
+removes it when the results file is written.
 """
 from __future__ import annotations
 
@@ -160,10 +167,49 @@ def _one(item: BatchItem, opts: dict, seed: int) -> dict:
     return row
 
 
+def _journal_header(items, opts, seed):
+    return {"journal": "nullatlas-batch", "version": 1, "seed": int(seed),
+            "options": {k: (list(v) if isinstance(v, (list, tuple)) else v) for k, v in opts.items()},
+            "files": [[it.path, it.window, it.columns] for it in items]}
+
+
+def _read_journal(path, items, opts, seed):
+    """(seed, finished rows by index) from a journal; checks it is this batch's."""
+    if not os.path.exists(path):
+        return seed, {}
+    try:
+        with open(path, encoding="utf-8") as fh:
+            lines = fh.read().splitlines()
+        head = json.loads(lines[0]) if lines else None
+    except (OSError, UnicodeDecodeError, json.JSONDecodeError):
+        raise OptionError(f"{path}: unreadable batch journal; remove it to start afresh") from None
+    if not isinstance(head, dict) or head.get("journal") != "nullatlas-batch":
+        raise OptionError(f"{path}: not a nullatlas batch journal")
+    want = _journal_header(items, opts, head["seed"] if seed is None else seed)
+    if head != want:
+        raise OptionError(f"{path}: journal of a batch with other files, options or seed; "
+                          "use the original ones or remove the journal")
+    done = {}
+    for ln in lines[1:]:
+        try:
+            r = json.loads(ln)
+        except json.JSONDecodeError:
+            break                      # a line cut by the interruption: recompute from here
+        done[int(r.pop("_index"))] = r
+    return head["seed"], done
+
+
 def run_batch(items: list[BatchItem], *, stats=None, method="auto", n_sims=999, seed=None,
               jobs=1, alternative="two-sided", on_duplicates="error", alpha=0.05,
-              engine="fast", tables=None, progress=None) -> BatchResult:
+              engine="fast", tables=None, progress=None, journal: str | None = None,
+              resume: bool = False) -> BatchResult:
     """Test every item; see the module docstring.
+
+    Parameters
+    ----------
+    journal : str, optional
+        Append finished rows to this file; with ``resume`` reuse the rows
+        already in it.
 
     Returns
     -------
@@ -174,32 +220,52 @@ def run_batch(items: list[BatchItem], *, stats=None, method="auto", n_sims=999, 
     if jobs < 0:
         raise OptionError(f"--jobs must be 0 (all cores) or positive, got {jobs}")
     jobs = jobs or os.cpu_count() or 1
+    opts = {"stats": stats, "method": method, "n_sims": n_sims, "alternative": alternative,
+            "on_duplicates": on_duplicates, "alpha": alpha, "engine": engine, "tables": tables}
+    done = {}
+    if journal and resume:
+        seed, done = _read_journal(journal, items, opts, seed)
     if seed is None:
         seed = int(np.random.SeedSequence().entropy % (2 ** 63))
     kids = np.random.SeedSequence(int(seed)).spawn(len(items))
     seeds = [int(k.generate_state(2, np.uint32).astype(np.uint64) @ np.array([1, 2 ** 32],
                                                                             np.uint64) % (2 ** 63))
              for k in kids]
-    opts = {"stats": stats, "method": method, "n_sims": n_sims, "alternative": alternative,
-            "on_duplicates": on_duplicates, "alpha": alpha, "engine": engine, "tables": tables}
-    bar = tqdm(total=len(items), desc="patterns", unit="file",
+    todo = [i for i in range(len(items)) if i not in done]
+    bar = tqdm(total=len(items), initial=len(items) - len(todo), desc="patterns", unit="file",
                disable=None if progress is None else not progress, leave=False)
-    rows = []
+    jfh = None
+    if journal:
+        if not (resume and os.path.exists(journal)):
+            with open(journal, "w", encoding="utf-8") as fh:
+                fh.write(json.dumps(_journal_header(items, opts, seed)) + "\n")
+        jfh = open(journal, "a", encoding="utf-8")
+
+    def finished(i, r):
+        done[i] = r
+        bar.update(1)
+        if jfh is not None:
+            from .results import _clean
+            jfh.write(json.dumps({**_clean(r), "_index": i}, allow_nan=False) + "\n")
+            jfh.flush()
+            os.fsync(jfh.fileno())
+
     try:
         if jobs == 1:
-            for it, s in zip(items, seeds):
-                rows.append(_one(it, opts, s))
-                bar.update(1)
+            for i in todo:
+                finished(i, _one(items[i], opts, seeds[i]))
         else:
             from joblib import Parallel, delayed
 
             gen = Parallel(n_jobs=jobs, return_as="generator")(
-                delayed(_one)(it, opts, s) for it, s in zip(items, seeds))
-            for r in gen:
-                rows.append(r)
-                bar.update(1)
+                delayed(_one)(items[i], opts, seeds[i]) for i in todo)
+            for i, r in zip(todo, gen):
+                finished(i, r)
     finally:
         bar.close()
+        if jfh is not None:
+            jfh.close()
+    rows = [done[i] for i in range(len(items))]
     p = np.array([r["p_value"] if r["p_value"] is not None and np.isfinite(r["p_value"])
                   else np.nan for r in rows])
     ph, pb = holm(p), benjamini_hochberg(p)

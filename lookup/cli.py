@@ -107,6 +107,9 @@ def build_parser() -> argparse.ArgumentParser:
     b.add_argument("--allow-absolute", action="store_true",
                    help="let manifest paths leave the manifest's folder")
     b.add_argument("--out", metavar="FILE", help="results file (.csv or .json), written atomically")
+    b.add_argument("--resume", action="store_true",
+                   help="continue an interrupted batch with the same --out (its journal "
+                   "FILE.journal.jsonl holds the finished files)")
     b.add_argument("--stat", action="append", metavar="NAME", help="as for 'test'")
     b.add_argument("--method", default="auto", choices=["auto", "asymptotic", "mc"])
     b.add_argument("--table", action="append", metavar="FILE")
@@ -251,12 +254,17 @@ def _cmd_batch(a) -> int:
     if a.plot:
         from .plots import check_plot_path
         check_plot_path(a.plot)
+    if a.resume and not a.out:
+        raise OptionError("--resume needs the --out of the interrupted batch")
     items = collect_inputs(a.inputs, a.window, a.columns, a.manifest, a.allow_absolute)
+    journal = a.out + ".journal.jsonl" if a.out else None
     res = run_batch(items, stats=a.stat, method=a.method, n_sims=a.sims, seed=a.seed,
                     jobs=a.jobs, alternative=a.alternative, on_duplicates=a.on_duplicates,
-                    alpha=a.alpha, engine=a.engine, tables=a.table, progress=a.progress)
+                    alpha=a.alpha, engine=a.engine, tables=a.table, progress=a.progress,
+                    journal=journal, resume=a.resume)
     if a.out:
         write_results(res, a.out)
+        os.unlink(journal)
     if a.plot:
         from .plots import plot_batch
         plot_batch(res, a.plot, alpha=a.alpha)

@@ -140,3 +140,36 @@ def test_figures_have_the_expected_panels(tmp_path):
     assert any(t.startswith("euler") for t in seen["titles"])
     assert any("z" in x for x in seen["xlabels"])
     assert (tmp_path / "r.png").stat().st_size > 1000
+
+
+def test_interrupted_batch_resumes_without_recomputing(tmp_path, monkeypatch, capsys):
+    """A batch killed after 3 files and resumed with --resume tests only the
+    others, and its results equal an uninterrupted run's."""
+    from nullatlas.lookup import batch as B
+    _files(tmp_path / "in", 6)
+    args = ["batch", str(tmp_path / "in"), "-w", "rect:0,0,1,1", "--stat", "nnmean", "--method",
+            "mc", "--sims", "9", "--seed", "4", "--no-progress", "--json"]
+    assert cli.main(args + ["--out", str(tmp_path / "ref.json")]) == 0
+    ref = json.loads((tmp_path / "ref.json").read_text())["rows"]
+    real, calls = B._one, []
+
+    def dying(item, opts, seed):
+        if len(calls) == 3:
+            raise KeyboardInterrupt
+        calls.append(item.path)
+        return real(item, opts, seed)
+
+    monkeypatch.setattr(B, "_one", dying)
+    out = tmp_path / "run.json"
+    assert cli.main(args + ["--out", str(out)]) == 130
+    assert not out.exists() and (tmp_path / "run.json.journal.jsonl").exists()
+    calls.clear()
+    monkeypatch.setattr(B, "_one", lambda it, o, s: (calls.append(it.path), real(it, o, s))[1])
+    capsys.readouterr()
+    assert cli.main(args + ["--out", str(out), "--resume"]) == 0
+    assert len(calls) == 3                                   # only the unfinished files
+    assert json.loads(out.read_text())["rows"] == ref
+    assert not (tmp_path / "run.json.journal.jsonl").exists()
+    # a journal of other options is refused
+    (tmp_path / "x.json.journal.jsonl").write_text(json.dumps({"journal": "nullatlas-batch"}) + "\n")
+    assert cli.main(args[:-1] + ["--out", str(tmp_path / "x.json"), "--resume"]) == 2
