@@ -122,6 +122,10 @@ def csr_test(points, window, stats=None, *, method="auto", n_sims=999, seed=None
         from .asymptotic import asymptotic_result, verdict
         from .nullmoments import TableSet, default_tables, null_moments
 
+        if tables:
+            from .tablereader import open_table
+            for tp in tables:              # a table given explicitly must fit the data
+                open_table(tp, dimension=pts.shape[1])
         tset = TableSet(tables or (), use_shipped) if (tables or not use_shipped) \
             else default_tables()
         for i, st in enumerate(chosen):

@@ -206,3 +206,34 @@ def test_duplicate_policies_run(tmp_path, capsys, policy):
     assert d["validation"]["n_duplicates"] == 1
     assert d["n"] == (39 if policy == "drop" else 40)
     assert any("duplicate" in w for w in d["warnings"])
+
+
+def _table_cases(tmp_path):
+    """Bad --table files: truncated, foreign HDF5, unknown schema version, 3D table."""
+    import h5py
+    from nullatlas.calibrate import build, shapes
+    good = tmp_path / "good3d.h5"
+    build.build_table(str(good), [("cube", shapes.shape_window("cube"))], [40, 80], 40,
+                      stats=["nnmean"], root_seed=1, progress=False, n_fit=10)
+    data = good.read_bytes()
+    cut = tmp_path / "cut.h5"
+    cut.write_bytes(data[: len(data) // 3])
+    foreign = tmp_path / "foreign.h5"
+    with h5py.File(foreign, "w") as fh:
+        fh["x"] = [1, 2, 3]
+    future = tmp_path / "future.h5"
+    future.write_bytes(data)
+    with h5py.File(future, "a") as fh:
+        fh.attrs["schema_version"] = 7
+    return {"truncated": (cut, "not a readable HDF5"), "foreign": (foreign, "not a nullatlas"),
+            "version": (future, "schema version 7"), "dimension": (good, "3D patterns")}
+
+
+def test_bad_tables_on_the_command_line(tmp_path, capsys):
+    path = _square_csv(tmp_path, n=80)
+    for name, (table, needle) in _table_cases(tmp_path).items():
+        fig = tmp_path / f"{name}.png"
+        rc = main(["test", path, "-w", "rect:0,0,1,1", "--table", str(table), "--plot", str(fig)])
+        err = capsys.readouterr().err
+        assert rc == 2 and err.count("\n") == 1 and needle in err and "Traceback" not in err, (name, err)
+        assert not fig.exists()
