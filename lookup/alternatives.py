@@ -238,8 +238,9 @@ def intensity_function(expr: str, d: int):
     def ev(node, cols):
         if isinstance(node, ast.Expression):
             return ev(node.body, cols)
-        if isinstance(node, ast.Constant) and isinstance(node.value, (int, float)):
-            return float(node.value)
+        if (isinstance(node, ast.Constant) and isinstance(node.value, (int, float))
+                and not isinstance(node.value, bool)):
+            return np.float64(node.value)        # numpy arithmetic: 1/0 is inf, not an error
         if isinstance(node, ast.Name) and node.id in names:
             return cols[names.index(node.id)]
         if isinstance(node, ast.BinOp) and type(node.op) in _BIN:
@@ -253,12 +254,20 @@ def intensity_function(expr: str, d: int):
         raise OptionError(f"intensity '{expr}': only numbers, {', '.join(names)}, + - * / ** "
                           f"and {', '.join(_FUN)} are allowed")
 
-    ev(tree, [np.zeros(1)] * d)          # validate once
+    def run(cols):
+        try:
+            with np.errstate(all="ignore"):
+                return ev(tree, cols)
+        except OptionError:
+            raise
+        except (ArithmeticError, ValueError, TypeError) as exc:
+            raise OptionError(f"intensity '{expr}' cannot be evaluated ({exc})") from None
+
+    run([np.zeros(1)] * d)          # validate once
 
     def f(pts):
         p = np.asarray(pts, float)
-        with np.errstate(all="ignore"):
-            v = ev(tree, [p[:, i] for i in range(d)])
+        v = run([p[:, i] for i in range(d)])
         return np.broadcast_to(np.asarray(v, float), (len(p),)).copy()
 
     return f
