@@ -199,33 +199,15 @@ def run_chunks(plans: list[CellPlan], stat_names: list, root_seed: int, *, jobs:
             def tagged(i, a):
                 return i, simulate_chunk(*a)
 
-            if scheduler is not None:
-                import joblib
-                try:
-                    from distributed import Client
-                except ImportError:
-                    raise OptionError("--dask-scheduler needs dask.distributed: "
-                                      "pip install 'nullatlas[dask]'") from None
-                try:
-                    client = Client(scheduler, timeout=20)
-                except (OSError, TimeoutError, ValueError) as exc:
-                    raise OptionError(f"cannot reach the Dask scheduler at {scheduler} "
-                                      f"({type(exc).__name__})") from None
-                ctx = joblib.parallel_config(backend="dask")
-            else:
-                import contextlib
-                client, ctx = None, contextlib.nullcontext()
-            try:
-                with ctx:
-                    par = Parallel(n_jobs=jobs if scheduler is None else -1,
-                                   return_as="generator_unordered")
-                    for i, d in par(delayed(tagged)(i, a) for i, a in enumerate(args)):
-                        p, idx, cnt = todo[i]
-                        finished(p, idx, cnt, d)
-                        bar.update(p.n * cnt)
-            finally:
-                if client is not None:
-                    client.close()
+            from nullatlas.lookup.parallel import backend
+
+            with backend(scheduler) as cluster_jobs:
+                par = Parallel(n_jobs=jobs if cluster_jobs is None else cluster_jobs,
+                               return_as="generator_unordered")
+                for i, d in par(delayed(tagged)(i, a) for i, a in enumerate(args)):
+                    p, idx, cnt = todo[i]
+                    finished(p, idx, cnt, d)
+                    bar.update(p.n * cnt)
     finally:
         bar.close()
     out["_seconds"] = time.perf_counter() - t0

@@ -202,7 +202,7 @@ def _read_journal(path, items, opts, seed):
 def run_batch(items: list[BatchItem], *, stats=None, method="auto", n_sims=999, seed=None,
               jobs=1, alternative="two-sided", on_duplicates="error", alpha=0.05,
               engine="fast", tables=None, progress=None, journal: str | None = None,
-              resume: bool = False) -> BatchResult:
+              resume: bool = False, scheduler: str | None = None) -> BatchResult:
     """Test every item; see the module docstring.
 
     Parameters
@@ -210,6 +210,10 @@ def run_batch(items: list[BatchItem], *, stats=None, method="auto", n_sims=999, 
     journal : str, optional
         Append finished rows to this file; with ``resume`` reuse the rows
         already in it.
+    scheduler : str, optional
+        Run the files on this dask.distributed scheduler (through joblib's
+        Dask backend); the workers must see the files at the same paths
+        (a shared file system).
 
     Returns
     -------
@@ -251,16 +255,20 @@ def run_batch(items: list[BatchItem], *, stats=None, method="auto", n_sims=999, 
             os.fsync(jfh.fileno())
 
     try:
-        if jobs == 1:
+        if jobs == 1 and scheduler is None:
             for i in todo:
                 finished(i, _one(items[i], opts, seeds[i]))
         else:
             from joblib import Parallel, delayed
 
-            gen = Parallel(n_jobs=jobs, return_as="generator")(
-                delayed(_one)(items[i], opts, seeds[i]) for i in todo)
-            for i, r in zip(todo, gen):
-                finished(i, r)
+            from .parallel import backend
+
+            with backend(scheduler) as cluster_jobs:
+                gen = Parallel(n_jobs=jobs if cluster_jobs is None else cluster_jobs,
+                               return_as="generator")(
+                    delayed(_one)(items[i], opts, seeds[i]) for i in todo)
+                for i, r in zip(todo, gen):
+                    finished(i, r)
     finally:
         bar.close()
         if jfh is not None:

@@ -118,6 +118,9 @@ def build_parser() -> argparse.ArgumentParser:
                    help="batch seed: file i uses its i-th child (default: fresh, reported)")
     b.add_argument("--jobs", "-j", type=_int, default=1, metavar="N",
                    help="worker processes, 0 = all cores; results do not depend on it")
+    b.add_argument("--dask-scheduler", metavar="ADDR",
+                   help="run the files on a dask.distributed cluster (e.g. tcp://host:8786); "
+                   "the workers must see the files at the same paths")
     b.add_argument("--alternative", default="two-sided", choices=["two-sided", "clustered", "regular"])
     b.add_argument("--alpha", type=_float, default=0.05)
     b.add_argument("--columns", metavar="COLS")
@@ -261,7 +264,7 @@ def _cmd_batch(a) -> int:
     res = run_batch(items, stats=a.stat, method=a.method, n_sims=a.sims, seed=a.seed,
                     jobs=a.jobs, alternative=a.alternative, on_duplicates=a.on_duplicates,
                     alpha=a.alpha, engine=a.engine, tables=a.table, progress=a.progress,
-                    journal=journal, resume=a.resume)
+                    journal=journal, resume=a.resume, scheduler=a.dask_scheduler)
     if a.out:
         write_results(res, a.out)
         os.unlink(journal)

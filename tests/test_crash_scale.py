@@ -105,6 +105,18 @@ def test_dask_cluster_of_processes_survives_a_killed_worker(tmp_path):
         os.kill(procs[1].pid, signal.SIGKILL)             # a worker dies mid-run
         assert b.wait(300) == 0, b.stderr.read()
         assert _contents(ref) == _contents(out)
+        # nullatlas batch on the same cluster (one worker left) equals a local run
+        folder = tmp_path / "files"
+        folder.mkdir()
+        rng = np.random.default_rng(3)
+        for i in range(6):
+            np.save(folder / f"p{i}.npy", rng.random((120, 2)))
+        from nullatlas.lookup.batch import collect_inputs, run_batch
+        items = collect_inputs([str(folder)], "rect:0,0,1,1")
+        kw = dict(stats=["nnmean"], method="mc", n_sims=19, seed=5, progress=False)
+        local = run_batch(items, jobs=2, **kw)
+        remote = run_batch(items, scheduler=addr, **kw)
+        assert [r["p_value"] for r in local.rows] == [r["p_value"] for r in remote.rows]
     finally:
         for q in procs:
             q.kill()
