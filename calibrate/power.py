@@ -6,20 +6,9 @@ pattern has round(s n) points from the structured process (thinned at random
 to exactly that count) and the rest CSR, so s = 0 is CSR (power = size) and
 s = 1 is the pure alternative.
 
-Alternatives (``--alt NAME[:key=value,...]``), lengths in normalised units
-(multiples of (|W| / n)^(1/d), so that they mean the same at any n):
-
-* ``thomas:parents=0.05,sigma=0.25`` — Thomas clusters (``nulls.thomas``),
-  parents per point and Gaussian spread;
-* ``matern:parents=0.05,radius=0.5`` — Matérn clusters;
-* ``hardcore:r=0.4`` — Matérn II hard core (proposal intensity solved so
-  that about 1.3 n points are retained, which needs r below about 0.49);
-* ``strauss:gamma=0.2,r=0.7`` — Strauss inhibition (birth–death MH);
-* ``lattice:jitter=0.5`` — jittered triangular/cubic lattice (regular);
-* ``voids:fraction=0.3,radius=3`` — Poisson points outside random balls
-  covering that fraction of the window (holes, loops);
-* ``inhom:EXPR`` — inhomogeneous Poisson with intensity proportional to an
-  expression in x, y (z) of the window's coordinates.
+Alternatives (``--alt NAME[:key=value,...]``): the models of
+``lookup.models`` (thomas, matern, hardcore, strauss, lattice, voids,
+inhom:EXPR), with lengths in normalised units.
 
 Statistics: the instant tests of ``nullatlas test`` (from the tables; an
 untrusted instant answer is reported as such), and classical baselines:
@@ -36,8 +25,8 @@ import math
 
 import numpy as np
 
-from nullatlas.lookup import alternatives as alt
 from nullatlas.lookup import nulls, ranks
+from nullatlas.lookup.models import FAMILIES, parse_model, simulate
 from nullatlas.lookup.asymptotic import asymptotic_result, verdict
 from nullatlas.lookup.errors import OptionError
 from nullatlas.lookup.montecarlo import _alternative_for
@@ -49,96 +38,11 @@ from .check import wilson
 __all__ = ["FAMILIES", "parse_alternative", "structured", "power_study", "clark_evans_p",
            "POWER_SEED"]
 
+#: Alternatives are the models of ``lookup.models`` (see there).
+parse_alternative = parse_model
+structured = simulate
+
 POWER_SEED = 5_151_515
-FAMILIES = {
-    "thomas": {"parents": 0.05, "sigma": 0.25},
-    "matern": {"parents": 0.05, "radius": 0.5},
-    "hardcore": {"r": 0.4},
-    "strauss": {"gamma": 0.2, "r": 0.7},
-    "lattice": {"jitter": 0.5},
-    "voids": {"fraction": 0.3, "radius": 3.0},
-    "inhom": {},
-}
-
-
-def parse_alternative(spec: str) -> tuple[str, dict]:
-    """``NAME[:key=value,...]`` -> (name, parameters with defaults)."""
-    name, _, rest = spec.partition(":")
-    name = name.strip().lower()
-    if name not in FAMILIES:
-        raise OptionError(f"unknown alternative '{name}'; choose from {', '.join(FAMILIES)}")
-    if name == "inhom":
-        if not rest.strip():
-            raise OptionError("inhom needs an intensity expression, e.g. inhom:exp(-x/50)")
-        return name, {"expr": rest.strip()}
-    params = dict(FAMILIES[name])
-    for item in filter(None, (t.strip() for t in rest.split(","))):
-        k, eq, v = item.partition("=")
-        if not eq or k.strip() not in params:
-            raise OptionError(f"alternative {name}: unknown parameter '{item}' "
-                              f"(parameters: {', '.join(params)})")
-        try:
-            params[k.strip()] = float(v)
-        except ValueError:
-            raise OptionError(f"alternative {name}: '{v}' is not a number") from None
-        if params[k.strip()] < 0:
-            raise OptionError(f"alternative {name}: {k.strip()} must not be negative")
-    return name, params
-
-
-def _raw(window, name, p, n, rng, unit_n=None):
-    """About 1.3 n points of the process; lengths in units of (|W| / unit_n)^(1/d)."""
-    d = window.dim
-    lam = n / window.measure
-    unit = (window.measure / (unit_n or n)) ** (1.0 / d)
-    if name == "thomas":
-        return nulls.thomas(window, p["parents"] * lam, 1.3 / p["parents"], p["sigma"] * unit, rng)
-    if name == "matern":
-        return alt.matern_cluster(window, p["parents"] * lam, 1.3 / p["parents"],
-                                  p["radius"] * unit, rng)
-    if name == "hardcore":
-        r = p["r"] * unit
-        v = alt.ball_volume(r, d)
-        target = 1.3 * lam
-        if target * v >= 0.99 and n * v / window.measure < 0.76:
-            target = 0.99 / v          # as dense as Matérn II gets
-        if target * v >= 0.99:
-            raise OptionError(f"hardcore: r = {p['r']} is too large for a Matérn II pattern of "
-                              "this intensity (needs lambda v < 1)")
-        return alt.matern_hardcore(window, -math.log(1 - target * v) / v, r, rng)
-    if name == "strauss":
-        return alt.strauss(window, 1.5 * lam, p["gamma"], p["r"] * unit, rng)
-    if name == "lattice":
-        return nulls.perturbed_lattice(window, int(1.3 * n) + 1, p["jitter"], rng)
-    if name == "voids":
-        if not 0 <= p["fraction"] < 0.95:
-            raise OptionError("voids: fraction must lie in [0, 0.95)")
-        R = p["radius"] * unit
-        hole = -math.log(1 - p["fraction"]) / alt.ball_volume(R, d)
-        return alt.voids(window, 1.3 * lam / (1 - p["fraction"]), hole, R, rng)
-    f = alt.intensity_function(p["expr"], d)
-    probe = f(window.sample(20_000, rng))
-    top = float(np.max(probe))
-    if not top > 0 or np.any(probe < 0):
-        raise OptionError(f"inhom: the intensity '{p['expr']}' must be positive in the window")
-    scale = 1.3 * n / (float(np.mean(probe)) * window.measure)
-    return alt.inhomogeneous_poisson(window, lambda x: scale * f(x), 1.05 * scale * top, rng)
-
-
-def structured(window, name: str, params: dict, k: int, rng, n: int | None = None) -> np.ndarray:
-    """Exactly k points of the structured process (thinned at random); lengths
-    in units of the whole pattern's (|W| / n)^(1/d)."""
-    if k == 0:
-        return np.zeros((0, window.dim))
-    for t in range(6):
-        # ask for more points on every retry (inhibition lowers the count)
-        x = _raw(window, name, params, int(math.ceil(k * 1.5 ** t)), rng, unit_n=n or k)
-        if len(x) >= k:
-            return x[rng.choice(len(x), k, replace=False)]
-    raise OptionError(f"alternative {name} gave fewer than {k} points in six tries; "
-                      "change its parameters")
-
-
 def clark_evans_p(points, window) -> float:
     """Two-sided p-value of the Clark–Evans z-test with Donnelly's (1978, from
     memory) edge-corrected mean 0.5 sqrt(A/n) + (0.0514 + 0.041/sqrt(n)) P/n

@@ -62,6 +62,11 @@ def build_parser() -> argparse.ArgumentParser:
                    help="how p-values are computed: auto = instant test from the null tables "
                    "where it is trusted, Monte Carlo where it is not (default); asymptotic = "
                    "always the instant test, untrusted results flagged; mc = always Monte Carlo")
+    t.add_argument("--null", default="csr", metavar="MODEL",
+                   help="null model: csr (default), or a model such as "
+                   "thomas:parents=0.05,sigma=0.3, matern, hardcore, strauss, lattice, voids, "
+                   "inhom:EXPR (lengths in units of the mean spacing), simulated on the Monte "
+                   "Carlo route")
     t.add_argument("--table", action="append", metavar="FILE",
                    help="your own null table (nullatlas-calibrate build); takes precedence over "
                    "the shipped tables for its window (repeatable)")
@@ -178,13 +183,16 @@ def _print_table(res, alpha, out=None):
         if not r.trusted:
             out.write(f"untrusted {r.name}: {r.reason}\n")
     p = res.primary
+    null = "CSR" if getattr(res, "null", "csr") == "csr" else f"the null model {res.null}"
+    if null != "CSR":
+        out.write(f"null model: {res.null} (conditioned on n, Monte Carlo)\n")
     if not np.isfinite(p.pvalue):
         verdict = f"no p-value for the primary test {p.name} ({p.reason})"
     elif p.pvalue <= alpha:
-        verdict = (f"CSR rejected at alpha = {alpha:g} by the primary test {p.name} "
+        verdict = (f"{null} rejected at alpha = {alpha:g} by the primary test {p.name} "
                    f"(p = {p.pvalue:.3g}{'' if p.trusted else ', UNTRUSTED'})")
     else:
-        verdict = (f"no evidence against CSR at alpha = {alpha:g} from the primary test "
+        verdict = (f"no evidence against {null} at alpha = {alpha:g} from the primary test "
                    f"{p.name} (p = {p.pvalue:.3g}{'' if p.trusted else ', UNTRUSTED'})")
     out.write(f"Verdict: {verdict}.\n")
 
@@ -207,7 +215,8 @@ def _cmd_test(a) -> int:
         window = parse_window(a.window, pts)
     res = csr_test(pts, window, a.stat, method=a.method, n_sims=a.sims, seed=a.seed,
                    jobs=a.jobs, alternative=a.alternative, on_duplicates=a.on_duplicates,
-                   alpha=a.alpha, progress=a.progress, engine=a.engine, tables=a.table)
+                   alpha=a.alpha, progress=a.progress, engine=a.engine, tables=a.table,
+                   null=a.null)
     res.warnings[:0] = [str(w.message) for w in caught]
     if a.plot:
         plot_result(res, a.plot)

@@ -38,7 +38,8 @@ def _check_options(method, n_sims, jobs, alternative, alpha, engine="fast"):
 
 def csr_test(points, window, stats=None, *, method="auto", n_sims=999, seed=None, jobs=1,
              alternative="two-sided", on_duplicates="error", alpha=0.05, columns=None,
-             progress=False, engine="fast", tables=None, use_shipped=True) -> CSRTestResult:
+             progress=False, engine="fast", tables=None, use_shipped=True,
+             null="csr") -> CSRTestResult:
     """Test a point pattern for complete spatial randomness.
 
     Parameters
@@ -82,6 +83,10 @@ def csr_test(points, window, stats=None, *, method="auto", n_sims=999, seed=None
         precedence over the shipped ones for their windows.
     use_shipped : bool
         Also consult the shipped tables (default True).
+    null : str
+        The null model: ``"csr"`` (default), or a model of ``lookup.models``
+        (e.g. ``"thomas:parents=0.05,sigma=0.3"``) conditioned on n, simulated
+        on the Monte Carlo route (the tables are for CSR only).
 
     Returns
     -------
@@ -96,6 +101,13 @@ def csr_test(points, window, stats=None, *, method="auto", n_sims=999, seed=None
     """
     t0 = time.perf_counter()
     _check_options(method, n_sims, jobs, alternative, alpha, engine)
+    from .models import describe, parse_model
+    model = parse_model(null)
+    if model[0] != "csr":
+        if method == "asymptotic":
+            raise OptionError("the null tables are for CSR only: use --method mc (or auto) "
+                              f"with --null {null}")
+        method = "mc"
     if jobs == 0:
         import os
         jobs = os.cpu_count() or 1
@@ -144,9 +156,9 @@ def csr_test(points, window, stats=None, *, method="auto", n_sims=999, seed=None
     todo = [st for st, r in zip(chosen, results) if r is None]
     if todo:
         seeds = nulls.replicate_seeds(sim_seed, int(n_sims))
-        null = montecarlo.simulate_null(window, n, todo, seeds, jobs=int(jobs), progress=progress,
-                                        engine=engine)
-        mc = montecarlo.mc_results(observed, null, todo, alternative=alternative, alpha=alpha)
+        sims = montecarlo.simulate_null(window, n, todo, seeds, jobs=int(jobs), progress=progress,
+                                        engine=engine, model=None if model[0] == "csr" else model)
+        mc = montecarlo.mc_results(observed, sims, todo, alternative=alternative, alpha=alpha)
         it = iter(mc)
         for i, r in enumerate(results):
             if r is None:
@@ -158,4 +170,4 @@ def csr_test(points, window, stats=None, *, method="auto", n_sims=999, seed=None
     return CSRTestResult(results=results, n=n, dimension=pts.shape[1], window=window.describe(),
                          seed=int(seed), validation=report.as_dict(), diagram=diag,
                          warnings=caught, elapsed_s=time.perf_counter() - t0, engine=engine,
-                         method=method)
+                         method=method, null=describe(*model))

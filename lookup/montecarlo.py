@@ -16,15 +16,23 @@ from .statistics import Statistic, compute
 __all__ = ["simulate_null", "mc_results", "untested_result"]
 
 
-def _chunk(window, n, stats, seeds, engine="fast"):
-    out = [compute(nulls.csr(window, n, np.random.default_rng(s)), window, stats, engine)
+def _draw(window, n, model, rng):
+    if model is None or model[0] == "csr":
+        return nulls.csr(window, n, rng)
+    from .models import simulate
+    return simulate(window, model[0], model[1], n, rng, n)
+
+
+def _chunk(window, n, stats, seeds, engine="fast", model=None):
+    out = [compute(_draw(window, n, model, np.random.default_rng(s)), window, stats, engine)
            for s in seeds]
     return {s.name: np.stack([o[s.name] for o in out]) for s in stats}
 
 
 def simulate_null(window, n: int, stats: list[Statistic], seeds, jobs: int = 1,
-                  progress: bool | None = False, engine: str = "fast") -> dict:
-    """Statistics of ``len(seeds)`` CSR patterns of ``n`` points in ``window``.
+                  progress: bool | None = False, engine: str = "fast", model=None) -> dict:
+    """Statistics of ``len(seeds)`` null patterns of ``n`` points in ``window``
+    (CSR, or ``model`` = (name, params) of ``lookup.models``).
 
     Parameters
     ----------
@@ -51,13 +59,13 @@ def simulate_null(window, n: int, stats: list[Statistic], seeds, jobs: int = 1,
     try:
         if jobs <= 1:
             for c in chunks:
-                parts.append(_chunk(window, n, stats, c, engine))
+                parts.append(_chunk(window, n, stats, c, engine, model))
                 bar.update(len(c))
         else:
             from joblib import Parallel, delayed
 
             gen = Parallel(n_jobs=jobs, return_as="generator")(
-                delayed(_chunk)(window, n, stats, c, engine) for c in chunks)
+                delayed(_chunk)(window, n, stats, c, engine, model) for c in chunks)
             for c, part in zip(chunks, gen):
                 parts.append(part)
                 bar.update(len(c))

@@ -109,6 +109,8 @@ class CSRTestResult:
     method : str
         Method requested: "auto", "asymptotic" or "mc" (each result's
         ``method`` says how its p-value was obtained).
+    null : str
+        The null model ("csr", or a model of ``lookup.models``).
     """
 
     results: list
@@ -122,6 +124,7 @@ class CSRTestResult:
     elapsed_s: float = 0.0
     engine: str = "fast"
     method: str = "mc"
+    null: str = "csr"
 
     @property
     def primary(self) -> StatResult:
@@ -146,5 +149,6 @@ class CSRTestResult:
             "n": self.n, "dimension": self.dimension, "window": self.window,
             "seed": self.seed, "validation": self.validation, "warnings": list(self.warnings),
             "elapsed_s": round(self.elapsed_s, 4), "engine": self.engine, "method": self.method,
+            "null": self.null,
             "results": [r.as_dict(curves) for r in self.results],
         })

@@ -113,3 +113,24 @@ def test_voids_leave_the_vacant_fraction():
     kept = [len(A.voids(W, 5.0, lam_h, R, rng)) / (5.0 * W.measure) for _ in range(60)]
     expect = math.exp(-lam_h * math.pi * R * R)
     assert abs(np.mean(kept) - expect) <= 4 * np.std(kept, ddof=1) / math.sqrt(60) + 0.005
+
+
+def test_monte_carlo_route_with_a_cluster_null(capsys):
+    """--null: the Monte Carlo route simulates the given model conditioned on n.
+    A Thomas pattern is rejected against CSR but not against its own model."""
+    import json as _json
+    from nullatlas.lookup import cli, csr_test
+    from nullatlas.lookup.models import simulate
+    W = windows.Disk(0, 0, 1)
+    rng = np.random.default_rng(9)
+    spec = ("thomas", {"parents": 0.05, "sigma": 0.25})
+    pts = simulate(W, *spec, 400, rng)
+    r_csr = csr_test(pts, W, ["total0"], method="mc", n_sims=99, seed=1)
+    r_own = csr_test(pts, W, ["total0"], method="mc", n_sims=99, seed=1,
+                     null="thomas:parents=0.05,sigma=0.25")
+    assert r_csr.pvalue <= 0.02 and r_own.pvalue > 0.05
+    assert r_own.as_dict()["null"] == "thomas:parents=0.05,sigma=0.25"
+    with pytest.raises(OptionError, match="CSR only"):
+        csr_test(pts, W, ["total0"], method="asymptotic", null="thomas")
+    x = simulate(W, "strauss", {"gamma": 0.2, "r": 0.7}, 300, rng, 300)
+    assert x.shape == (300, 2) and np.all(W.contains(x))
