@@ -62,7 +62,7 @@ def test_structured_part_has_exactly_k_points():
 
 
 @pytest.mark.parametrize("argv,frag", [
-    (["power", "--shape", "disk", "--n", "100", "--alt", "spiral"], "unknown alternative"),
+    (["power", "--shape", "disk", "--n", "100", "--alt", "spiral"], "unknown model"),
     (["power", "--shape", "disk", "--n", "100", "--alt", "thomas:width=3"], "unknown parameter"),
     (["power", "--shape", "disk", "--n", "100", "--alt", "hardcore:r=0.9"], "too large"),
     (["power", "--shape", "disk", "--n", "100", "--alt", "thomas", "--strength", "0,2"], "[0, 1]"),
