@@ -21,6 +21,10 @@ def atomic_path(path: str):
     os.close(fd)
     try:
         yield tmp
+        # mkstemp makes the file private (0600); give it the usual permissions
+        umask = os.umask(0)
+        os.umask(umask)
+        os.chmod(tmp, 0o666 & ~umask)
         os.replace(tmp, path)
     except BaseException:
         with contextlib.suppress(OSError):
