@@ -45,7 +45,8 @@ def wilson(k: int, m: int, z: float = 1.959964) -> tuple[float, float]:
     den = 1 + z * z / m
     c = (p + z * z / (2 * m)) / den
     h = z * math.sqrt(p * (1 - p) / m + z * z / (4 * m * m)) / den
-    return (max(0.0, c - h), min(1.0, c + h))
+    lo, hi = max(0.0, c - h), min(1.0, c + h)
+    return (0.0 if k == 0 else lo, 1.0 if k == m else hi)
 
 
 def _simulate(window, n, stats, seeds):
@@ -175,8 +176,8 @@ def plot_check(res: dict, path: str) -> str:
         for name in names:
             rs = sorted((x for x in rows if x["statistic"] == name), key=lambda r: r["n"])
             s = [r["size"][1] for r in rs]
-            lo = [r["size"][1] - r["size_ci"][1][0] for r in rs]
-            hi = [r["size_ci"][1][1] - r["size"][1] for r in rs]
+            lo = [max(0.0, r["size"][1] - r["size_ci"][1][0]) for r in rs]
+            hi = [max(0.0, r["size_ci"][1][1] - r["size"][1]) for r in rs]
             ax.errorbar([r["n"] for r in rs], s, yerr=[lo, hi], marker="o", ms=3, capsize=2,
                         label=name)
         ax.axhspan(0.04, 0.06, color="0.85")

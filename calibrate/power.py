@@ -164,8 +164,8 @@ def plot_power(res: dict, path: str) -> str:
                         key=lambda r: r["strength"])
             x = [r["strength"] for r in rs]
             y = [r["power"] for r in rs]
-            lo = [r["power"] - r["ci"][0] for r in rs]
-            hi = [r["ci"][1] - r["power"] for r in rs]
+            lo = [max(0.0, r["power"] - r["ci"][0]) for r in rs]
+            hi = [max(0.0, r["ci"][1] - r["power"]) for r in rs]
             ls = "-" if rs and rs[0]["instant"] else "--"
             ax.errorbar(x, y, yerr=[lo, hi], ls=ls, marker="o", ms=3, capsize=2, label=s,
                         color=f"C{j % 10}")

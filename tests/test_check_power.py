@@ -11,6 +11,7 @@ from nullatlas.lookup import windows
 
 def test_wilson_interval():
     # Wilson (1927): 5 of 100 -> about [0.0215, 0.1118] (common textbook value, from memory)
+    assert check.wilson(200, 200)[1] == 1.0 and check.wilson(0, 200)[0] == 0.0
     lo, hi = check.wilson(5, 100)
     assert abs(lo - 0.0215) < 5e-4 and abs(hi - 0.1118) < 5e-4
     assert check.wilson(0, 50)[0] == 0.0
@@ -41,7 +42,7 @@ def test_check_cli_json_and_plot(tmp_path, capsys):
 
 
 @pytest.mark.slow
-def test_power_is_the_size_at_strength_zero_and_grows_with_clustering():
+def test_power_is_the_size_at_strength_zero_and_grows_with_clustering(tmp_path):
     w = windows.Disk(0, 0, 150)
     res = power.power_study(w, 300, ["thomas"], [0.0, 0.1, 0.3], 160, stats=["total0", "nnmean"],
                             sims=39, jobs=2, progress=False)
@@ -51,6 +52,8 @@ def test_power_is_the_size_at_strength_zero_and_grows_with_clustering():
         assert p0["ci"][0] <= 0.05 <= p0["ci"][1] or abs(p0["power"] - 0.05) < 0.04, p0
         assert by[(s, 0.3)]["power"] >= by[(s, 0.1)]["power"] >= p0["power"] - 0.03
         assert by[(s, 0.3)]["power"] > p0["power"] + 0.3
+    power.plot_power(res, str(tmp_path / "power.png"))          # powers of 1 included
+    assert (tmp_path / "power.png").stat().st_size > 1000
 
 
 def test_structured_part_has_exactly_k_points():
