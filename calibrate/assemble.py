@@ -26,6 +26,9 @@ ALPHAS = np.array([0.01, 0.05, 0.10])
 #: Probability levels of the stored quantiles of additive scalars.
 QUANTILE_LEVELS = np.round(np.concatenate([[0.001, 0.002, 0.005], np.arange(1, 100) / 100,
                                            [0.995, 0.998, 0.999]]), 6)
+#: Largest share of replicates where a statistic may be undefined (NaN) for
+#: its cell to be audited (and hence ever trusted).
+MAX_NONFINITE = 0.01
 #: Simulated Gaussian vectors for the max |z| critical values in the audit.
 GAUSS_SIMS = 20_000
 
@@ -71,7 +74,13 @@ def assemble_cell(n: int, data: dict, rng: np.random.Generator) -> dict:
             m = cd["moments"]
             cd["usable"] = gt.usable_coordinates(m.mean, m.sd, m.skewness, n,
                                                  name.startswith("betti")).astype(np.int8)
-        cd["audit"] = audit_cell(st.kind, x, rng, n=n, count_based=name.startswith("betti"))
+        if cd["nonfinite"] > MAX_NONFINITE * len(x):
+            # the moments describe only the replicates where the statistic was
+            # defined (border-corrected L/G need points far from the boundary):
+            # no asymptotic test is audited -- hence none is trusted -- here
+            cd["audit"] = {"n": np.int64(0), "nonfinite_share": np.float64(cd["nonfinite"] / len(x))}
+        else:
+            cd["audit"] = audit_cell(st.kind, x, rng, n=n, count_based=name.startswith("betti"))
         out[name] = cd
     return out
 

@@ -194,10 +194,14 @@ def _print_summary(s, out=None):
     if "simulation_seconds" in s:
         out.write(f"simulation: {s['simulation_seconds']:.1f} s\n")
     nn = s["model"].get("nnmean")
-    if nn and "c" in nn:
+    if nn and "c" in nn and s["dimension"] == 2:
         out.write(f"model check, mean nearest-neighbour distance: mu = {nn['mu']:.4f} +- "
                   f"{nn['mu_se']:.4f} (Clark-Evans 0.5), c = {nn['c']:.4f} +- {nn['c_se']:.4f} "
                   f"(Donnelly 0.0514), chi2/dof = {nn['chi2']:.1f}/{nn['dof']}\n")
+    elif nn and "c" in nn:
+        out.write(f"model check, mean nearest-neighbour distance: mu = {nn['mu']:.4f} +- "
+                  f"{nn['mu_se']:.4f} (CSR limit Gamma(4/3) (4 pi/3)^(-1/3) = 0.5540), boundary "
+                  f"c = {nn['c']:.4f} +- {nn['c_se']:.4f}, chi2/dof = {nn['chi2']:.1f}/{nn['dof']}\n")
     for stat, m in s["model"].items():
         for k, v in m.items():
             if k.startswith("holdout_") and v.get("rms_se") is not None:

