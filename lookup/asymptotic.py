@@ -81,7 +81,8 @@ def verdict(nm: NullMoments | None, stat, n: int, window, alternative: str,
         reasons.append(f"n = {n} is below the smallest calibrated n ({nm.n_range[0]})")
     if nm.route == "nearest":
         reasons.append(f"n = {n} is beyond the calibrated n of '{stat.name}' "
-                       f"({nm.n_range[0]}..{nm.n_range[1]}) and extremes have no model")
+                       f"({nm.n_range[0]}..{nm.n_range[1]}) by more than the factor to which "
+                       "extremes are extrapolated")
     key = test_key(nm.kind, alternative, curve_test)
     nmin = nm.n_min.get(key, "missing")
     where = nm.shape or "the calibrated shapes"

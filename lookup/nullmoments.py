@@ -250,6 +250,24 @@ def _from_cells(t: _Table, stat: str, cells: list, n: int, d: int) -> dict:
             "replicates": min(s1["count"], s2["count"])}
 
 
+#: Extremes are extrapolated at most this factor beyond the largest calibrated n.
+EXTRAPOLATE_EXTREMES = 10.0
+
+
+def _extrapolate_extreme(t: _Table, stat: str, c1, c2, n: int) -> dict:
+    """Null of an extreme beyond the largest cell: the two largest cells'
+    quantile functions extrapolated linearly in log n (the location of a
+    largest lifetime grows like a power of log n; Bobrowski, Kahle & Skraba
+    2017), mean and variance likewise."""
+    s1, s2 = t.stat(c1.name, stat), t.stat(c2.name, stat)
+    w = (np.log(n) - np.log(c2.n)) / (np.log(c1.n) - np.log(c2.n))   # negative beyond c2
+    vals = _interp_values(s1["values"], s2["values"], w)
+    mean = w * s1["mean"] + (1 - w) * s2["mean"]
+    cov = np.atleast_2d(np.var(vals, ddof=1))
+    return {"mean": mean, "cov": cov, "usable": None, "values": vals,
+            "replicates": min(s1["count"], s2["count"])}
+
+
 def _bracket(cells: list, n: int):
     ns = [c.n for c in cells]
     if n in ns:
@@ -304,12 +322,17 @@ def null_moments(tables: TableSet, window, n: int, stat: str) -> NullMoments | N
             else:
                 near = [cells[0]] if n < cells[0].n else [cells[-1]]
                 mom = _model_moments(t, stat, n, kap, d, near) if st.kind != "extreme" else None
-                if mom is None:
+                used = [near[0].name]
+                if mom is None and st.kind == "extreme" and n > cells[-1].n \
+                        and n <= EXTRAPOLATE_EXTREMES * cells[-1].n and len(cells) >= 2:
+                    mom = _extrapolate_extreme(t, stat, cells[-2], cells[-1], n)
+                    route = "extrapolated"
+                    used = [cells[-2].name, cells[-1].name]
+                elif mom is None:
                     mom = _from_cells(t, stat, near, near[0].n, d)
                     route = "nearest"
                 else:
                     route = "model"
-                used = [near[0].name]
             res = NullMoments(stat, st.kind, mom["mean"], mom["cov"],
                               None if mom["usable"] is None else np.asarray(mom["usable"]) > 0,
                               mom["values"], route, used, shape, _nmin(t, shape, stat), krange, ns,

@@ -105,7 +105,9 @@ def distinct_morton(P: np.ndarray):
     ext = P.max(axis=0) - lo
     ext[ext == 0] = 1.0
     key = _morton_kernel(P, lo, 1.0 / ext, 31 if d == 2 else 21)
-    order = np.argsort(key, kind="stable").astype(np.int64)
+    from .pairing import radix_argsort_keys
+
+    order = radix_argsort_keys(key).astype(np.int64)     # stable, like argsort(kind="stable")
     keep = _order_runs_and_dedupe(P, key, order)
     inv = np.empty(n, dtype=np.int64)
     inv[order] = np.cumsum(keep) - 1
@@ -120,6 +122,10 @@ def duplicate_groups(P: np.ndarray):
     ``np.unique(axis=0)``, which sorts rows as structured records."""
     P = np.ascontiguousarray(P, dtype=np.float64)
     U, inv = distinct_morton(P)
+    if len(U) == len(P):                 # the usual case: inv is a permutation
+        first = np.empty(len(P), dtype=np.int64)
+        first[inv] = np.arange(len(P))
+        return first, np.ones(len(P), dtype=np.int64)
     first = np.full(len(U), len(P), dtype=np.int64)
     np.minimum.at(first, inv, np.arange(len(P)))
     return first, np.bincount(inv, minlength=len(U))
