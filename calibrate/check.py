@@ -142,8 +142,7 @@ def plot_check(res: dict, path: str) -> str:
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
-    from nullatlas.lookup.atomic import atomic_path
-    from nullatlas.lookup.plots import check_plot_path
+    from nullatlas.lookup.plots import check_plot_path, save_figure
 
     check_plot_path(path)
     rows = [r for r in res["results"] if "qq" in r]
@@ -192,7 +191,4 @@ def plot_check(res: dict, path: str) -> str:
     fig.suptitle(f"instant test check, window {res['window']['kind']}, {res['reps']} CSR patterns "
                  "per n", fontsize=10)
     fig.tight_layout()
-    with atomic_path(path) as tmp:
-        fig.savefig(tmp, format=path.rsplit(".", 1)[-1].lower(), dpi=110)
-    plt.close(fig)
-    return path
+    return save_figure(fig, path)

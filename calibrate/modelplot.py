@@ -10,8 +10,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from nullatlas.lookup.atomic import atomic_path
-from nullatlas.lookup.plots import check_plot_path
+from nullatlas.lookup.plots import check_plot_path, save_figure
 from nullatlas.lookup.tablereader import load_cell, load_holdout, load_model, open_table
 
 __all__ = ["plot_model"]
@@ -95,8 +94,4 @@ def plot_model(path, out: str) -> str:
     ax.legend(fontsize=7)
     fig.suptitle(f"finite-window model of {info.path} ({d}D, {len(info.cells)} cells)", fontsize=10)
     fig.tight_layout()
-    ext = out.rsplit(".", 1)[-1]
-    with atomic_path(out) as tmp:
-        fig.savefig(tmp, format=ext, dpi=110)
-    plt.close(fig)
-    return out
+    return save_figure(fig, out)

@@ -151,8 +151,7 @@ def plot_power(res: dict, path: str) -> str:
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
-    from nullatlas.lookup.atomic import atomic_path
-    from nullatlas.lookup.plots import check_plot_path
+    from nullatlas.lookup.plots import check_plot_path, save_figure
 
     check_plot_path(path)
     alts = list(dict.fromkeys(r["alternative"] for r in res["rows"]))
@@ -178,7 +177,4 @@ def plot_power(res: dict, path: str) -> str:
     fig.suptitle(f"power, n = {res['n']}, window {res['window']['kind']}, {res['reps']} patterns "
                  "per point (solid: instant tests, dashed: Monte Carlo baselines)", fontsize=9)
     fig.tight_layout()
-    with atomic_path(path) as tmp:
-        fig.savefig(tmp, format=path.rsplit(".", 1)[-1].lower(), dpi=110)
-    plt.close(fig)
-    return path
+    return save_figure(fig, path)

@@ -98,6 +98,23 @@ def matern_hardcore(window, lambda_p: float, r: float, rng) -> np.ndarray:
 
 
 @numba.njit(cache=True)
+def _close_count(x, n, p, skip, r2):  # pragma: no cover - compiled
+    """Number of the first n points of x (but index ``skip``) closer than
+    sqrt(r2) to p."""
+    s = 0
+    for k in range(n):
+        if k == skip:
+            continue
+        dd = 0.0
+        for a in range(x.shape[1]):
+            diff = x[k, a] - p[a]
+            dd += diff * diff
+        if dd < r2:
+            s += 1
+    return s
+
+
+@numba.njit(cache=True)
 def _strauss_chain(x0, n0, beta_vol, gamma, r2, steps, u_kind, u_acc, cand,
                    pick):  # pragma: no cover - compiled
     d = x0.shape[1]
@@ -110,14 +127,7 @@ def _strauss_chain(x0, n0, beta_vol, gamma, r2, steps, u_kind, u_acc, cand,
             # birth of a uniform point of the window
             if n >= cap:
                 continue
-            s = 0
-            for k in range(n):
-                dd = 0.0
-                for a in range(d):
-                    diff = x[k, a] - cand[t, a]
-                    dd += diff * diff
-                if dd < r2:
-                    s += 1
+            s = _close_count(x, n, cand[t], -1, r2)
             ratio = beta_vol * gamma ** s / (n + 1)
             if u_acc[t] < ratio:
                 for a in range(d):
@@ -127,16 +137,7 @@ def _strauss_chain(x0, n0, beta_vol, gamma, r2, steps, u_kind, u_acc, cand,
             if n == 0:
                 continue
             i = int(pick[t] * n)
-            s = 0
-            for k in range(n):
-                if k == i:
-                    continue
-                dd = 0.0
-                for a in range(d):
-                    diff = x[k, a] - x[i, a]
-                    dd += diff * diff
-                if dd < r2:
-                    s += 1
+            s = _close_count(x, n, x[i], i, r2)
             w = beta_vol * gamma ** s
             # removing a point that violates a hard core (gamma = 0) is always accepted
             if w == 0.0 or u_acc[t] < n / w:

@@ -10,7 +10,7 @@ import numpy as np
 from .atomic import atomic_path
 from .errors import OptionError
 
-__all__ = ["plot_result", "plot_batch", "check_plot_path", "PLOT_FORMATS"]
+__all__ = ["plot_result", "plot_batch", "check_plot_path", "save_figure", "PLOT_FORMATS"]
 
 PLOT_FORMATS = (".png", ".pdf", ".svg")
 
@@ -23,6 +23,17 @@ def check_plot_path(path: str) -> None:
     folder = os.path.dirname(os.path.abspath(path))
     if not os.path.isdir(folder):
         raise OptionError(f"--plot folder does not exist: {folder}")
+
+
+def save_figure(fig, path: str) -> str:
+    """Write a matplotlib figure to ``path`` atomically (format from the suffix)
+    and close it."""
+    import matplotlib.pyplot as plt
+
+    with atomic_path(path) as tmp:
+        fig.savefig(tmp, format=os.path.splitext(path)[1].lower().lstrip("."), dpi=110)
+    plt.close(fig)
+    return path
 
 
 def plot_result(result, path: str, title: str | None = None) -> str:
@@ -104,11 +115,7 @@ def plot_result(result, path: str, title: str | None = None) -> str:
     w = result.window
     fig.suptitle(title or f"n = {result.n}, window {w['kind']} (kappa {w['kappa']:.3g})")
     fig.tight_layout()
-    ext = os.path.splitext(path)[1]
-    with atomic_path(path) as tmp:
-        fig.savefig(tmp, format=ext[1:], dpi=110)
-    plt.close(fig)
-    return path
+    return save_figure(fig, path)
 
 
 def plot_batch(res, path: str, alpha: float = 0.05) -> str:
@@ -146,8 +153,4 @@ def plot_batch(res, path: str, alpha: float = 0.05) -> str:
     ax.set_ylabel("p-value")
     ax.set_title("Benjamini-Hochberg")
     fig.tight_layout()
-    ext = os.path.splitext(path)[1].lower().lstrip(".")
-    with atomic_path(path) as tmp:
-        fig.savefig(tmp, format=ext, dpi=110)
-    plt.close(fig)
-    return path
+    return save_figure(fig, path)

@@ -3,7 +3,6 @@ and the finite-window model, including the Clark–Evans/Donnelly outside check.
 import json
 import os
 
-import h5py
 import numpy as np
 import pytest
 
@@ -17,34 +16,6 @@ from nullatlas.lookup.tablereader import load_cell, open_table
 TINY_STATS = ["euler", "total1", "maxpers1", "nnmean"]
 
 
-def _contents(path):
-    """Every dataset and attribute of an HDF5 file except the creation time."""
-    out = {}
-    with h5py.File(path, "r") as fh:
-        def visit(name, obj):
-            for k, v in obj.attrs.items():
-                if k not in ("created", "simulation_seconds"):
-                    out[f"{name}@{k}"] = v
-            if isinstance(obj, h5py.Dataset):
-                out[name] = obj[()]
-        fh.visititems(visit)
-        for k, v in fh.attrs.items():
-            if k not in ("created", "simulation_seconds"):  # timing metadata
-                out[f"@{k}"] = v
-    return out
-
-
-def _same(a, b):
-    assert a.keys() == b.keys()
-    for k in a:
-        x, y = a[k], b[k]
-        if isinstance(x, np.ndarray):
-            assert x.dtype == y.dtype and x.shape == y.shape, k
-            assert np.array_equal(x, y, equal_nan=x.dtype.kind == "f"), k
-        else:
-            assert x == y, k
-
-
 def _tiny(out, jobs=1, reps=40, scheduler=None):
     return build.build_table(str(out), [("square", shapes.shape_window("square")),
                                         ("disk", shapes.shape_window("disk"))],
@@ -52,17 +23,17 @@ def _tiny(out, jobs=1, reps=40, scheduler=None):
                              scheduler=scheduler, progress=False, n_fit=10)
 
 
-def test_jobs_do_not_change_the_table(tmp_path):
+def test_jobs_do_not_change_the_table(tmp_path, same_tables):
     _tiny(tmp_path / "a.h5", jobs=1)
     _tiny(tmp_path / "b.h5", jobs=2)
-    _same(_contents(tmp_path / "a.h5"), _contents(tmp_path / "b.h5"))
+    same_tables(tmp_path / "a.h5", tmp_path / "b.h5")
     info = open_table(tmp_path / "a.h5")
     assert [(c.shape, c.n, c.replicates) for c in info.cells] == \
         [("disk", 30, 40), ("disk", 60, 40), ("square", 30, 40), ("square", 60, 40)]
     assert not os.path.exists(str(tmp_path / "a.h5") + ".parts")   # checkpoints removed
 
 
-def test_interrupted_build_resumes_to_the_same_table(tmp_path, monkeypatch):
+def test_interrupted_build_resumes_to_the_same_table(tmp_path, monkeypatch, same_tables):
     _tiny(tmp_path / "ref.h5")
     real = runner.simulate_chunk
     calls = []
@@ -84,7 +55,7 @@ def test_interrupted_build_resumes_to_the_same_table(tmp_path, monkeypatch):
     monkeypatch.setattr(runner, "simulate_chunk", lambda *a, **k: (calls.append(a), real(*a, **k))[1])
     _tiny(out)
     assert len(calls) == 4 - 2                                 # only the missing chunks ran
-    _same(_contents(tmp_path / "ref.h5"), _contents(out))
+    same_tables(tmp_path / "ref.h5", out)
 
 
 def test_checkpoint_of_another_run_is_refused(tmp_path):
@@ -96,13 +67,13 @@ def test_checkpoint_of_another_run_is_refused(tmp_path):
         _tiny(out)
 
 
-def test_dask_cluster_gives_the_joblib_table(tmp_path):
+def test_dask_cluster_gives_the_joblib_table(tmp_path, same_tables):
     distributed = pytest.importorskip("distributed")
     _tiny(tmp_path / "joblib.h5", jobs=2)
     with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
                                   dashboard_address=None) as cluster:
         _tiny(tmp_path / "dask.h5", scheduler=cluster.scheduler_address)
-    _same(_contents(tmp_path / "joblib.h5"), _contents(tmp_path / "dask.h5"))
+    same_tables(tmp_path / "joblib.h5", tmp_path / "dask.h5")
 
 
 def test_extend_merges_moments_exactly(tmp_path):

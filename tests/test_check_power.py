@@ -24,7 +24,7 @@ def test_check_agrees_in_a_shipped_cell_and_not_far_below_n_min():
     for r in good["results"]:
         assert r["trusted"] and r["agrees"], r
         assert 0.3 < r["z_sd"] ** 2 * 3 < 3.3 and abs(r["z_mean"]) < 0.2
-    bad = check.check_window(w, [12], 1500, stats=["nnmean", "euler"], jobs=2, progress=False)
+    bad = check.check_window(w, [12], 1500, stats=["euler", "maxpers1"], jobs=2, progress=False)
     for r in bad["results"]:
         assert not r["trusted"] and r["agrees"] is False, r     # far below n_min: disagreement
 

@@ -9,7 +9,6 @@ import subprocess
 import sys
 import time
 
-import h5py
 import numpy as np
 import pytest
 
@@ -28,21 +27,8 @@ def _cal(*args, **kw):
                             stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, **kw)
 
 
-def _contents(path):
-    out = {}
-    with h5py.File(path, "r") as fh:
-        def visit(name, obj):
-            for k, v in obj.attrs.items():
-                if k not in ("created", "simulation_seconds"):
-                    out[f"{name}@{k}"] = np.asarray(v).tolist()
-            if isinstance(obj, h5py.Dataset):
-                out[name] = np.asarray(obj[()]).tolist()
-        fh.visititems(visit)
-    return out
-
-
 @pytest.mark.slow
-def test_sigkill_mid_calibration_then_resume_gives_the_same_table(tmp_path):
+def test_sigkill_mid_calibration_then_resume_gives_the_same_table(tmp_path, same_tables):
     ref = tmp_path / "ref.h5"
     p = _cal("build", *BUILD, "--out", str(ref))
     assert p.wait(300) == 0, p.stderr.read()
@@ -61,7 +47,7 @@ def test_sigkill_mid_calibration_then_resume_gives_the_same_table(tmp_path):
     assert 2 <= len(done) < CHUNKS                        # interrupted mid-run
     p = _cal("build", *BUILD, "--out", str(out))
     assert p.wait(300) == 0, p.stderr.read()
-    assert _contents(ref) == _contents(out)               # no chunk lost or counted twice
+    same_tables(ref, out)                                 # no chunk lost or counted twice
     info = open_table(out)
     assert [c.replicates for c in info.cells] == [80, 80]
     assert not os.path.exists(parts)
@@ -74,7 +60,7 @@ def _free_port():
 
 
 @pytest.mark.slow
-def test_dask_cluster_of_processes_survives_a_killed_worker(tmp_path):
+def test_dask_cluster_of_processes_survives_a_killed_worker(tmp_path, same_tables):
     pytest.importorskip("distributed")
     if shutil.which("dask") is None:
         pytest.skip("the dask command is not installed")
@@ -104,7 +90,7 @@ def test_dask_cluster_of_processes_survives_a_killed_worker(tmp_path):
         assert len(os.listdir(parts)) < CHUNKS
         os.kill(procs[1].pid, signal.SIGKILL)             # a worker dies mid-run
         assert b.wait(300) == 0, b.stderr.read()
-        assert _contents(ref) == _contents(out)
+        same_tables(ref, out)
         # nullatlas batch on the same cluster (one worker left) equals a local run
         folder = tmp_path / "files"
         folder.mkdir()
