@@ -15,14 +15,14 @@ shape) from the stored cells without simulating.
 """
 from __future__ import annotations
 
-import math
+import json
 import os
 import time
 
 import numpy as np
 
 from nullatlas.lookup import grids
-from nullatlas.lookup.errors import OptionError, TableError
+from nullatlas.lookup.errors import OptionError
 from nullatlas.lookup.statistics import STATISTICS, resolve_stats
 from nullatlas.lookup.tablereader import load_cell, open_table
 
@@ -179,7 +179,7 @@ def _finish(out, dimension, root_seed, stat_names, records, n_fit, holdout, extr
                     "max_abs_sd": float(np.max(np.abs(fsd))) if fsd.size else None,
                     "n_model": None if n_model < 0 else int(n_model),
                     "points": int(fin.size)}
-    attrs = {"stats": __import__("json").dumps(list(stat_names)), "model_n_fit": int(n_fit),
+    attrs = {"stats": json.dumps(list(stat_names)), "model_n_fit": int(n_fit),
              "holdout": str(holdout or "")}
     attrs.update(extra_attrs or {})
     write_table(out, dimension=dimension, root_seed=root_seed, grids=table_grids(), cells=records,
@@ -285,12 +285,11 @@ def _load_records(path):
     for c in info.cells:
         raw = load_cell(path, c.name)
         a = raw.get("attrs", {})
-        import json
         records.append({"name": c.name, "shape": c.shape, "n": c.n, "replicates": c.replicates,
                         "kappa": c.kappa, "geometry": json.loads(a.get("geometry", "{}")),
                         "spec": c.spec, "chunk_size": c.chunk_size, "chunks": c.chunks,
                         "stats": _stored_stats(raw)})
-    stats = __import__("json").loads(info.attrs.get("stats", "[]")) or \
+    stats = json.loads(info.attrs.get("stats", "[]")) or \
         sorted({s for c in info.cells for s in c.stats})
     return info, records, stats
 

@@ -23,12 +23,11 @@ import math
 import numpy as np
 from scipy import stats as _st
 
-from nullatlas.lookup import nulls
 from nullatlas.lookup.asymptotic import asymptotic_result, verdict
 from nullatlas.lookup.errors import OptionError
-from nullatlas.lookup.montecarlo import _alternative_for
+from nullatlas.lookup.montecarlo import _alternative_for, simulate_null
 from nullatlas.lookup.nullmoments import TableSet, default_tables, null_moments
-from nullatlas.lookup.statistics import compute, resolve_stats
+from nullatlas.lookup.statistics import resolve_stats
 
 __all__ = ["ALPHAS", "wilson", "check_window", "CHECK_SEED"]
 
@@ -49,11 +48,6 @@ def wilson(k: int, m: int, z: float = 1.959964) -> tuple[float, float]:
     return (0.0 if k == 0 else lo, 1.0 if k == m else hi)
 
 
-def _simulate(window, n, stats, seeds):
-    rows = [compute(nulls.csr(window, n, np.random.default_rng(s)), window, stats) for s in seeds]
-    return {s.name: np.stack([np.atleast_1d(r[s.name]) for r in rows]) for s in stats}
-
-
 def _agrees(kind, sizes, tails, m):
     def ok(rate, target, tol):
         return abs(rate - target) <= tol + 2 * math.sqrt(target * (1 - target) / m)
@@ -67,71 +61,51 @@ def check_window(window, ns, reps: int, *, stats=None, tables=None, seed: int = 
                  jobs: int = 1, progress=None) -> dict:
     """Run the check (see module doc); returns a JSON-ready dict with one
     entry per (n, statistic) and the standardised values for QQ plots."""
-    from joblib import Parallel, delayed
-    from tqdm.auto import tqdm
-
     if reps < 50:
         raise OptionError(f"--reps must be at least 50 for a size check, got {reps}")
     tset = TableSet(tables) if tables else default_tables()
     chosen = resolve_stats(stats, window.dim)
     out = {"window": window.describe(), "reps": int(reps), "seed": int(seed), "results": []}
     root = np.random.SeedSequence(int(seed))
-    bar = tqdm(total=len(ns) * reps, desc="check", unit="pattern",
-               disable=None if progress is None else not progress, leave=False)
-    try:
-        for n, ss in zip(ns, root.spawn(len(ns))):
-            seeds = ss.spawn(reps)
-            size = max(1, int(math.ceil(reps / (max(jobs, 1) * 4))))
-            parts = [seeds[i:i + size] for i in range(0, reps, size)]
-            data = []
-            if jobs == 1:
-                for p in parts:
-                    data.append(_simulate(window, n, chosen, p))
-                    bar.update(len(p))
-            else:
-                for d in Parallel(n_jobs=jobs, return_as="generator")(
-                        delayed(_simulate)(window, n, chosen, p) for p in parts):
-                    data.append(d)
-                    bar.update(len(d[chosen[0].name]))
-            vals = {s.name: np.concatenate([d[s.name] for d in data]) for s in chosen}
-            for st in chosen:
-                alt, _ = _alternative_for(st, "two-sided")
-                nm = null_moments(tset, window, n, st.name)
-                trusted, why = verdict(nm, st, n, window, alt)
-                row = {"n": int(n), "statistic": st.name, "kind": st.kind,
-                       "trusted": trusted, "reason": "; ".join(why)}
-                if nm is None:
-                    row.update({"agrees": None})
-                    out["results"].append(row)
-                    continue
-                res = [asymptotic_result(st, v, nm, alt, n, True, []) for v in vals[st.name]]
-                p = np.array([r.pvalue for r in res], float)
-                z = np.array([r.z for r in res], float)
-                ok = np.isfinite(p)
-                m = int(ok.sum())
-                sizes = [float(np.mean(p[ok] <= a)) for a in ALPHAS]
-                row.update({"route": nm.route, "replicates_table": nm.replicates, "m": m,
-                            "size": sizes,
-                            "size_ci": [wilson(int(round(s * m)), m) for s in sizes]})
-                if st.kind == "scalar":
-                    zz = z[np.isfinite(z)]
-                    c = _st.norm.isf(np.array(ALPHAS) / 2)
-                    tails = {"lower": [float(np.mean(zz < -ci)) for ci in c],
-                             "upper": [float(np.mean(zz > ci)) for ci in c]}
-                    row.update({"ks": float(_st.kstest(zz, "norm").statistic), "tails": tails,
-                                "z_mean": float(zz.mean()), "z_sd": float(zz.std(ddof=1)),
-                                "qq": np.sort(zz).tolist()})
-                else:
-                    tails = {}
-                    row.update({"ks_pvalues": float(_st.kstest(p[ok], "uniform").statistic),
-                                "qq": np.sort(p[ok]).tolist()})
-                    if st.kind == "extreme":
-                        zz = z[np.isfinite(z)]
-                        row.update({"z_mean": float(zz.mean()), "z_sd": float(zz.std(ddof=1))})
-                row["agrees"] = _agrees(st.kind, sizes, tails, m)
+    for n, ss in zip(ns, root.spawn(len(ns))):
+        # the Monte Carlo route's own seeded simulation (jobs-independent)
+        vals = simulate_null(window, n, chosen, ss.spawn(reps), jobs=jobs, progress=progress)
+        for st in chosen:
+            alt, _ = _alternative_for(st, "two-sided")
+            nm = null_moments(tset, window, n, st.name)
+            trusted, why = verdict(nm, st, n, window, alt)
+            row = {"n": int(n), "statistic": st.name, "kind": st.kind,
+                   "trusted": trusted, "reason": "; ".join(why)}
+            if nm is None:
+                row.update({"agrees": None})
                 out["results"].append(row)
-    finally:
-        bar.close()
+                continue
+            res = [asymptotic_result(st, v, nm, alt, n, True, []) for v in vals[st.name]]
+            p = np.array([r.pvalue for r in res], float)
+            z = np.array([r.z for r in res], float)
+            ok = np.isfinite(p)
+            m = int(ok.sum())
+            sizes = [float(np.mean(p[ok] <= a)) for a in ALPHAS]
+            row.update({"route": nm.route, "replicates_table": nm.replicates, "m": m,
+                        "size": sizes,
+                        "size_ci": [wilson(int(round(s * m)), m) for s in sizes]})
+            if st.kind == "scalar":
+                zz = z[np.isfinite(z)]
+                c = _st.norm.isf(np.array(ALPHAS) / 2)
+                tails = {"lower": [float(np.mean(zz < -ci)) for ci in c],
+                         "upper": [float(np.mean(zz > ci)) for ci in c]}
+                row.update({"ks": float(_st.kstest(zz, "norm").statistic), "tails": tails,
+                            "z_mean": float(zz.mean()), "z_sd": float(zz.std(ddof=1)),
+                            "qq": np.sort(zz).tolist()})
+            else:
+                tails = {}
+                row.update({"ks_pvalues": float(_st.kstest(p[ok], "uniform").statistic),
+                            "qq": np.sort(p[ok]).tolist()})
+                if st.kind == "extreme":
+                    zz = z[np.isfinite(z)]
+                    row.update({"z_mean": float(zz.mean()), "z_sd": float(zz.std(ddof=1))})
+            row["agrees"] = _agrees(st.kind, sizes, tails, m)
+            out["results"].append(row)
     return out
 
 

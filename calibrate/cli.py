@@ -13,7 +13,7 @@ import argparse
 import json
 import sys
 
-from nullatlas.lookup.cli import _float, _int, _Parser, guarded
+from nullatlas.lookup.cli import _int, _Parser, guarded
 from nullatlas.lookup.errors import OptionError
 
 PROG = "nullatlas-calibrate"

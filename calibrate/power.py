@@ -29,7 +29,7 @@ from nullatlas.lookup import nulls, ranks
 from nullatlas.lookup.models import FAMILIES, parse_model, simulate
 from nullatlas.lookup.asymptotic import asymptotic_result, verdict
 from nullatlas.lookup.errors import OptionError
-from nullatlas.lookup.montecarlo import _alternative_for
+from nullatlas.lookup.montecarlo import _alternative_for, simulate_null
 from nullatlas.lookup.nullmoments import TableSet, default_tables, null_moments
 from nullatlas.lookup.statistics import STATISTICS, compute, resolve_stats
 
@@ -93,9 +93,7 @@ def power_study(window, n: int, alternatives: list[str], strengths, reps: int, *
              for st in chosen}
     root = np.random.SeedSequence(int(seed))
     null_ss, rep_ss = root.spawn(2)
-    null = {b.name: np.stack([np.atleast_1d(compute(nulls.csr(window, n, np.random.default_rng(q)),
-                                                    window, [b])[b.name])
-                              for q in null_ss.spawn(sims)]) for b in base}
+    null = simulate_null(window, n, base, null_ss.spawn(sims), jobs=jobs)
     tasks = []
     kids = rep_ss.spawn(len(alts) * len(strengths))
     for ai, (name, params) in enumerate(alts):

@@ -19,10 +19,9 @@ import time
 
 import numpy as np
 
-from nullatlas.lookup import nulls
 from nullatlas.lookup.atomic import atomic_path
 from nullatlas.lookup.errors import OptionError
-from nullatlas.lookup.statistics import compute, resolve_stats
+from nullatlas.lookup.statistics import resolve_stats
 from nullatlas.lookup.windows import parse_window
 
 from .plan import CellPlan, chunk_seed
@@ -38,13 +37,14 @@ def simulate_chunk(spec: str, n: int, stat_names: list, root_seed: int, dimensio
     -------
     dict stat name -> float64 array of shape (count, k)
     """
+    from nullatlas.lookup.montecarlo import _chunk
+
     window = parse_window(spec)
     stats = resolve_stats(list(stat_names), dimension)
     seeds = chunk_seed(root_seed, dimension, shape, n, index).spawn(int(count))
-    rows = [compute(nulls.csr(window, n, np.random.default_rng(s)), window, stats, engine)
-            for s in seeds]
-    return {s.name: np.stack([np.atleast_1d(r[s.name]) for r in rows]).astype(float)
-            for s in stats}
+    # the Monte Carlo route's replicate loop, so tables match the runtime exactly
+    out = _chunk(window, n, stats, seeds, engine)
+    return {k: np.asarray(v, float).reshape(int(count), -1) for k, v in out.items()}
 
 
 class Checkpoints:
@@ -146,7 +146,6 @@ def run_chunks(plans: list[CellPlan], stat_names: list, root_seed: int, *, jobs:
     dim = plans[0].dimension if plans else 2
     pending = {}     # cell -> {index: data}
     need = {p.name: p.chunks() for p in plans}
-    by_name = {p.name: p for p in plans}
     out = {}
     todo = []
     for p in plans:
@@ -160,32 +159,26 @@ def run_chunks(plans: list[CellPlan], stat_names: list, root_seed: int, *, jobs:
     total_pts = sum(p.n * cnt for p, _, cnt in todo)
     bar = _progress(total_pts, progress, f"calibration {dim}D")
 
+    def complete(p):
+        """Hand over a cell whose chunks are all there."""
+        parts = pending.pop(p.name)
+        data = {s: np.concatenate([parts[i][s] for i, _ in need[p.name]]) for s in stat_names}
+        if on_cell is not None:
+            on_cell(p, data)
+        else:
+            out[p.name] = data
+
     def finished(p, idx, cnt, d):
-        if checkpoints is not None and idx not in pending[p.name]:
+        if checkpoints is not None:
             checkpoints.save(p, idx, cnt, d)
         pending[p.name][idx] = d
         if len(pending[p.name]) == len(need[p.name]):
-            parts = pending.pop(p.name)
-            data = {s: np.concatenate([parts[i][s] for i, _ in need[p.name]]) for s in stat_names}
-            if on_cell is not None:
-                on_cell(p, data)
-            else:
-                out[p.name] = data
+            complete(p)
 
     # cells whose chunks were all checkpointed are complete already
-    for name in list(pending):
-        if len(pending[name]) == len(need[name]):
-            p = by_name[name]
-            idx, cnt = need[name][0] if need[name] else (0, 0)
-            if need[name]:
-                finished(p, idx, cnt, pending[name][idx])
-            else:
-                pending.pop(name)
-                data = {s: np.zeros((0, 0)) for s in stat_names}
-                if on_cell is not None:
-                    on_cell(p, data)
-                else:
-                    out[name] = data
+    for p in plans:
+        if p.name in pending and len(pending[p.name]) == len(need[p.name]):
+            complete(p)
     try:
         args = [(p.spec, p.n, list(stat_names), int(root_seed), p.dimension, p.shape, idx, cnt,
                  engine) for p, idx, cnt in todo]

@@ -121,7 +121,6 @@ def _strauss_chain(x0, n0, beta_vol, gamma, r2, steps, u_kind, u_acc, cand,
     cap = x0.shape[0]
     x = x0.copy()
     n = n0
-    ci = 0
     for t in range(steps):
         if u_kind[t] < 0.5:
             # birth of a uniform point of the window

@@ -31,7 +31,6 @@ jittered.
 from __future__ import annotations
 
 import numpy as np
-from scipy import stats as _st
 
 from . import globaltests as gt
 from .extremes import GumbelTail

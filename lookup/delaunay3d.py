@@ -43,8 +43,8 @@ Algorithm
   Dirichlet tessellations", Comput. J. 24(2), 1981, pp. 162-166; D. F. Watson,
   "Computing the n-dimensional Delaunay tessellation with application to Voronoi
   polytopes", Comput. J. 24(2), 1981, pp. 167-172).  The convex hull is closed with
-  "ghost" tetrahedra sharing one infinite vertex (as in CGAL and in Shewchuk's
-  lecture notes), so no bounding super-tetrahedron exists.  A ghost over hull face
+  "ghost" tetrahedra sharing one infinite vertex (a common device of
+  incremental Delaunay codes), so no bounding super-tetrahedron exists.  A ghost over hull face
   F = (a, b, c) is in conflict with p when p lies strictly outside F's plane, or
   on that plane strictly inside the circumcircle of F; the latter is decided
   exactly as ``insphere`` of p against the real tetrahedron under F (its

@@ -24,7 +24,6 @@ process, so that a lookup after the first costs microseconds.
 from __future__ import annotations
 
 import functools
-import json
 import os
 from dataclasses import dataclass, field
 
@@ -180,32 +179,21 @@ def default_tables() -> TableSet:
 
 
 @functools.lru_cache(maxsize=256)
-def _shape_by_spec(spec: str, kind: str):
+def _shape_by_spec(spec: str):
     from .windows import parse_window
 
-    try:
-        return normalise(parse_window(spec))[0]
-    except ValueError:
-        return None
+    return normalise(parse_window(spec))[0]
 
 
 def _shape_name(window) -> str | None:
-    """Calibrated-shape name of a window (cached by its specification)."""
-    if window.estimated or window.kind in ("hull",):
-        try:
-            return normalise(window, allow_estimated=True)[0]
-        except ValueError:
-            return None
+    """Calibrated-shape name of a window (None: no shape); rectangles, disks,
+    boxes and balls are cached by their specification."""
     try:
-        spec = window.spec()
-    except NotImplementedError:
-        spec = None
-    if spec is None or not isinstance(spec, str) or spec.endswith((".geojson", ".json", ".wkt")):
-        try:
-            return normalise(window)[0]
-        except ValueError:
-            return None
-    return _shape_by_spec(spec, window.kind)
+        if window.kind in ("rect", "disk", "box", "ball") and not window.estimated:
+            return _shape_by_spec(window.spec())
+        return normalise(window, allow_estimated=True)[0]
+    except ValueError:
+        return None
 
 
 def _nmin(table: _Table, shape: str | None, stat: str) -> dict:
