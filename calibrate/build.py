@@ -27,7 +27,8 @@ from nullatlas.lookup.statistics import STATISTICS, resolve_stats
 from nullatlas.lookup.tablereader import load_cell, open_table
 
 from . import assemble as asm
-from .model import MODEL_TOL_SD, fit_model, holdout_errors, holdout_sd_errors, model_n_ok
+from .model import (MODEL_TOL_SD, cell_covariates, fit_extreme_geomodel, fit_geomodel, fit_model,
+                    holdout_errors, holdout_sd_errors, model_n_ok)
 from .moments import Moments
 from .nmin import n_min_table
 from .plan import DEFAULT_STATS, CellPlan, chunk_seed, chunk_size_for
@@ -179,16 +180,58 @@ def _finish(out, dimension, root_seed, stat_names, records, n_fit, holdout, extr
                     "max_abs_sd": float(np.max(np.abs(fsd))) if fsd.size else None,
                     "n_model": None if n_model < 0 else int(n_model),
                     "points": int(fin.size)}
+    geomodels = fit_geomodels(records, stat_names, dimension)
+    for stat, g in geomodels.items():
+        if not isinstance(g, dict):
+            model_summary.setdefault(stat, {})["geomodel_chi2_per_dof_median"] = float(
+                np.nanmedian(g.mean_chi2 / max(len(g.cells) - g.mean_coef.shape[1], 1)))
     attrs = {"stats": json.dumps(list(stat_names)), "model_n_fit": int(n_fit),
-             "holdout": str(holdout or "")}
+             "holdout": str(holdout or ""), "geomodel_n_fit": int(GEO_N_FIT)}
     attrs.update(extra_attrs or {})
     write_table(out, dimension=dimension, root_seed=root_seed, grids=table_grids(), cells=records,
-                nmin=nmin, models=models, holdouts=holdouts, attrs=attrs)
+                nmin=nmin, models=models, holdouts=holdouts, attrs=attrs, geomodels=geomodels)
     nmin_summary = {shape: {s: dict(zip(t, (int(x) if x >= 0 else None for x in v)))
                             for s, (t, v) in per.items()} for shape, per in nmin.items()}
     return {"table": os.fspath(out), "dimension": dimension, "root_seed": int(root_seed),
             "cells": len(records), "replicates": int(sum(r["replicates"] for r in records)),
             "n_min": nmin_summary, "model": model_summary}
+
+
+#: Smallest n of the cells the geometric model is fitted on.
+GEO_N_FIT = 100
+
+
+def fit_geomodels(records: list, stat_names, dimension: int, n_fit: int = GEO_N_FIT) -> dict:
+    """The geometric finite-window model of every statistic (``calibrate.model``):
+    additive statistics by :func:`fit_geomodel`, extremes by
+    :func:`fit_extreme_geomodel`; statistics that cannot be fitted are left out."""
+    out = {}
+    covs = {}
+    for r in records:
+        if r.get("spec") and r["spec"] != "hull":
+            try:
+                covs[r["name"]] = cell_covariates(r["spec"], r["n"])
+            except ValueError:      # a window this version cannot parse
+                continue
+    for stat in stat_names:
+        rows = []
+        for r in records:
+            it = r["stats"].get(stat)
+            if it is None or r["name"] not in covs:
+                continue
+            m = it["moments"]
+            if m.count <= 2:
+                continue
+            rows.append({"name": r["name"], "n": r["n"], "cov": covs[r["name"]], "mean": m.mean,
+                         "var": np.diag(m.cov), "count": m.count, "values": it.get("values")})
+        try:
+            if STATISTICS[stat].kind == "extreme":
+                out[stat] = fit_extreme_geomodel(rows, n_fit)
+            else:
+                out[stat] = fit_geomodel(rows, dimension, n_fit)
+        except ValueError:
+            continue
+    return out
 
 
 def _plans(targets, ns, reps, dimension, first=None):
@@ -359,3 +402,14 @@ def refit_table(path, *, n_fit: int | None = None, holdout: str | None = None) -
     return _finish(path, info.dimension, info.root_seed, stat_names, records,
                    n_fit if n_fit is not None else int(info.attrs.get("model_n_fit", 200)),
                    holdout if holdout is not None else (info.attrs.get("holdout") or None), extra)
+
+
+def refit_geomodel(path) -> dict:
+    """Refit the geometric model of a table from its stored cells (no
+    simulation) and rewrite the table atomically; returns the fits."""
+    from .tablewriter import update_table
+
+    info, records, stat_names = _load_records(path)
+    geo = fit_geomodels(records, stat_names, info.dimension)
+    update_table(path, geomodels=geo)
+    return geo

@@ -179,3 +179,113 @@ def model_n_ok(ns, err_sd: np.ndarray, tol: float = MODEL_TOL_SD) -> int:
         else:
             break
     return best
+
+
+# --------------------------------------------------------------------------
+# The geometric model: covariates from the window's inner parallel sets
+# --------------------------------------------------------------------------
+
+def cell_covariates(spec: str, n: int) -> np.ndarray:
+    """Covariates [1, B1, B2, B3] (``lookup.boundary``) of a table cell,
+    from its window specification and n."""
+    from nullatlas.lookup.boundary import covariates
+
+    return covariates(_window_of(spec), int(n))
+
+
+_WINDOWS: dict = {}
+
+
+def _window_of(spec: str):
+    from nullatlas.lookup.windows import parse_window
+
+    w = _WINDOWS.get(spec)
+    if w is None:
+        w = _WINDOWS[spec] = parse_window(spec)
+    return w
+
+
+def fit_geomodel(cells: list[dict], d: int, n_fit: int = 100) -> Fit:
+    """Fit E[S] = mu + c1 B1 + c2 B2 + c3 B3 and the same form for n Var[S]
+    per grid point (weighted least squares as :func:`fit_model`), over the
+    cells with n >= ``n_fit``.  Each cell dict needs ``cov`` (the covariates
+    of ``lookup.boundary.covariates``) besides the keys of :func:`fit_model`."""
+    use = [c for c in cells if c["n"] >= n_fit and c["count"] > 2]
+    if len(use) < 6:
+        raise ValueError(f"the geometric model needs at least 6 cells with n >= {n_fit}, "
+                         f"got {len(use)}")
+    n = np.array([c["n"] for c in use], float)
+    X = np.array([c["cov"] for c in use], float)
+    R = np.array([c["count"] for c in use], float)
+    mean = np.array([c["mean"] for c in use])
+    var = np.array([c["var"] for c in use])
+    sem = np.sqrt(var / R[:, None])
+    nvar = n[:, None] * var
+    nvar_se = nvar * np.sqrt(2.0 / (R[:, None] - 1.0))
+    mc, ms, mcov, mchi, mres = wls(X, mean, sem)
+    vc, vs, vcov, vchi, vres = wls(X, nvar, nvar_se)
+    return Fit(d, [c["name"] for c in use], mc, ms, mcov, mchi, vc, vs, vcov, vchi, mres, vres,
+               int(n_fit))
+
+
+def predict_geo(coef: np.ndarray, cov: np.ndarray) -> np.ndarray:
+    """Model value at covariates ``cov`` (4,): coef (k, 4) @ cov."""
+    return np.asarray(coef, float) @ np.asarray(cov, float)
+
+
+#: Points of the x grid on which the extremes' exceedance model is fitted.
+EXTREME_GRID = 160
+
+
+def fit_extreme_geomodel(cells: list[dict], n_fit: int = 100) -> dict:
+    """Exceedance model of an extreme statistic (largest lifetime or ratio).
+
+    The largest of many weakly dependent local features has
+    P(max <= x) ~ exp(-E[number of features above x]), and that expected
+    number is additive over the window like any sum of local contributions:
+
+        -log F_{W,n}(x) = n a(x) + n B1 b(x) + c(x),
+
+    a(x) per point of the interior, b(x) the boundary's excess per unit of
+    normalised boundary measure (n B1 = |dW| s^(d-1)), c(x) a fixed-n term.
+    Fitted per x by weighted least squares over the cells (empirical F from
+    the tabled null values; var(-log F_hat) ~ (1 - F) / (R F), the delta
+    method), on a grid of x covering the pooled values.
+
+    Parameters
+    ----------
+    cells : list of dict
+        With ``n``, ``cov`` (covariates), ``values`` (sorted null values).
+
+    Returns
+    -------
+    dict with ``x`` (grid) and ``coef`` (len(x), 3).
+    """
+    use = [c for c in cells if c["n"] >= n_fit and c.get("values") is not None
+           and len(c["values"]) >= 100]
+    if len(use) < 6:
+        raise ValueError(f"the extreme model needs at least 6 cells with n >= {n_fit}")
+    pooled = np.concatenate([np.asarray(c["values"], float) for c in use])
+    pooled = pooled[np.isfinite(pooled)]
+    x = np.quantile(pooled, np.linspace(0.0005, 0.9995, EXTREME_GRID))
+    x = np.unique(x)
+    coef = np.full((len(x), 3), np.nan)
+    n = np.array([c["n"] for c in use], float)
+    nb1 = n * np.array([c["cov"][1] for c in use], float)
+    X = np.column_stack([n, nb1, np.ones_like(n)])
+    for j, xj in enumerate(x):
+        y, w, rows = [], [], []
+        for i, c in enumerate(use):
+            v = np.asarray(c["values"], float)
+            v = v[np.isfinite(v)]
+            R = len(v)
+            F = np.searchsorted(v, xj, side="right") / R
+            if 5 <= F * R <= R - 5:
+                y.append(-np.log(F))
+                w.append(1.0 / np.sqrt((1 - F) / (R * F)))
+                rows.append(i)
+        if len(rows) >= 4:
+            Xw = X[rows] * np.asarray(w)[:, None]
+            b, *_ = np.linalg.lstsq(Xw, np.asarray(y) * np.asarray(w), rcond=None)
+            coef[j] = b
+    return {"x": x, "coef": coef}

@@ -17,7 +17,8 @@ from nullatlas.lookup.tablereader import SCHEMA, SCHEMA_VERSION
 
 from .moments import Moments
 
-__all__ = ["software_versions", "write_table"]
+__all__ = ["software_versions", "write_table", "write_geomodels", "write_validation",
+           "update_table"]
 
 
 def software_versions() -> dict:
@@ -96,9 +97,60 @@ def _write_fit(g, fit, extra=None):
             _put(g, k, v)
 
 
+def write_geomodels(fh, geomodels: dict) -> None:
+    """The ``/geomodel`` group of an open table (replaced if present)."""
+    if "geomodel" in fh:
+        del fh["geomodel"]
+    gg = fh.create_group("geomodel")
+    for sname, fit in geomodels.items():
+        g = gg.create_group(sname)
+        if isinstance(fit, dict):
+            _put(g, "x", np.asarray(fit["x"], float))
+            _put(g, "coef", np.asarray(fit["coef"], float))
+            g.attrs["kind"] = "extreme"
+        else:
+            _write_fit(g, fit)
+            g.attrs["kind"] = "additive"
+
+
+def write_validation(fh, validation: dict) -> None:
+    """The ``/validation`` and ``/trust`` groups of an open table (replaced)."""
+    for name in ("validation", "trust"):
+        if name in fh:
+            del fh[name]
+    vg = fh.create_group("validation")
+    vg.attrs["rows"] = json.dumps(validation.get("rows", []))
+    for k, v in validation.get("attrs", {}).items():
+        vg.attrs[k] = v
+    tg = fh.create_group("trust")
+    for sname, per in validation.get("trust", {}).items():
+        g = tg.create_group(sname)
+        for test, rng in per.items():
+            g.attrs[test] = json.dumps(rng)
+
+
+def update_table(path, geomodels: dict | None = None, validation: dict | None = None) -> None:
+    """Replace the geometric model and/or validation groups of a table,
+    atomically (a copy is changed and renamed over the original); the schema
+    version becomes the current one."""
+    import shutil
+
+    import h5py
+
+    with atomic_path(path) as tmp:
+        shutil.copyfile(path, tmp)
+        with h5py.File(tmp, "a") as fh:
+            fh.attrs["schema_version"] = SCHEMA_VERSION
+            if geomodels is not None:
+                write_geomodels(fh, geomodels)
+            if validation is not None:
+                write_validation(fh, validation)
+
+
 def write_table(path, *, dimension: int, root_seed: int, grids: dict, cells: list,
                 nmin: dict | None = None, models: dict | None = None,
-                holdouts: dict | None = None, attrs: dict | None = None) -> None:
+                holdouts: dict | None = None, attrs: dict | None = None,
+                geomodels: dict | None = None, validation: dict | None = None) -> None:
     """Write a null table.
 
     Parameters
@@ -119,6 +171,12 @@ def write_table(path, *, dimension: int, root_seed: int, grids: dict, cells: lis
     holdouts : dict shape -> stat -> (Fit, errors array, held-out cell names)
     attrs : dict, optional
         Extra root attributes (strings or numbers).
+    geomodels : dict stat -> Fit (additive statistics) or dict with ``x`` and
+        ``coef`` (extremes), optional
+        The geometric finite-window model (``calibrate.model.fit_geomodel``).
+    validation : dict, optional
+        ``{"rows": [...], "trust": {stat: {test: {...}}}}`` from
+        ``calibrate.validate`` (scores on held-out windows, validated ranges).
     """
     import h5py
 
@@ -163,6 +221,10 @@ def write_table(path, *, dimension: int, root_seed: int, grids: dict, cells: lis
                 mg = fh.create_group("model")
                 for sname, fit in models.items():
                     _write_fit(mg.create_group(sname), fit)
+            if geomodels:
+                write_geomodels(fh, geomodels)
+            if validation:
+                write_validation(fh, validation)
             if holdouts:
                 hg = fh.create_group("holdout")
                 for shape, per in holdouts.items():

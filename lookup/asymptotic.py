@@ -19,14 +19,14 @@ For an observed summary S with tabled null mean m and covariance C
   (``lookup.globaltests``).
 
 Trust verdict (:func:`verdict`): a result is untrusted when there is no
-table for the dimension or statistic, the window is not convex or has
-holes, its kappa lies outside the table's shapes, n is below the audited
-n_min of the test (or no calibrated n passed the audit), the window's shape
-is not calibrated and n is below the n from which the finite-window model
-predicted a held-out shape within 0.1 pattern sd, n is outside the
-calibrated range where no model applies (extremes), a curve has no usable
-grid point, or more than 1 % of the points were duplicates dropped or
-jittered.
+table for the dimension or statistic, n is below the audited n_min of the
+test (or no calibrated n passed the audit), the answer comes from the
+finite-window model (a window that is not a calibrated shape, or n beyond
+the shape's cells) outside the range where the model was validated on
+held-out windows (n, share of the window near its boundary, share in
+narrow parts), the window was estimated from the data, a curve has no
+usable grid point, or more than 1 % of the points were duplicates dropped
+or jittered.
 """
 from __future__ import annotations
 
@@ -45,7 +45,6 @@ __all__ = ["N_GAUSS", "DUPLICATE_LIMIT", "test_key", "verdict", "asymptotic_resu
 N_GAUSS = 10_000
 #: Fraction of handled duplicate points above which no asymptotic answer is trusted.
 DUPLICATE_LIMIT = 0.01
-_KAPPA_SLACK = 0.02
 
 
 def test_key(kind: str, alternative: str, curve_test: str = "maxabs") -> str:
@@ -57,34 +56,71 @@ def test_key(kind: str, alternative: str, curve_test: str = "maxabs") -> str:
     return {"two-sided": "two_sided", "greater": "upper", "less": "lower"}[alternative]
 
 
+def _model_trust(nm: NullMoments, stat, n: int, window, key: str) -> list:
+    """Reasons against a model-route answer: the window at this n must lie
+    inside the range where the table's validation on held-out windows
+    measured the model to hold (``calibrate.validate``)."""
+    from .boundary import NARROW_WIDTH, trust_measures
+
+    if nm.route == "nearest-shape":
+        return [nm.approximate or f"no model for '{stat.name}' in this table"]
+    if nm.route == "kappa-model":
+        return [f"the table ({nm.table}) predates the validated geometric model (schema "
+                f"version {nm.extra.get('schema_version', 1)}); rebuild it or use the shipped "
+                "tables"]
+    per = (nm.extra.get("trust") or {}).get(key)
+    if not per:
+        return [f"the model route of '{stat.name}' ({key} test) was not validated on held-out "
+                "windows in this table"]
+    if not per.get("passed"):
+        return [f"the model route of '{stat.name}' ({key} test) did not hold its size on any "
+                "held-out window"]
+    m = trust_measures(window, n)
+    nm.extra["measures"] = m
+    out = []
+    lo, hi = int(per["n_lo"]), int(per["n_hi"])
+    if n < lo or n > hi:
+        out.append(f"n = {n} is outside the n where the model of '{stat.name}' was validated on "
+                   f"held-out windows ({lo}..{hi})")
+    if m["narrow_share"] > per["narrow_share_max"] + 1e-12:
+        out.append(f"{m['narrow_share']:.1%} of the window lies in parts narrower than "
+                   f"{NARROW_WIDTH:g} mean spacings (validated up to "
+                   f"{per['narrow_share_max']:.1%} for '{stat.name}')")
+    if m["second_order"] > per.get("second_order_max", np.inf) + 1e-12:
+        out.append(f"the window's corners, tips or curvature are too strong for this n "
+                   f"(second-order term |B2| sqrt(n) = {m['second_order']:.3g}; the model of "
+                   f"'{stat.name}' was validated up to {per['second_order_max']:.3g})")
+    if m["boundary_share"] > per["boundary_share_max"] + 1e-12:
+        out.append(f"{m['boundary_share']:.1%} of the window lies within one mean spacing of its "
+                   f"boundary (the model of '{stat.name}' was validated up to "
+                   f"{per['boundary_share_max']:.1%})")
+    return out
+
+
 def verdict(nm: NullMoments | None, stat, n: int, window, alternative: str,
             n_duplicates: int = 0, curve_test: str = "maxabs") -> tuple[bool, list]:
-    """(trusted, reasons) of the asymptotic test of ``stat`` (a Statistic)."""
+    """(trusted, reasons) of the asymptotic test of ``stat`` (a Statistic).
+
+    A calibrated shape within its cells is trusted from the audited n_min of
+    the test; any other window, or n beyond the shape's cells, goes through
+    the model and is trusted only where the table's validation on held-out
+    windows measured the model to hold: n within the validated range, and
+    the window's share within one mean spacing of its boundary and its
+    share in narrow parts no larger than on the held-out windows where the
+    size held (``lookup.boundary.trust_measures``)."""
     reasons = []
     if nm is None:
         return False, [f"no null table covers '{stat.name}' in {window.dim}D"]
-    if not getattr(window, "convex", True):
-        reasons.append("the window is not convex (the tables and their model are for convex "
-                       "windows)")
-    if getattr(window, "holes", 0):
-        reasons.append(f"the window has {window.holes} hole(s)")
-    if nm.shape is None:
-        lo, hi = nm.kappa_range
-        k = float(window.kappa)
-        if not lo * (1 - _KAPPA_SLACK) <= k <= hi * (1 + _KAPPA_SLACK):
-            reasons.append(f"the window's kappa {k:.3g} is outside the calibrated range "
-                           f"[{lo:.3g}, {hi:.3g}]")
-    if nm.approximate:
-        reasons.append(nm.approximate)
+    if getattr(window, "estimated", False):
+        reasons.append("the window was estimated from the data (bbox/hull): the instant "
+                       "answers assume a known window")
+    key = test_key(nm.kind, alternative, curve_test)
+    if nm.route in ("model", "kappa-model", "nearest-shape"):
+        reasons += _model_trust(nm, stat, n, window, key)
     if n < nm.n_range[0]:
         reasons.append(f"n = {n} is below the smallest calibrated n ({nm.n_range[0]})")
-    if nm.route == "nearest":
-        reasons.append(f"n = {n} is beyond the calibrated n of '{stat.name}' "
-                       f"({nm.n_range[0]}..{nm.n_range[1]}) by more than the factor to which "
-                       "extremes are extrapolated")
-    key = test_key(nm.kind, alternative, curve_test)
     nmin = nm.n_min.get(key, "missing")
-    where = nm.shape or "the calibrated shapes"
+    where = nm.shape or "every calibrated shape"
     if nmin == "missing":
         reasons.append(f"the table has no audit of the {key} test of '{stat.name}'")
     elif nmin is None:
@@ -93,14 +129,6 @@ def verdict(nm: NullMoments | None, stat, n: int, window, alternative: str,
     elif n < nmin:
         reasons.append(f"n = {n} is below n_min = {nmin} of the {key} test of '{stat.name}' "
                        f"for {where}")
-    if nm.shape is None and nm.route == "model":
-        nmod = nm.n_min.get("model")
-        if nmod is None:
-            reasons.append(f"the finite-window model of '{stat.name}' did not predict a held-out "
-                           "shape within 0.1 sd at any calibrated n (or was not checked)")
-        elif n < nmod:
-            reasons.append(f"n = {n} is below n = {nmod}, from which the finite-window model of "
-                           f"'{stat.name}' predicted a held-out shape within 0.1 sd")
     if nm.kind == "curve" and (nm.usable is None or not np.any(nm.usable)):
         reasons.append(f"no grid point of '{stat.name}' has a near-normal null at this n")
     if n_duplicates > DUPLICATE_LIMIT * max(n, 1):

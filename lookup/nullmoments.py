@@ -11,12 +11,19 @@ Three routes, tried in this order (the result says which one was used):
     the finite-window model) of the mean and of the per-point covariance
     n Cov; extremes interpolate the two cells' quantile functions.
 ``model``
-    A convex window of a shape not in the table, or n beyond the shape's
-    largest cell: the finite-window model (``calibrate.model``) at (n, kappa)
-    for the mean and n Var, with the correlation matrix and usable grid points
-    of the nearest calibrated cell (closest kappa, then closest n^(-1/d)).
-    Extremes have no model: the nearest shape's cells are interpolated in n
-    and the route is marked approximate.
+    Any other window (any polygon, with holes or not; masks; boxes, balls and
+    cylinders of any aspect; periodic boxes), or n beyond the shape's
+    largest cell: the geometric finite-window model (``calibrate.model``,
+    covariates of ``lookup.boundary``: boundary measure, the shortfall of the
+    boundary band, 1/n) for the mean and n Var, with the correlation matrix
+    and usable grid points of the nearest calibrated cell (closest kappa,
+    then closest n^(-1/d)).  Extremes: the exceedance model
+    -log F(x) = n a(x) + n B1 b(x) + c(x), turned into a null sample by
+    inverting F.  Tables of schema version 1 have no geometric model: there
+    the two-term model in kappa n^(-1/d) is used (convex windows) and
+    extremes take the nearest shape's cells, marked approximate.  Whether a
+    model answer is trusted is decided from the table's validation on
+    held-out windows (``lookup.asymptotic.verdict``).
 
 Tables are read lazily, one (cell, statistic) at a time, and cached in the
 process, so that a lookup after the first costs microseconds.
@@ -109,6 +116,22 @@ class _Table:
             v.sort(key=lambda c: c.n)
         self.kappas = {s: cs[0].kappa for s, cs in self.by_shape.items()}
         self._model = None
+        self._geo = None
+
+    def geomodel(self, stat: str):
+        """The geometric model of ``stat`` (dict of arrays) or None."""
+        if self._geo is None:
+            import h5py
+
+            self._geo = {}
+            with h5py.File(self.path, "r") as fh:
+                for s, g in fh.get("geomodel", {}).items():
+                    kind = g.attrs.get("kind", "additive")
+                    kind = kind.decode() if isinstance(kind, bytes) else kind
+                    keys = ("x", "coef") if kind == "extreme" else ("mean_coef", "var_coef")
+                    self._geo[s] = {k: np.asarray(g[k][()], float) for k in keys}
+                    self._geo[s]["kind"] = kind
+        return self._geo.get(stat)
 
     @functools.lru_cache(maxsize=4096)
     def stat(self, cell: str, stat: str) -> dict:
@@ -238,24 +261,6 @@ def _from_cells(t: _Table, stat: str, cells: list, n: int, d: int) -> dict:
             "replicates": min(s1["count"], s2["count"])}
 
 
-#: Extremes are extrapolated at most this factor beyond the largest calibrated n.
-EXTRAPOLATE_EXTREMES = 10.0
-
-
-def _extrapolate_extreme(t: _Table, stat: str, c1, c2, n: int) -> dict:
-    """Null of an extreme beyond the largest cell: the two largest cells'
-    quantile functions extrapolated linearly in log n (the location of a
-    largest lifetime grows like a power of log n; Bobrowski, Kahle & Skraba
-    2017), mean and variance likewise."""
-    s1, s2 = t.stat(c1.name, stat), t.stat(c2.name, stat)
-    w = (np.log(n) - np.log(c2.n)) / (np.log(c1.n) - np.log(c2.n))   # negative beyond c2
-    vals = _interp_values(s1["values"], s2["values"], w)
-    mean = w * s1["mean"] + (1 - w) * s2["mean"]
-    cov = np.atleast_2d(np.var(vals, ddof=1))
-    return {"mean": mean, "cov": cov, "usable": None, "values": vals,
-            "replicates": min(s1["count"], s2["count"])}
-
-
 def _bracket(cells: list, n: int):
     ns = [c.n for c in cells]
     if n in ns:
@@ -286,6 +291,81 @@ def _model_moments(t: _Table, stat: str, n: int, kappa: float, d: int, near: lis
             "replicates": base["replicates"]}
 
 
+#: Size of the null sample drawn from the extremes' exceedance model.
+EXTREME_SAMPLE = 4000
+
+
+def extreme_sample(x: np.ndarray, coef: np.ndarray, n: int, b1: float,
+                   m: int = EXTREME_SAMPLE) -> np.ndarray:
+    """A null sample (sorted, m values) of an extreme statistic from its
+    exceedance model: F(x) = exp(-(n a(x) + n B1 b(x) + c(x)))
+    (``calibrate.model.fit_extreme_geomodel``), inverted at the levels
+    (i + 1/2)/m; beyond the fitted grid the upper tail continues with
+    log(-log F) linear in x (a Gumbel tail fitted to the last grid points)."""
+    ok = np.all(np.isfinite(coef), axis=1)
+    x, coef = np.asarray(x, float)[ok], np.asarray(coef, float)[ok]
+    lam = coef[:, 0] * n + coef[:, 1] * n * b1 + coef[:, 2]
+    lam = np.minimum.accumulate(np.maximum(lam, 1e-300))      # -log F decreases in x
+    F = np.exp(-lam)
+    levels = (np.arange(m) + 0.5) / m
+    keep = np.concatenate([[True], np.diff(F) > 0])
+    xs, Fs = x[keep], F[keep]
+    out = np.interp(levels, Fs, xs)
+    tail = (lam > 1e-6) & (F > 0.5)
+    if tail.sum() >= 3:
+        tx = x[tail][-max(3, int(tail.sum()) // 3):]
+        tl = np.log(lam[tail][-len(tx):])
+        b, a = np.polyfit(tx, tl, 1)
+        hi = levels > Fs[-1]
+        if b < 0 and hi.any():
+            out[hi] = np.maximum((np.log(-np.log(levels[hi])) - a) / b, xs[-1])
+    return np.sort(out)
+
+
+def _geo_moments(t: _Table, stat: str, n: int, window, d: int, near: list):
+    """Geometric-model moments at (window, n); correlation and usable grid
+    points of the nearest calibrated cell(s) ``near``."""
+    from .boundary import covariates
+
+    g = t.geomodel(stat)
+    if g is None:
+        return None
+    cov = covariates(window, n)
+    base = _from_cells(t, stat, near, n if len(near) == 2 else near[0].n, d)
+    if g["kind"] == "extreme":
+        vals = extreme_sample(g["x"], g["coef"], n, float(cov[1]))
+        return {"mean": np.array([vals.mean()]), "cov": np.atleast_2d(np.var(vals, ddof=1)),
+                "usable": None, "values": vals, "replicates": base["replicates"],
+                "covariates": cov}
+    mean = g["mean_coef"] @ cov
+    nvar = g["var_coef"] @ cov
+    sd_b = np.sqrt(np.clip(np.diag(base["cov"]), 0, None))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        corr = base["cov"] / np.outer(sd_b, sd_b)
+    corr = np.where(np.isfinite(corr), corr, 0.0)
+    sd = np.sqrt(np.clip(nvar / n, 0, None))
+    c = corr * np.outer(sd, sd)
+    np.fill_diagonal(c, sd ** 2)
+    return {"mean": mean, "cov": c, "usable": base["usable"], "values": None,
+            "replicates": base["replicates"], "covariates": cov}
+
+
+def _nearest_cells(t: _Table, stat: str, kap: float, n: int, prefer: str | None = None):
+    """Cells of the calibrated shape closest in kappa (or ``prefer``) that
+    bracket n, clamped to the shape's range."""
+    if prefer in t.by_shape:
+        near_shape = prefer
+    else:
+        near_shape = min(t.by_shape, key=lambda s: abs(t.kappas[s] - kap))
+    cells = [c for c in t.by_shape[near_shape] if stat in c.stats]
+    if not cells:
+        return near_shape, []
+    br = _bracket(cells, n)
+    if br is None:
+        br = [cells[0]] if n < cells[0].n else [cells[-1]]
+    return near_shape, br
+
+
 def null_moments(tables: TableSet, window, n: int, stat: str) -> NullMoments | None:
     """Null moments of ``stat`` for ``n`` points in ``window``; None when no
     table of the window's dimension has the statistic.
@@ -293,12 +373,15 @@ def null_moments(tables: TableSet, window, n: int, stat: str) -> NullMoments | N
     Raises TableError only for damaged tables."""
     st = STATISTICS[stat]
     d = window.dim
+    periodic = bool(getattr(window, "periodic", False))
     for t in tables.for_dimension(d):
         if not any(stat in c.stats for c in t.info.cells):
             continue
         shape = _shape_name(window)
         kap = float(window.kappa)
         krange = (min(t.kappas.values()), max(t.kappas.values()))
+        approx = ""
+        route = None
         if shape in t.by_shape:
             cells = [c for c in t.by_shape[shape] if stat in c.stats]
             ns = (cells[0].n, cells[-1].n)
@@ -307,53 +390,44 @@ def null_moments(tables: TableSet, window, n: int, stat: str) -> NullMoments | N
                 mom = _from_cells(t, stat, br, n, d)
                 route = "cell" if len(br) == 1 else "interpolated"
                 used = [c.name for c in br]
-            else:
-                near = [cells[0]] if n < cells[0].n else [cells[-1]]
-                mom = _model_moments(t, stat, n, kap, d, near) if st.kind != "extreme" else None
-                used = [near[0].name]
-                if mom is None and st.kind == "extreme" and n > cells[-1].n \
-                        and n <= EXTRAPOLATE_EXTREMES * cells[-1].n and len(cells) >= 2:
-                    mom = _extrapolate_extreme(t, stat, cells[-2], cells[-1], n)
-                    route = "extrapolated"
-                    used = [cells[-2].name, cells[-1].name]
-                elif mom is None:
-                    mom = _from_cells(t, stat, near, near[0].n, d)
-                    route = "nearest"
+        if route is None:
+            # any other window, or n outside the shape's cells: the model
+            prefer = shape if shape in t.by_shape else ("torus2" if d == 2 else "torus3") \
+                if periodic else None
+            near_shape, br = _nearest_cells(t, stat, kap, n, prefer)
+            if not br:
+                continue
+            mom = _geo_moments(t, stat, n, window, d, br)
+            route = "model"
+            if mom is None:
+                # schema 1: the two-term kappa model; extremes from the nearest shape
+                if st.kind == "extreme":
+                    nn = n if len(br) == 2 else br[0].n
+                    mom = _from_cells(t, stat, br, nn, d)
+                    approx = (f"no finite-window model for the extreme '{stat}' in this table: "
+                              f"null of the calibrated shape with the nearest kappa ({near_shape})")
+                    route = "nearest-shape"
                 else:
-                    route = "model"
-            res = NullMoments(stat, st.kind, mom["mean"], mom["cov"],
-                              None if mom["usable"] is None else np.asarray(mom["usable"]) > 0,
-                              mom["values"], route, used, shape, _nmin(t, shape, stat), krange, ns,
-                              replicates=int(mom["replicates"]), table=t.path)
-        else:
-            # uncalibrated shape: nearest kappa, then the model
-            near_shape = min(t.by_shape, key=lambda s: abs(t.kappas[s] - kap))
-            cells = [c for c in t.by_shape[near_shape] if stat in c.stats]
-            br = _bracket(cells, n)
-            if br is None:
-                br = [cells[0]] if n < cells[0].n else [cells[-1]]
-            nn = n if len(br) == 2 or br[0].n == n else br[0].n
-            approx = ""
-            if st.kind == "extreme":
-                mom = _from_cells(t, stat, br, nn, d)
-                approx = (f"no finite-window model for the extreme '{stat}': null of the calibrated "
-                          f"shape with the nearest kappa ({near_shape})")
-                route = "nearest-shape"
-            else:
-                mom = _model_moments(t, stat, n, kap, d, br)
-                route = "model"
-                if mom is None:
-                    continue
+                    mom = _model_moments(t, stat, n, kap, d, br)
+                    route = "kappa-model"
+                    if mom is None:
+                        continue
+            used = [c.name for c in br]
             ns = (min(c.n for c in t.info.cells), max(c.n for c in t.info.cells))
-            nmin = _nmin(t, None, stat)
-            if route == "model":
-                nmin["model"] = t.n_model(stat)
-            res = NullMoments(stat, st.kind, mom["mean"], mom["cov"],
-                              None if mom["usable"] is None else np.asarray(mom["usable"]) > 0,
-                              mom["values"], route, [c.name for c in br], None,
-                              nmin, krange, ns, replicates=int(mom["replicates"]),
-                              table=t.path, approximate=approx)
+        calibrated = shape if shape in t.by_shape else None
+        nmin = _nmin(t, calibrated, stat)
+        if route == "kappa-model":
+            nmin["model"] = t.n_model(stat)
+        res = NullMoments(stat, st.kind, mom["mean"], mom["cov"],
+                          None if mom["usable"] is None else np.asarray(mom["usable"]) > 0,
+                          mom["values"], route, used, calibrated, nmin, krange, ns,
+                          replicates=int(mom["replicates"]), table=t.path, approximate=approx)
+        if route in ("model", "kappa-model", "nearest-shape"):
             res.extra["nearest_shape"] = near_shape
+            res.extra["trust"] = t.info.trust.get(stat)
+            res.extra["schema_version"] = t.info.schema_version
+            if "covariates" in mom:
+                res.extra["covariates"] = [float(v) for v in mom["covariates"]]
         if stat.startswith("betti"):
             res.expected_count = n * res.mean
             if res.usable is not None:

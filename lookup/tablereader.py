@@ -1,6 +1,8 @@
 """Reading null tables (HDF5): schema check, metadata and coverage.
 
-Layout, schema version 1 (written by ``calibrate.tablewriter``):
+Layout, schema version 2 (written by ``calibrate.tablewriter``; version 1,
+the same without ``/geomodel``, ``/validation`` and ``/trust``, is still
+read -- its model route is then never trusted, see ``lookup.asymptotic``):
 
     /                    attrs: schema = "nullatlas-null-table", schema_version,
                                 created (ISO 8601 UTC), software (JSON: versions),
@@ -24,6 +26,14 @@ Layout, schema version 1 (written by ``calibrate.tablewriter``):
     /model/<stat>/*                      finite-window model (``calibrate.model``)
     /holdout/<shape>/<stat>/*            the model refitted without that shape, with
                                          the held-out cells' prediction errors
+    /geomodel/<stat>/*                   geometric finite-window model (``calibrate.model``,
+                                         covariates of ``lookup.boundary``): mean_coef,
+                                         var_coef (k, 4); extremes: x, coef (len(x), 3)
+    /validation                          attrs rows: JSON list of the scores of the
+                                         held-out windows (``calibrate.validate``)
+    /trust/<stat>                        attrs per test: JSON {boundary_share_max,
+                                         narrow_share_max, n_lo, n_hi, cells, passed}:
+                                         where the model route was measured to hold
 
 Only plain numeric datasets and string attributes are read: opening a table
 never executes anything.  Anything else -- not HDF5, truncated, another
@@ -40,12 +50,14 @@ import numpy as np
 
 from .errors import TableError
 
-__all__ = ["SCHEMA", "SCHEMA_VERSION", "TableInfo", "CellInfo", "open_table", "load_cell",
+__all__ = ["SCHEMA", "SCHEMA_VERSION", "READABLE_VERSIONS", "TableInfo", "CellInfo", "open_table", "load_cell",
            "load_model", "load_holdout", "shipped_tables", "read_m2",
            "unpack_symmetric"]
 
 SCHEMA = "nullatlas-null-table"
-SCHEMA_VERSION = 1
+SCHEMA_VERSION = 2
+#: Schema versions this reader understands.
+READABLE_VERSIONS = (1, 2)
 
 
 @dataclass(frozen=True)
@@ -79,6 +91,8 @@ class TableInfo:
     nmin: dict = field(default_factory=dict)
     attrs: dict = field(default_factory=dict)
     models: tuple = ()
+    geomodels: tuple = ()
+    trust: dict = field(default_factory=dict)
 
     def coverage(self) -> list[dict]:
         """One dict per cell (for listings and ``--json``)."""
@@ -136,9 +150,10 @@ def open_table(path, dimension: int | None = None) -> TableInfo:
             if schema != SCHEMA:
                 raise TableError(f"{path}: not a nullatlas null table (schema {schema!r})")
             version = int(_attr(fh, "schema_version", path))
-            if version != SCHEMA_VERSION:
+            if version not in READABLE_VERSIONS:
                 raise TableError(f"{path}: table schema version {version} is not supported "
-                                 f"(this nullatlas reads version {SCHEMA_VERSION})")
+                                 f"(this nullatlas reads versions "
+                                 f"{', '.join(map(str, READABLE_VERSIONS))})")
             dim = int(_attr(fh, "dimension", path))
             if dimension is not None and dim != dimension:
                 raise TableError(f"{path}: the table is for {dim}D patterns, the data are {dimension}D")
@@ -171,6 +186,10 @@ def open_table(path, dimension: int | None = None) -> TableInfo:
                         raise TableError(f"{path}: nmin/{shape}/{sname} does not match its tests")
                     info.nmin[shape][sname] = dict(zip(tests, vals.tolist()))
             info.models = tuple(sorted(fh.get("model", {}).keys()))
+            info.geomodels = tuple(sorted(fh.get("geomodel", {}).keys()))
+            for sname, tg in fh.get("trust", {}).items():
+                info.trust[sname] = {k: json.loads(v.decode() if isinstance(v, bytes) else v)
+                                     for k, v in tg.attrs.items()}
             info.attrs = {k: (v.decode() if isinstance(v, bytes) else v) for k, v in fh.attrs.items()
                           if k not in ("schema", "software")}
     except TableError:

@@ -1,0 +1,105 @@
+"""Geometric measures of a window that drive the finite-window correction.
+
+Additive summaries are sums of local contributions, so under CSR their mean
+per point depends on the window only through how much of it lies at each
+distance from its boundary (DESIGN.md, "A boundary correction for any
+window").  With s = (n/|W|)^(1/d) the factor that turns lengths into
+normalised units (mean spacing 1) and V(t) = |{x in W : d(x, dW) > t}| the
+content of the inner parallel set (``Window.inner_content``; holes are part
+of the boundary):
+
+    B1 = |dW| s^(d-1) / n  = kappa n^(-1/d)
+         the normalised boundary measure per point: the first-order term of
+         the Miles/Donnelly edge effect (Steiner: V'(0) = -|dW|);
+    B2 = B1 h - 1 + V(h / s) / |W|
+       = (1/n) int_0^h (P*(0) - P*(t)) dt,
+         P*(t) the normalised perimeter (surface) of the inner parallel set
+         at normalised depth t, h = ``DEPTH`` mean spacings: how much the
+         boundary band falls short of (boundary measure x depth).  It is
+         tau h^2 / (2 n) for a convex polygon with tau = sum over corners of
+         2 cot(angle / 2) (2 pi for a disk), negative around holes and reflex
+         corners (the inner parallel set grows there), of order n^(-2/3) in
+         3D (edges), and large where parts of the window are narrower than
+         2 h, where the bands from two sides overlap;
+    B3 = 1 / n
+         fixed-n (binomial) and corner terms of order 1/n.
+
+The model (``calibrate.model``) is E[S] = mu + c1 B1 + c2 B2 + c3 B3 and
+likewise n Var[S]; for a convex polygon B2 and B3 are both of order 1/n, so
+the shipped two-term model mu + c kappa n^(-1/d) + e n^(-2/d) is the special
+case c2 = 0 in 2D.
+
+Trust measures (``lookup.asymptotic``):
+
+    boundary_share = 1 - V(1 / s) / |W|
+        the share of the window within one mean spacing of its boundary;
+    second_order = |B2| sqrt(n)
+        the size of the second-order term in units of a pattern's sd (up to
+        a constant per statistic): corners, acute tips, curvature, holes;
+    narrow_share = share of the window in parts narrower than
+        ``NARROW_WIDTH`` mean spacings (1 - |opening of W by a ball of
+        radius NARROW_WIDTH / 2| / |W|).
+"""
+from __future__ import annotations
+
+import numpy as np
+
+__all__ = ["DEPTH", "NARROW_WIDTH", "MEASURES", "covariates", "trust_measures", "COVARIATES"]
+
+#: The trust measures, in the order of the validated range.
+MEASURES = ("boundary_share", "second_order", "narrow_share")
+
+#: Depth h (mean spacings) of the band behind the second-order term B2.
+DEPTH = 1.0
+#: Parts of a window narrower than this many mean spacings count as narrow.
+NARROW_WIDTH = 3.0
+#: Names of the model's covariates, in the order of the coefficients.
+COVARIATES = ("1", "B1", "B2", "B3")
+
+
+def _scale(window, n: int) -> float:
+    return (n / float(window.measure)) ** (1.0 / window.dim)
+
+
+def _inner_fraction(window, t: float) -> float:
+    """V(t) / |W| for one physical distance t (1 for windows without boundary)."""
+    if getattr(window, "periodic", False) or float(window.boundary_measure) == 0.0:
+        return 1.0
+    v = np.asarray(window.inner_content(np.array([t], float)), float).reshape(-1)[0]
+    return float(v) / float(window.measure)
+
+
+def covariates(window, n: int, depth: float = DEPTH) -> np.ndarray:
+    """The model covariates [1, B1, B2, B3] of ``n`` points in ``window``."""
+    n = int(n)
+    d = window.dim
+    s = _scale(window, n)
+    b1 = float(window.boundary_measure) * s ** (d - 1) / n
+    if b1 == 0.0:
+        return np.array([1.0, 0.0, 0.0, 1.0 / n])
+    b2 = b1 * depth - 1.0 + _inner_fraction(window, depth / s)
+    return np.array([1.0, b1, b2, 1.0 / n])
+
+
+def trust_measures(window, n: int) -> dict:
+    """Geometric measures that the trust verdict compares with the validated
+    range: ``boundary_share``, ``second_order``, ``narrow_share`` (see the
+    module doc), ``B1`` and ``B2``."""
+    s = _scale(window, int(n))
+    cov = covariates(window, n)
+    if getattr(window, "periodic", False) or float(window.boundary_measure) == 0.0:
+        return {"boundary_share": 0.0, "second_order": 0.0, "narrow_share": 0.0, "B1": 0.0,
+                "B2": 0.0}
+    share = 1.0 - _inner_fraction(window, 1.0 / s)
+    narrow = 0.0
+    fn = getattr(window, "narrow_share", None)
+    if fn is not None:
+        narrow = float(fn(NARROW_WIDTH / s))
+    return {"boundary_share": float(share), "second_order": float(abs(cov[2]) * np.sqrt(n)),
+            "narrow_share": float(max(narrow, 0.0)), "B1": float(cov[1]), "B2": float(cov[2])}
+
+
+def describe_narrow(width_spacings: float = NARROW_WIDTH) -> str:
+    """Plain words for the narrow-part threshold (used in reasons)."""
+    return f"narrower than {width_spacings:g} mean spacings ((|W|/n)^(1/d))"
+
