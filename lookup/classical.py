@@ -18,6 +18,9 @@ Besag's L function from Ripley's K, border corrected (Ripley, JRSS B 39,
     L(rho) = (lambda K / pi)^(1/2) (2D),  (3 lambda K / (4 pi))^(1/3) (3D);
     CSR: L(rho) = rho.
 Grid points with no interior point (#{i : b_i >= r} = 0) are NaN.
+On a periodic window (a torus, ``lookup.periodic``) the k-d tree is periodic,
+distances are minimum-image distances and b_i = inf: G and K then use every
+point and every pair, with no edge correction needed (no boundary).
 """
 from __future__ import annotations
 
@@ -45,7 +48,14 @@ def close_pairs(points: np.ndarray, radius: float, tree: cKDTree | None = None):
     pairs = tree.query_pairs(radius, output_type="ndarray")
     if len(pairs) == 0:
         return np.zeros((0, 2), dtype=np.intp), np.zeros(0)
-    dist = np.sqrt(np.sum((points[pairs[:, 0]] - points[pairs[:, 1]]) ** 2, axis=1))
+    if tree.boxsize is None:
+        diff = points[pairs[:, 0]] - points[pairs[:, 1]]
+    else:                     # periodic tree (a torus): minimum-image differences
+        x = tree.data
+        diff = x[pairs[:, 0]] - x[pairs[:, 1]]
+        box = tree.boxsize[: x.shape[1]]
+        diff -= box * np.round(diff / box)
+    dist = np.sqrt(np.sum(diff ** 2, axis=1))
     return pairs, dist
 
 
@@ -59,7 +69,7 @@ def nn_from_pairs(points: np.ndarray, pairs: np.ndarray, dist: np.ndarray,
     miss = np.flatnonzero(~np.isfinite(nn))
     if len(miss):
         tree = tree or cKDTree(points)
-        d, _ = tree.query(points[miss], k=2)
+        d, _ = tree.query(tree.data[miss], k=2)   # the tree's coordinates (periodic: wrapped)
         nn[miss] = d[:, 1]
     return nn
 

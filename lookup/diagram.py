@@ -78,6 +78,13 @@ class Diagram:
         return self.pairs[q] / self.scale
 
     @property
+    def homology_dims(self) -> range:
+        """Dimensions q that can hold classes: 0..d-1 in Euclidean space (the
+        union of balls never has a d-dimensional class); 0..d on a torus
+        (``lookup.periodic.PeriodicDiagram``)."""
+        return range(self.dim)
+
+    @property
     def max_dim(self) -> int:
         """Highest homology dimension stored (d - 1)."""
         return len(self.pairs) - 1

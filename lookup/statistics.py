@@ -162,7 +162,16 @@ class PatternSummary:
         return self._cache[key]
 
     @property
+    def periodic(self) -> bool:
+        """True on a torus (``lookup.periodic``): periodic images everywhere."""
+        return bool(getattr(self.window, "periodic", False))
+
+    @property
     def diagram(self) -> Diagram:
+        if self.periodic:
+            from .periodic import periodic_diagram
+            return self._get("diagram", lambda: periodic_diagram(self.points, self.window,
+                                                                 self.engine))
         engine = self.engine
         if self.dim == 3 and self.want_h1_pairs:
             # the fast 3D engine would compute H1 pairs with gudhi on top of its
@@ -173,6 +182,8 @@ class PatternSummary:
 
     @property
     def tree(self) -> cKDTree:
+        if self.periodic:       # torus distances: cKDTree(points - lo, boxsize=sides)
+            return self._get("tree", lambda: self.window.tree(self.points))
         return self._get("tree", lambda: cKDTree(self.points))
 
     @property

@@ -41,7 +41,7 @@ def betti_curve(diag: Diagram, q: int, grid: np.ndarray = grids.RHO) -> np.ndarr
 
 def euler_curve(diag: Diagram, grid: np.ndarray = grids.RHO) -> np.ndarray:
     """chi(rho)/n = sum_q (-1)^q beta_q(rho)/n on ``grid``."""
-    return sum((-1) ** q * betti_curve(diag, q, grid) for q in range(diag.dim))
+    return sum((-1) ** q * betti_curve(diag, q, grid) for q in diag.homology_dims)
 
 
 def persistent_betti(diag: Diagram, q: int, pairs: np.ndarray = grids.PBETTI_PAIRS) -> np.ndarray:

@@ -768,6 +768,9 @@ def parse_window(spec: str, points: np.ndarray | None = None) -> Window:
         except ValueError:
             raise WindowError(f"window '{spec}': not all of {rest!r} are numbers") from None
         return cls(*vals)
+    if key == "torus" and rest:                 # periodic box (lookup.periodic)
+        from .periodic import parse_torus
+        return parse_torus(spec, rest)
     if key == "polygon" and rest:
         import shapely.wkt
         parse_errors = _parse_errors()

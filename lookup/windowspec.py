@@ -2,4 +2,5 @@
 the command line can print its help without importing numpy)."""
 
 SPEC_HELP = ("rect:xmin,ymin,xmax,ymax | disk:cx,cy,r | box:xmin,ymin,zmin,xmax,ymax,zmax"
-             " | ball:cx,cy,cz,r | polygon:WKT | FILE.geojson | FILE.wkt | bbox | hull")
+             " | ball:cx,cy,cz,r | torus:xmin,ymin[,zmin],xmax,ymax[,zmax] (periodic)"
+             " | polygon:WKT | FILE.geojson | FILE.wkt | bbox | hull")

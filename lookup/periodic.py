@@ -1,0 +1,455 @@
+"""Periodic windows (flat tori) and exact persistence of their alpha filtration.
+
+A :class:`PeriodicBox` is an axis-aligned box whose opposite faces are
+identified: the flat torus R^d / (L_1 Z x ... x L_d Z).  It has no boundary,
+so ``boundary_measure = 0``, ``kappa = 0`` and every point lies at infinite
+distance from the (empty) boundary: border-corrected estimators use every
+point, and distances are periodic (minimum-image) distances.
+
+Periodic alpha persistence (:func:`periodic_diagram`)
+-----------------------------------------------------
+The union of balls of radius r around the points on the torus is the quotient,
+by the lattice of periods, of the union around the periodic point set
+P + L Z^d.  The alpha complex of P + L Z^d deformation-retracts onto that union
+equivariantly (Edelsbrunner & Harer, *Computational Topology*, 2010, III.4;
+the retraction is defined by the Voronoi cells, which the periods permute), so
+the quotient of the periodic alpha complex, filtered by the alpha values, has
+the persistent homology of the union of balls on the torus.  We build it as
+follows.
+
+1. Coordinates relative to the box centre, rounded to multiples of
+   g_i = ulp(L_i) (a move of at most half a unit in the last place of the
+   side, the size of the rounding of p - c itself) and wrapped into
+   [-L_i/2, L_i/2).  Every image u + k L_i with |u + k L_i| < L_i is then a
+   double *exactly* (a multiple of g_i below 2^53 g_i), so images are exact
+   translates and every copy of a simplex has bit-identically the same
+   filtration value.
+2. Images of the points in a halo of width h <= min L_i / 2 around the box
+   (offsets k in {-1, 0, 1}^d), and the exact alpha filtration of that
+   extended set: our kernels (``engine="fast"``: ``lookup.alpha2d`` /
+   ``lookup.alpha3d``, exactly rounded values) or gudhi's
+   ``AlphaComplex(precision="exact")`` (``engine="gudhi"``, the reference,
+   whose symbolic perturbation also triangulates co-circular cells the same
+   way in every copy).  Both give the same exactly rounded values.
+3. One representative per orbit: the copy in which the vertex of smallest
+   original index lies in the box (offset 0); vertices are mapped to their
+   original indices.
+4. Checks, each of which raises or retries rather than return a wrong
+   diagram: (a) every top simplex with a vertex in the box has circumradius
+   R with 2R < h, so its circumball lies in the extended region, where the
+   extended set *is* the periodic set -- its emptiness and the attachment of
+   its faces are those of the periodic Delaunay complex (otherwise the halo
+   grows to 2.1 R_max and the filtration is recomputed); (b) the quotient is
+   a simplicial complex: no simplex has two vertices in one orbit and
+   distinct simplices have distinct vertex sets (guaranteed when
+   2 R_max < min L_i / 2: edges are then shorter than half a period, so each
+   is the unique minimum-image edge between its vertices); (c) it is a closed
+   pseudomanifold of Euler characteristic 0, the torus's: every (d-1)-simplex
+   lies in exactly two d-simplices.  Co-circular (lattice) inputs whose
+   copies our triangulator splits differently fail (c) and are recomputed
+   with the gudhi engine.  When no halo up to half the side suffices (the
+   largest empty ball has radius near L/4 or more), the pattern is too sparse
+   for the quotient to be a simplicial complex and :class:`PointsError` says
+   so in one line.
+5. Persistence of the quotient filtered complex over Z/2 with gudhi's
+   ``SimplexTree`` (all dimensions 0..d).
+
+Storing the essential classes
+-----------------------------
+On the d-torus the homology at the end of the filtration is that of the
+torus: b_q = C(d, q) (2D: b0 = 1, b1 = 2, b2 = 1; 3D: 1, 3, 3, 1).  As for
+the one H0 class of a Euclidean diagram, each essential class is a row
+``(birth, inf)`` of ``pairs[q]``; the diagram stores ``pairs[0..d]`` (d + 1
+arrays: the top class, born when the torus is covered, is kept in
+``pairs[d]``).  Betti and Euler curves count essential rows (a class is alive
+from its birth on); total and maximal persistence, APF and silhouettes use
+finite pairs only, as for Euclidean diagrams.  ``homology_dims`` is
+``range(d + 1)`` so that the Euler curve includes the top class.
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from .diagram import Diagram, intensity_scale
+from .errors import PointsError, WindowError
+from .windows import Window
+
+__all__ = ["PeriodicBox", "PeriodicDiagram", "parse_torus", "periodic_diagram",
+           "torus_frame"]
+
+
+class _PeriodicChecked(type(Window)):
+    """Metaclass of periodic windows: checks the content only (no boundary)."""
+
+    def __call__(cls, *args, **kwargs):
+        w = type.__call__(cls, *args, **kwargs)
+        with np.errstate(all="ignore"):
+            m = float(w.measure)
+        if not (math.isfinite(m) and m > 0 and m ** (1.0 / w.dim) > 1e-100):
+            raise WindowError(f"window {w.spec()}: its volume {m:.3g} is out of "
+                              "floating-point range; rescale the coordinates")
+        return w
+
+
+class PeriodicBox(Window, metaclass=_PeriodicChecked):
+    """Axis-aligned box with opposite faces identified (a flat torus), 2D or 3D.
+
+    Parameters
+    ----------
+    *bounds : float
+        ``xmin, ymin, xmax, ymax`` (2D) or ``xmin, ymin, zmin, xmax, ymax,
+        zmax`` (3D).
+
+    Attributes
+    ----------
+    lo, hi : ndarray
+        Lower and upper corners; ``sides = hi - lo`` are the periods.
+    periodic : bool
+        Always True: distances and persistence use periodic images.
+
+    Notes
+    -----
+    The torus has no boundary: ``boundary_measure`` and ``kappa`` are 0,
+    :meth:`boundary_distance` is +inf everywhere, and the inner parallel set
+    at any distance and the opening by any ball are the whole torus.
+    """
+
+    kind = "torus"
+    periodic = True
+    convex = True
+    holes = 0
+
+    def __init__(self, *bounds):
+        if len(bounds) not in (4, 6):
+            raise WindowError(f"torus needs 4 (2D) or 6 (3D) numbers, got {len(bounds)}")
+        vals = [float(v) for v in bounds]
+        if not all(math.isfinite(v) for v in vals):
+            raise WindowError(f"torus: coordinates must be finite numbers, got {list(bounds)}")
+        d = len(vals) // 2
+        self.dim = d
+        self.lo = np.array(vals[:d])
+        self.hi = np.array(vals[d:])
+        if np.any(self.hi <= self.lo):
+            raise WindowError(f"{self.spec()} has zero or negative "
+                              f"{'area' if d == 2 else 'volume'} (need min < max on every axis)")
+
+    @property
+    def sides(self) -> np.ndarray:
+        """The periods L_i = hi_i - lo_i."""
+        return self.hi - self.lo
+
+    @property
+    def measure(self) -> float:
+        return float(np.prod(self.sides))
+
+    @property
+    def boundary_measure(self) -> float:
+        return 0.0
+
+    def contains(self, points) -> np.ndarray:
+        p = np.asarray(points, float)
+        return np.all((p >= self.lo) & (p <= self.hi), axis=1)
+
+    def boundary_distance(self, points) -> np.ndarray:
+        """+inf for every point: a torus has no boundary."""
+        return np.full(len(np.asarray(points)), np.inf)
+
+    def sample(self, n, rng) -> np.ndarray:
+        """n i.i.d. uniform points (the uniform law on the torus)."""
+        return self.lo + self.sides * rng.random((n, self.dim))
+
+    def inner_content(self, t):
+        """Content of {x : dist(x, boundary) > t}: the whole torus for every t."""
+        return np.full(np.shape(t), self.measure) if np.ndim(t) else self.measure
+
+    def opened_content(self, r):
+        """Content of the opening by a ball of radius r: the whole torus."""
+        return np.full(np.shape(r), self.measure) if np.ndim(r) else self.measure
+
+    def spec(self) -> str:
+        return "torus:" + ",".join(f"{v:.17g}" for v in (*self.lo, *self.hi))
+
+    def describe(self) -> dict:
+        out = super().describe()
+        out["periodic"] = True
+        return out
+
+    def wrap(self, points) -> np.ndarray:
+        """Coordinates relative to ``lo`` wrapped into [0, L_i) (for
+        ``scipy.spatial.cKDTree(..., boxsize=sides)``)."""
+        x = np.asarray(points, float) - self.lo
+        L = self.sides
+        x = np.where(x >= L, x - L, x)
+        x = np.where(x < 0, x + L, x)
+        # rounding can leave x == L after adding L to a tiny negative value
+        return np.where(x >= L, 0.0, x)
+
+    def tree(self, points):
+        """A periodic k-d tree of the points: its distances are torus distances."""
+        from scipy.spatial import cKDTree
+
+        return cKDTree(self.wrap(points), boxsize=self.sides)
+
+
+def parse_torus(spec: str, rest: str) -> PeriodicBox:
+    """``torus:xmin,ymin,xmax,ymax`` or ``torus:xmin,ymin,zmin,xmax,ymax,zmax``."""
+    parts = rest.split(",")
+    if len(parts) not in (4, 6):
+        raise WindowError(f"window '{spec}': torus needs 4 (2D) or 6 (3D) numbers, "
+                          f"got {len(parts)}")
+    try:
+        vals = [float(s) for s in parts]
+    except ValueError:
+        raise WindowError(f"window '{spec}': not all of {rest!r} are numbers") from None
+    return PeriodicBox(*vals)
+
+
+# --------------------------------------------------------------------------------------
+# Exact periodic alpha persistence
+# --------------------------------------------------------------------------------------
+
+
+@dataclass
+class PeriodicDiagram(Diagram):
+    """Diagram of the alpha filtration on a flat torus: ``pairs[0..d]``,
+    essential classes as ``(birth, inf)`` rows (see the module docstring)."""
+
+    @property
+    def homology_dims(self) -> range:
+        return range(self.dim + 1)
+
+
+def torus_frame(points, box: PeriodicBox):
+    """Exact periodic coordinates: (u, L, g).
+
+    ``u`` are the coordinates relative to the box centre, rounded to multiples
+    of g_i = ulp(L_i) and wrapped into [-L_i/2, L_i/2); every image
+    u + k L_i with |u + k L_i| < L_i is exactly representable.
+    """
+    P = np.asarray(points, dtype=float)
+    L = box.sides
+    centre = box.lo + 0.5 * L
+    g = np.ldexp(1.0, np.frexp(L)[1] - 53)          # ulp(L): L in [2^(e-1), 2^e)
+    u = np.round((P - centre) / g) * g                # exact: g is a power of two
+    half = 0.5 * L
+    u = np.where(u >= half, u - L, u)
+    u = np.where(u < -half, u + L, u)
+    if not (np.all(u >= -half) and np.all(u < half)):
+        raise PointsError("points lie outside the periodic box")
+    return np.ascontiguousarray(u + 0.0), L, g
+
+
+def _images(u, L, h):
+    """Points of the periodic set in the box dilated by h: (coords, original
+    index, in-box flag).  Originals first, in input order."""
+    n, d = u.shape
+    half = 0.5 * L
+    coords, orig, inbox = [u], [np.arange(n)], [np.ones(n, bool)]
+    for shift in np.ndindex(*(3,) * d):
+        k = np.array(shift) - 1
+        if not k.any():
+            continue
+        moved = u + k * L                         # exact (see torus_frame)
+        keep = np.all((moved >= -half - h) & (moved < half + h), axis=1)
+        idx = np.flatnonzero(keep)
+        coords.append(moved[idx])
+        orig.append(idx)
+        inbox.append(np.zeros(len(idx), bool))
+    return (np.ascontiguousarray(np.concatenate(coords)), np.concatenate(orig),
+            np.concatenate(inbox))
+
+
+def _match_rows(A, B):
+    """For distinct rows, the index j with B[j] == A[i] for each row i of A."""
+    oa = np.lexsort(A.T[::-1])
+    ob = np.lexsort(B.T[::-1])
+    idx = np.empty(len(A), dtype=np.int64)
+    idx[oa] = ob
+    if not np.array_equal(B[idx], A):
+        raise RuntimeError("alpha kernel changed the point coordinates")
+    return idx
+
+
+def _filtration_fast(E):
+    """Simplices (per dimension 1..d, rows of E indices) and squared-radius values."""
+    d = E.shape[1]
+    if d == 2:
+        from .alpha2d import alpha_filtration_2d
+
+        F = alpha_filtration_2d(E)
+        m = _match_rows(F.points, E)
+        return [(m[F.edges], F.edge_values), (m[F.triangles], F.triangle_values)]
+    from .alpha3d import alpha_filtration_3d
+
+    F = alpha_filtration_3d(E)
+    m = _match_rows(F.points, E)
+    return [(m[F.edges], F.edge_values), (m[F.triangles], F.triangle_values),
+            (m[F.tets], F.tet_values)]
+
+
+def _filtration_gudhi(E):
+    """As :func:`_filtration_fast`, from gudhi's exact ``AlphaComplex``."""
+    import gudhi
+
+    d = E.shape[1]
+    ac = gudhi.AlphaComplex(points=E, precision="exact")
+    st = ac.create_simplex_tree()
+    simp = [[] for _ in range(d + 1)]
+    vals = [[] for _ in range(d + 1)]
+    for s, f in st.get_simplices():
+        q = len(s) - 1
+        if q:
+            simp[q].append(s)
+            vals[q].append(f)
+    return [(np.asarray(simp[q], dtype=np.int64).reshape(-1, q + 1),
+             np.asarray(vals[q], dtype=float)) for q in range(1, d + 1)]
+
+
+class _Retry(Exception):
+    """The halo or the triangulation was not good enough; try again."""
+
+    def __init__(self, grow_to=None):
+        super().__init__()
+        self.grow_to = grow_to
+
+
+def _quotient(filtration, orig, inbox, n, d, h):
+    """Canonical orbit representatives in original indices, with the checks
+    (a)-(c) of the module docstring.  Returns [(simplices, values)] per q >= 1."""
+    top_s, top_v = filtration[-1]
+    touch = inbox[top_s].any(axis=1)
+    r_max = math.sqrt(float(top_v[touch].max())) if touch.any() else math.inf
+    if not 2.0 * r_max < h:                                          # check (a)
+        raise _Retry(grow_to=2.1 * r_max)
+    out = []
+    for S, v in filtration:
+        o = orig[S]
+        first = np.argmin(o, axis=1)
+        keep = inbox[S[np.arange(len(S)), first]]
+        o = np.sort(o[keep], axis=1)
+        v = v[keep]
+        if np.any(o[:, 1:] == o[:, :-1]):                             # check (b)
+            raise _Retry(grow_to=math.inf)
+        order = np.lexsort(o.T[::-1])
+        o, v = o[order], v[order]
+        if np.any(np.all(o[1:] == o[:-1], axis=1)):
+            raise _Retry(grow_to=math.inf)
+        out.append((o, v))
+    counts = [n] + [len(o) for o, _ in out]
+    chi = sum((-1) ** q * c for q, c in enumerate(counts))
+    # check (c): every facet of a top simplex (as an orbit) in exactly two of them
+    top = out[-1][0]
+    facets = np.concatenate([np.delete(top, j, axis=1) for j in range(d + 1)])
+    _, mult = np.unique(facets, axis=0, return_counts=True)
+    if chi != 0 or len(mult) != counts[d - 1] or np.any(mult != 2):
+        raise _Retry()
+    return out, counts
+
+
+def periodic_diagram(points, box: PeriodicBox, engine: str = "fast") -> PeriodicDiagram:
+    """Exact persistence diagram of the alpha filtration of points on a torus.
+
+    Parameters
+    ----------
+    points : ndarray, shape (n, d), d in {2, 3}
+        Points in the closed box (a point on the upper face is its image on
+        the lower face).
+    box : PeriodicBox
+    engine : {"fast", "gudhi"}
+        Filtration of the extended point set by our exact kernels or by
+        gudhi's exact ``AlphaComplex``; both give the same exactly rounded
+        values.  Co-circular inputs that the fast triangulator splits
+        differently in different copies are redone with gudhi.
+
+    Returns
+    -------
+    PeriodicDiagram
+        ``pairs[q]`` for q = 0..d in normalised radius rho = r (n/|W|)^(1/d),
+        zero-length pairs dropped, essential classes as ``(birth, inf)``
+        (b = 1, 2, 1 in 2D; 1, 3, 3, 1 in 3D).  ``meta`` holds the engine,
+        the halo width, the simplex counts and the Euler characteristic of
+        the full complex (0).
+
+    Raises
+    ------
+    PointsError
+        Points coincide on the torus, or the pattern is too sparse for the
+        quotient of its periodic Delaunay complex to be a simplicial complex.
+    """
+    import gudhi
+
+    if engine not in ("fast", "gudhi"):
+        raise ValueError("engine must be 'fast' or 'gudhi'")
+    P = np.asarray(points, dtype=float)
+    n, d = P.shape
+    if d != box.dim:
+        raise PointsError(f"points are {d}D but the torus is {box.dim}D")
+    u, L, _ = torus_frame(P, box)
+    if len(np.unique(u, axis=0)) != n:
+        raise PointsError("two points coincide on the torus (a point on the upper face "
+                          "is the same as its image on the lower face)")
+    spacing = (box.measure / n) ** (1.0 / d)
+    # Largest empty ball of a CSR pattern: lambda |B_R| ~ log n + (d - 1) log log n
+    # (Hall, *Introduction to the Theory of Coverage Processes*, 1988, ch. 3);
+    # the halo must exceed its diameter.
+    ln = math.log(max(n, 3))
+    r_est = ((ln + (d - 1) * math.log(ln)) / (math.pi if d == 2 else 4 * math.pi / 3)) ** (1 / d)
+    h_cap = 0.5 * float(L.min())
+    h = min(h_cap, 2.2 * r_est * spacing)
+    engines = [engine] if engine == "gudhi" else ["fast", "gudhi"]
+    result = None
+    for eng in engines:
+        while True:
+            E, orig, inbox = _images(u, L, h)
+            try:
+                filt = (_filtration_fast if eng == "fast" else _filtration_gudhi)(E)
+                result = _quotient(filt, orig, inbox, n, d, h)
+                break
+            except _Retry as r:
+                if r.grow_to is not None and h < r.grow_to:
+                    if r.grow_to <= h_cap:
+                        h = r.grow_to
+                        continue
+                    if h < h_cap:
+                        h = h_cap
+                        continue
+                if r.grow_to is None:      # inconsistent split of co-circular cells
+                    break
+                raise PointsError(
+                    f"too few points for a periodic window: {n} points leave an empty "
+                    f"ball of radius about a quarter of the box side, so the periodic "
+                    f"Delaunay complex does not fold into a simplicial complex on the "
+                    f"torus; use more points or a non-periodic box") from None
+            except ValueError:            # degenerate extended set (e.g. all collinear)
+                if h < h_cap:
+                    h = h_cap
+                    continue
+                raise PointsError(f"too few points for a periodic window: {n} points "
+                                  "cannot be triangulated on the torus") from None
+        if result is not None:
+            break
+        engine = "gudhi"
+    if result is None:
+        raise PointsError("the periodic Delaunay complex of these points could not be "
+                          "folded consistently onto the torus")
+    simplices, counts = result
+    st = gudhi.SimplexTree()
+    st.insert_batch(np.arange(n, dtype=np.int64)[None, :], np.zeros(n))
+    for S, v in simplices:
+        st.insert_batch(np.ascontiguousarray(S.T), v)
+    st.compute_persistence(homology_coeff_field=2, persistence_dim_max=True)
+    scale = intensity_scale(n, box.measure, d)
+    pairs = []
+    for q in range(d + 1):
+        iv = np.asarray(st.persistence_intervals_in_dimension(q), dtype=float).reshape(-1, 2)
+        iv = iv[~(iv[:, 1] <= iv[:, 0])]                # zero length (exact values)
+        iv = np.sqrt(iv) * scale
+        pairs.append(iv[np.lexsort((iv[:, 1], iv[:, 0]))])
+    essential = [int(np.count_nonzero(np.isinf(p[:, 1]))) for p in pairs]
+    meta = {"engine": engine, "periodic": True, "halo": float(h),
+            "simplex_counts": counts, "euler_characteristic": 0,
+            "essential_betti": essential}
+    return PeriodicDiagram(pairs=pairs, n=n, dim=d, scale=scale, meta=meta)
