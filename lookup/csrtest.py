@@ -13,7 +13,7 @@ from .results import CSRTestResult
 from .diagram import ENGINES
 from .statistics import PatternSummary, evaluate, resolve_stats
 from .validate import validate_pattern
-from .windows import Window, parse_window
+from .windows import Window, as_window
 
 __all__ = ["csr_test", "METHODS", "ALTERNATIVES"]
 
@@ -46,8 +46,9 @@ def csr_test(points, window, stats=None, *, method="auto", n_sims=999, seed=None
     ----------
     points : ndarray of shape (n, d) or path
         Coordinates, or a file readable by :func:`read_points`.
-    window : Window or str
-        The observation window or its specification (see :func:`parse_window`).
+    window : Window, shapely Polygon/MultiPolygon, or str
+        The observation window, a polygon, or a specification (see
+        :func:`~nullatlas.lookup.windows.parse_window`).
     stats : list of str, optional
         Statistic names; the first is the primary test.  Default: the Euler
         characteristic curve, then total H0/H1(/H2) persistence, max H1
@@ -116,7 +117,7 @@ def csr_test(points, window, stats=None, *, method="auto", n_sims=999, seed=None
     if not isinstance(window, Window):
         with warnings.catch_warnings(record=True) as w:
             warnings.simplefilter("always")
-            window = parse_window(window, pts)
+            window = as_window(window, pts)
         caught = [str(x.message) for x in w]
     if seed is None:
         seed = int(np.random.SeedSequence().entropy % (2 ** 63))

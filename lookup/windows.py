@@ -29,11 +29,16 @@ __all__ = [
     "Ball",
     "Box",
     "ConvexPolytope",
+    "Cylinder",
     "Disk",
     "EstimatedWindowWarning",
+    "MaskWindow",
     "PolygonWindow",
     "Rectangle",
+    "VoxelWindow",
     "Window",
+    "as_window",
+    "mask_window",
     "parse_window",
 ]
 
@@ -424,6 +429,98 @@ class Ball(Window):
         return np.where(r < self.r, self.measure, 0.0)
 
 
+class Cylinder(Window):
+    """Solid circular cylinder with its axis along z.
+
+    The cylinder is ``{(x, y, z) : (x - cx)^2 + (y - cy)^2 <= r^2,
+    z0 <= z <= z1}``.
+
+    Parameters
+    ----------
+    cx, cy : float
+        Centre of the circular cross-section.
+    z0, z1 : float
+        Bottom and top, ``z0 < z1``.
+    r : float
+        Radius, > 0.
+    """
+
+    dim = 3
+    kind = "cylinder"
+
+    def __init__(self, cx, cy, z0, z1, r):
+        cx, cy, z0, z1, r = _finite([cx, cy, z0, z1, r], "cylinder")
+        if r <= 0:
+            raise WindowError(f"cylinder radius must be positive, got {r}")
+        if not z1 > z0:
+            raise WindowError(f"cylinder:{cx},{cy},{z0},{z1},{r} has zero or negative "
+                              "height (need z0 < z1)")
+        self.centre = np.array([cx, cy])
+        self.z0, self.z1, self.r = z0, z1, r
+        self.height = z1 - z0
+
+    @property
+    def measure(self):
+        # pi r^2 h
+        return math.pi * np.float64(self.r) ** 2 * self.height
+
+    @property
+    def boundary_measure(self):
+        # mantle 2 pi r h plus the two end disks 2 pi r^2
+        return 2 * math.pi * np.float64(self.r) * self.height + 2 * math.pi * np.float64(self.r) ** 2
+
+    def _radial(self, p):
+        return np.linalg.norm(p[:, :2] - self.centre, axis=1)
+
+    def contains(self, points):
+        p = np.asarray(points, float)
+        tol_r = self.r * 1e-12 + 4 * np.spacing(np.abs(self.centre).max())
+        tol_z = 4 * np.spacing(max(abs(self.z0), abs(self.z1)))
+        return ((self._radial(p) <= self.r + tol_r)
+                & (p[:, 2] >= self.z0 - tol_z) & (p[:, 2] <= self.z1 + tol_z))
+
+    def boundary_distance(self, points):
+        # Inside, the nearest boundary point is on the mantle (distance
+        # r - rho) or on an end disk (distance to the nearer end plane).
+        p = np.asarray(points, float)
+        return np.minimum(self.r - self._radial(p),
+                          np.minimum(p[:, 2] - self.z0, self.z1 - p[:, 2]))
+
+    def sample(self, n, rng):
+        # Uniform in the disk (radius r sqrt(U)) times uniform height.
+        u = rng.random((n, 3))
+        rad = self.r * np.sqrt(u[:, 0])
+        ang = 2 * math.pi * u[:, 1]
+        return np.column_stack([self.centre[0] + rad * np.cos(ang),
+                                self.centre[1] + rad * np.sin(ang),
+                                self.z0 + self.height * u[:, 2]])
+
+    def spec(self):
+        return "cylinder:" + ",".join(
+            f"{v:.17g}" for v in (*self.centre, self.z0, self.z1, self.r))
+
+    def _inner(self, t):
+        # W_t is the coaxial cylinder of radius r - t and height h - 2 t.
+        return (math.pi * np.maximum(self.r - t, 0.0) ** 2
+                * np.maximum(self.height - 2.0 * t, 0.0))
+
+    def _opened(self, s):
+        # Erode to the cylinder of radius a = r - s and height b = h - 2 s
+        # (empty unless both > 0), then dilate by s:
+        #   body          pi a^2 b
+        #   end caps      2 pi a^2 s
+        #   mantle shell  pi b ((a + s)^2 - a^2) = pi b (2 a s + s^2)
+        #   rim edges     2 x quarter disk of area pi s^2 / 4 swept around the
+        #                 rim, Pappus with centroid radius a + 4 s / (3 pi):
+        #                 pi^2 a s^2 + 4/3 pi s^3.
+        a = self.r - s
+        b = self.height - 2.0 * s
+        v = (math.pi * a ** 2 * (b + 2 * s) + math.pi * b * (2 * a * s + s ** 2)
+             + math.pi ** 2 * a * s ** 2 + 4.0 / 3.0 * math.pi * s ** 3)
+        v = np.where(s == 0, self.measure, v)
+        return np.where((a > 0) & (b > 0), v, 0.0)
+
+
 class PolygonWindow(Window):
     """Polygon (possibly with holes, possibly several parts) in the plane.
 
@@ -441,6 +538,11 @@ class PolygonWindow(Window):
     def __init__(self, geometry, source: str | None = None):
         import shapely
 
+        if not isinstance(geometry, shapely.Geometry):
+            raise WindowError(
+                f"{source or 'window'}: a polygon window needs a shapely Polygon or "
+                f"MultiPolygon, got a {type(geometry).__name__} (for a list of vertices "
+                "use shapely.Polygon(vertices))")
         if geometry.geom_type not in ("Polygon", "MultiPolygon"):
             raise WindowError(
                 f"{source or 'window'}: geometry is a {geometry.geom_type}, "
@@ -677,10 +779,527 @@ class ConvexPolytope(Window):
 
 
 # --------------------------------------------------------------------------
+# Raster masks
+# --------------------------------------------------------------------------
+
+def _mask_array(mask, dim: int, what: str) -> np.ndarray:
+    """A validated boolean array of ``dim`` dimensions (nonzero = inside)."""
+    try:
+        arr = np.asarray(mask)
+    except (TypeError, ValueError) as exc:
+        raise WindowError(f"{what}: not an array ({exc.__class__.__name__})") from None
+    if arr.dtype.kind not in "biuf":
+        raise WindowError(f"{what}: a mask must hold booleans or numbers, got dtype {arr.dtype}")
+    if arr.ndim != dim:
+        raise WindowError(f"{what}: a {dim}D mask is needed, got an array of shape {arr.shape}")
+    if arr.size == 0:
+        raise WindowError(f"{what}: the mask is empty (shape {arr.shape})")
+    if arr.dtype.kind == "f" and not np.all(np.isfinite(arr)):
+        raise WindowError(f"{what}: the mask holds NaN or infinite values")
+    m = arr != 0
+    if not m.any():
+        raise WindowError(f"{what}: the mask has no inside {'pixel' if dim == 2 else 'voxel'} "
+                          "(all values are zero)")
+    return m
+
+
+def _grid_placement(cell, origin, dim: int, what: str):
+    unit = "pixel" if dim == 2 else "voxel"
+    try:
+        c = float(cell)
+    except (TypeError, ValueError):
+        raise WindowError(f"{what}: the {unit} size must be a number, got {cell!r}") from None
+    if not (math.isfinite(c) and c > 0):
+        raise WindowError(f"{what}: the {unit} size must be a positive finite number, got {cell!r}")
+    try:
+        o = list(origin)
+    except TypeError:
+        raise WindowError(f"{what}: the origin must be {dim} numbers, got {origin!r}") from None
+    if len(o) != dim:
+        raise WindowError(f"{what}: the origin must be {dim} numbers, got {len(o)}")
+    return c, np.array(_finite(o, what))
+
+
+def _mask_polygon(m: np.ndarray, pixel: float, origin: np.ndarray):
+    """The union of the inside pixels of a 2D boolean image, exactly.
+
+    Row 0 of the image is its top: pixel (row i, column j) of an image with
+    H rows is the square ``[x0 + j p, x0 + (j + 1) p] x
+    [y0 + (H - 1 - i) p, y0 + (H - i) p]``.  Runs of inside pixels along each
+    row become rectangles; their union is taken in integer pixel coordinates
+    (exact in floating point), vertices on straight runs of the outline are
+    dropped, and the result is scaled by the pixel size and moved to the
+    origin.
+    """
+    import shapely
+    from shapely import affinity
+
+    h = m.shape[0]
+    edges = np.diff(np.pad(m.astype(np.int8), ((0, 0), (1, 1))), axis=1)
+    rows, starts = np.nonzero(edges == 1)
+    _, ends = np.nonzero(edges == -1)        # same row-major order as the starts
+    boxes = shapely.box(starts, h - 1 - rows, ends, h - rows)
+    geom = shapely.union_all(boxes)
+    # Douglas-Peucker with tolerance 0 removes only exactly collinear vertices.
+    geom = shapely.simplify(geom, 0.0, preserve_topology=True)
+    if not shapely.is_valid(geom):       # pragma: no cover - defensive
+        geom = shapely.make_valid(geom)
+    geom = affinity.affine_transform(geom, [pixel, 0.0, 0.0, pixel, *origin])
+    return shapely.normalize(geom)
+
+
+class MaskWindow(PolygonWindow):
+    """A 2D window given as a raster mask: the union of its inside pixels.
+
+    The window is exactly the union of the closed squares of the nonzero
+    pixels, held as a shapely (multi)polygon, so containment, sampling,
+    boundary distances and parallel sets are those of
+    :class:`PolygonWindow`.  Pixels touching only at a corner are separate
+    parts touching at a point.
+
+    Parameters
+    ----------
+    mask : array_like, 2D
+        Boolean or numeric image; nonzero = inside.  Row 0 is the *top* row
+        of the image (the usual image convention): it covers the highest y.
+    pixel : float
+        Side of a pixel in data units.
+    origin : (float, float)
+        Data coordinates (x0, y0) of the lower-left corner of the image's
+        lower-left pixel (the first column of the last row).
+    source : str, optional
+        The specification the mask came from (for ``spec``).
+
+    Raises
+    ------
+    WindowError
+        If the mask is not 2D, empty, all zero, holds NaN, or the pixel size
+        or origin are not finite (pixel > 0).
+    """
+
+    kind = "mask"
+
+    def __init__(self, mask, pixel, origin=(0.0, 0.0), source: str | None = None):
+        what = source or "mask window"
+        m = _mask_array(mask, 2, what)
+        self.pixel, self.origin = _grid_placement(pixel, origin, 2, what)
+        self.shape = m.shape
+        self.pixels = int(np.count_nonzero(m))
+        super().__init__(_mask_polygon(m, self.pixel, self.origin), source=source)
+
+    @classmethod
+    def from_array(cls, mask, pixel, origin=(0.0, 0.0)) -> MaskWindow:
+        """The window of a 2D boolean image (see the class description)."""
+        return cls(mask, pixel, origin)
+
+
+class VoxelWindow(Window):
+    """A 3D window given as a boolean volume: the union of its inside voxels.
+
+    Voxel ``mask[i, j, k]`` is the closed cube ``[x0 + i v, x0 + (i + 1) v]
+    x [y0 + j v, y0 + (j + 1) v] x [z0 + k v, z0 + (k + 1) v]``: array axes
+    0, 1, 2 are x, y, z (a stack stored as (z, y, x) must be transposed
+    first).
+
+    * ``measure`` = number of inside voxels times v^3.
+    * ``boundary_measure`` = number of exposed voxel faces (an inside voxel
+      next to an outside one or the edge of the array) times v^2.  This is
+      exactly the surface of the union of cubes; as an estimate of the
+      smooth surface the mask samples it is too large (a staircase: by a
+      factor of about 1.5 on average for randomly oriented planes, up to
+      sqrt(3) for a plane cutting the three axes equally).
+    * ``boundary_distance`` is exact for the union of cubes: the distance to
+      the nearest cube of the other side (outside voxels for inside points)
+      that shares a face with this side, from a k-d tree of those cubes.
+    * ``inner_content(t)`` counts the voxels whose distances all lie above t
+      (bounded with the Euclidean distance transform of the voxel centres
+      and the exact centre distance); in a voxel that the level set crosses,
+      the outside cubes across a face leave a box, whose volume is exact, and
+      only voxels near reflex edges and corners of the union are integrated
+      numerically (a seeded stratified rule, unbiased; in the tests within
+      the binomial error of 200,000 uniform points).
+    * ``opened_content(r)`` is digital: voxels whose centre is within r of
+      the centre of a voxel whose centre is farther than r from the boundary
+      (distance transforms); the width at which a part is lost is right to
+      about one voxel.
+
+    Parameters
+    ----------
+    mask : array_like, 3D
+        Boolean or numeric volume; nonzero = inside.
+    voxel : float
+        Side of a voxel in data units.
+    origin : (float, float, float)
+        Data coordinates of the lower corner of voxel ``[0, 0, 0]``.
+    source : str, optional
+        The specification the volume came from (for ``spec``).
+    """
+
+    dim = 3
+    kind = "voxels"
+    convex = False
+
+    def __init__(self, mask, voxel, origin=(0.0, 0.0, 0.0), source: str | None = None):
+        from scipy import ndimage
+
+        what = source or "voxel window"
+        m = _mask_array(mask, 3, what)
+        self.voxel, self.origin = _grid_placement(voxel, origin, 3, what)
+        self.mask = m
+        self.source = source
+        self._padded = np.pad(m, 1)
+        self._inside = np.flatnonzero(m)
+        p = self._padded
+        self.faces = int(sum(np.count_nonzero(np.diff(p, axis=a)) for a in range(3)))
+        # cavities: face-connected components of the outside, less the exterior
+        self.holes = int(ndimage.label(~p)[1] - 1)
+        self._shells = {}
+        self._edt = None
+        self._cache = {}
+
+    @property
+    def measure(self):
+        return float(len(self._inside)) * self.voxel ** 3
+
+    @property
+    def boundary_measure(self):
+        return float(self.faces) * self.voxel ** 2
+
+    def _units(self, points):
+        """Coordinates in voxel units of the padded array (cube q = [q, q+1])."""
+        return (np.asarray(points, float) - self.origin) / self.voxel + 1.0
+
+    def contains(self, points):
+        u = self._units(points)
+        shape = np.array(self._padded.shape)
+        eps = 1e-9 * max(1.0, float(np.abs(u).max(initial=0.0)))
+        out = np.zeros(len(u), dtype=bool)
+        lo = np.floor(u - eps).astype(np.int64)
+        hi = np.floor(u + eps).astype(np.int64)
+        # a point on a face, edge or corner is inside if any cube it touches is
+        for pick in range(8):
+            idx = np.where([(pick >> a) & 1 for a in range(3)], hi, lo)
+            ok = np.all((idx >= 0) & (idx < shape), axis=1)
+            hit = np.zeros(len(u), dtype=bool)
+            hit[ok] = self._padded[tuple(idx[ok].T)]
+            out |= hit
+        return out
+
+    def _shell(self, outer: bool):
+        """Centres of the cubes on one side that share a face with the other side."""
+        if outer not in self._shells:
+            from scipy import ndimage
+            from scipy.spatial import cKDTree
+
+            p = self._padded
+            six = ndimage.generate_binary_structure(3, 1)
+            if outer:
+                cells = np.argwhere(ndimage.binary_dilation(p, six) & ~p)
+            else:
+                cells = np.argwhere(p & ~ndimage.binary_erosion(p, six, border_value=0))
+            centres = cells + 0.5
+            self._shells[outer] = (centres, cKDTree(centres))
+        return self._shells[outer]
+
+    def _nearest(self, u, outer: bool, chunk: int = 65536):
+        """Distance (voxel units) from points ``u`` to the nearest shell cube.
+
+        A cube at
+        distance d has its centre within d + sqrt(3)/2, so every cube nearer
+        than the cube of the nearest centre is found by one ball query.
+        """
+        centres, tree = self._shell(outer)
+        dist = np.empty(len(u))
+        half_diag = math.sqrt(3.0) / 2.0
+        for s in range(0, len(u), chunk):
+            uu = u[s:s + chunk]
+            _, i0 = tree.query(uu)
+            g0 = np.maximum(np.abs(uu - centres[i0]) - 0.5, 0.0)
+            radius = np.linalg.norm(g0, axis=1) + half_diag + 1e-9
+            lists = tree.query_ball_point(uu, radius)
+            lens = np.fromiter((len(x) for x in lists), dtype=np.int64, count=len(uu))
+            flat = np.fromiter((j for x in lists for j in x), dtype=np.int64, count=int(lens.sum()))
+            owner = np.repeat(np.arange(len(uu)), lens)
+            diff = uu[owner] - centres[flat]
+            gap = np.sign(diff) * np.maximum(np.abs(diff) - 0.5, 0.0)
+            d = np.linalg.norm(gap, axis=1)
+            order = np.lexsort((d, owner))
+            first = order[np.searchsorted(owner[order], np.arange(len(uu)))]
+            dist[s:s + chunk] = d[first]
+        return dist
+
+    def boundary_distance(self, points):
+        # Exact distance to the boundary of the union of cubes: inside points
+        # measure to the outside cubes, outside points to the inside cubes.
+        u = self._units(points)
+        inside = self.contains(points)
+        d = np.empty(len(u))
+        for side in (True, False):
+            sel = inside == side
+            if sel.any():
+                d[sel] = self._nearest(u[sel], outer=side)
+        return d * self.voxel
+
+    def sample(self, n, rng):
+        # A voxel uniformly among the inside ones, then uniform in the voxel.
+        pick = self._inside[rng.integers(len(self._inside), size=n)]
+        ijk = np.column_stack(np.unravel_index(pick, self.mask.shape))
+        return self.origin + (ijk + rng.random((n, 3))) * self.voxel
+
+    def spec(self):
+        if self.source:
+            return self.source
+        return "voxels:<array>"
+
+    def _centre_edt(self):
+        """Distance transform of the inside voxel centres (voxel units)."""
+        if self._edt is None:
+            from scipy import ndimage
+
+            self._edt = ndimage.distance_transform_edt(self._padded)[1:-1, 1:-1, 1:-1]
+        return self._edt
+
+    def _inner_one(self, tau: float) -> float:
+        """Number of voxels' worth of content farther than ``tau`` (voxel units)
+        from the boundary of the union of cubes."""
+        e = self._centre_edt().ravel()[self._inside]
+        # The exact centre distance c lies in [e - sqrt(3)/2, e - 1/2]; over
+        # the voxel the distance stays within c -+ sqrt(3)/2 (1-Lipschitz).
+        s3 = math.sqrt(3.0)
+        full = e - s3 > tau
+        maybe = ~full & (e - 0.5 + s3 / 2 > tau)
+        count = float(np.count_nonzero(full))
+        if not maybe.any():
+            return count
+        corner = np.column_stack(np.unravel_index(self._inside[maybe], self.mask.shape)) + 1.0
+        c = self._nearest(corner + 0.5, outer=True)
+        count += float(np.count_nonzero(c - s3 / 2 > tau))
+        cross = corner[np.abs(c - tau) < s3 / 2] + 0.5
+        if len(cross):
+            count += self._crossing_share(cross, tau)
+        return count
+
+    def _crossing_share(self, centres: np.ndarray, tau: float, m: int = 8) -> float:
+        """Summed share of each voxel (by centre) farther than ``tau`` from the outside.
+
+        In local coordinates x in [0, 1]^3 of a voxel, an outside cube at
+        integer offset o (centre to centre) is at distance
+        ``|max(|x - 1/2 - o| - 1/2, 0)|``.  A cube offset along one axis only
+        (a face cube) keeps a half-space ``x_a < o_a - tau`` (o_a > 0) or
+        ``x_a > o_a + 1 + tau`` (o_a < 0); together these leave a box, whose
+        volume is exact.  Cubes offset along two or three axes exclude a
+        rounded region (a quarter cylinder around a reflex edge or a ball
+        around a reflex corner); they are dropped when a face cube on one of
+        their axes already excludes it, and otherwise the voxel is integrated
+        with one point in each of its m^3 sub-cubes (a lattice shifted by a
+        seeded random offset per voxel: unbiased, with errors that average
+        out over voxels instead of adding up).
+        """
+        shell, tree = self._shell(True)
+        out = 0.0
+        for s in range(0, len(centres), 16384):
+            cv = centres[s:s + 16384]
+            k = len(cv)
+            lists = tree.query_ball_point(cv, tau + math.sqrt(3.0) + 1e-9)
+            lens = np.fromiter((len(x) for x in lists), dtype=np.int64, count=k)
+            flat = np.fromiter((j for x in lists for j in x), dtype=np.int64,
+                               count=int(lens.sum()))
+            owner = np.repeat(np.arange(k), lens)
+            o = np.rint(shell[flat] - cv[owner])
+            act = np.abs(o) > 0.5
+            nact = act.sum(axis=1)
+            lo, hi = np.zeros((k, 3)), np.ones((k, 3))
+            face = nact == 1
+            ax = np.argmax(act[face], axis=1)
+            of = o[face, ax]
+            pos = of > 0
+            np.minimum.at(hi, (owner[face][pos], ax[pos]), of[pos] - tau)
+            np.maximum.at(lo, (owner[face][~pos], ax[~pos]), of[~pos] + 1 + tau)
+            # rounded regions that reach into the voxel and are not excluded yet
+            curved = (nact >= 2) & (np.linalg.norm(np.maximum(np.abs(o) - 1, 0), axis=1) < tau)
+            idx = np.flatnonzero(curved)
+            oc, ow = o[idx], owner[idx]
+            covered = (((oc > 0.5) & (hi[ow] <= oc - tau))
+                       | ((oc < -0.5) & (lo[ow] >= oc + 1 + tau))).any(axis=1)
+            idx, oc, ow = idx[~covered], oc[~covered], ow[~covered]
+            box = np.prod(np.clip(hi - lo, 0.0, 1.0), axis=1)
+            rough = np.zeros(k, dtype=bool)
+            rough[ow] = True
+            out += float(box[~rough & (box > 0)].sum())
+            if not len(idx):
+                continue
+            g = np.arange(m) / m
+            grid = np.stack(np.meshgrid(g, g, g, indexing="ij"), -1).reshape(-1, 3)
+            rows = np.flatnonzero(rough)
+            # one point per sub-cube, the lattice shifted by a random offset
+            # per voxel (fixed seed): unbiased, and the errors of different
+            # voxels do not add up the way a fixed midpoint lattice's do
+            shift = np.random.default_rng(len(rows)).random((len(rows), 1, 3)) / m
+            keep = np.all((grid[None] + shift > lo[rows, None])
+                          & (grid[None] + shift < hi[rows, None]), axis=2)
+            slot = np.full(k, -1)
+            slot[rows] = np.arange(len(rows))
+            for p in range(0, len(idx), 4096):
+                sl = slot[ow[p:p + 4096]]
+                pts = grid[None] + shift[sl]
+                gap = np.maximum(np.abs(pts - 0.5 - oc[p:p + 4096, None]) - 0.5, 0.0)
+                near = np.einsum("ijk,ijk->ij", gap, gap) <= tau * tau
+                np.logical_and.at(keep, sl, ~near)
+            out += float(keep.sum()) / m ** 3
+        return out
+
+    def _inner(self, t):
+        out = np.empty(len(t))
+        cache = self._cache.setdefault("inner", {})
+        for i, ti in enumerate(t.tolist()):
+            if ti not in cache:
+                cache[ti] = self.measure if ti == 0 else \
+                    self._inner_one(ti / self.voxel) * self.voxel ** 3
+            out[i] = cache[ti]
+        return out
+
+    def _opened(self, r):
+        from scipy import ndimage
+
+        depth = self._centre_edt() - 0.5          # centre-to-boundary, voxel units
+        out = np.empty(len(r))
+        for i, ri in enumerate(r.tolist()):
+            tau = ri / self.voxel
+            core = self.mask & (depth > tau)
+            if not core.any():
+                out[i] = 0.0
+                continue
+            reach = ndimage.distance_transform_edt(~core)
+            out[i] = float(np.count_nonzero(self.mask & (reach <= tau))) * self.voxel ** 3
+        return out
+
+
+def mask_window(mask, pixel, origin=None) -> Window:
+    """The window of a boolean image or volume.
+
+    Parameters
+    ----------
+    mask : array_like
+        2D image (gives a :class:`MaskWindow`; row 0 is the top) or 3D volume
+        (gives a :class:`VoxelWindow`; axes x, y, z); nonzero = inside.
+    pixel : float
+        Pixel or voxel side in data units.
+    origin : sequence of float, optional
+        Lower-left (lower) corner of the grid in data coordinates; zeros by
+        default.
+
+    Returns
+    -------
+    MaskWindow or VoxelWindow
+    """
+    try:
+        ndim = np.ndim(mask)
+    except (TypeError, ValueError):
+        ndim = -1
+    if ndim == 3:
+        return VoxelWindow(mask, pixel, (0.0, 0.0, 0.0) if origin is None else origin)
+    return MaskWindow(mask, pixel, (0.0, 0.0) if origin is None else origin)
+
+
+def as_window(obj, points: np.ndarray | None = None) -> Window:
+    """Turn what a Python caller passes as a window into a :class:`Window`.
+
+    Parameters
+    ----------
+    obj : Window, shapely Polygon/MultiPolygon, or str
+        A window is returned as it is, a shapely polygonal geometry becomes a
+        :class:`PolygonWindow`, a string is parsed by :func:`parse_window`.
+    points : ndarray, optional
+        The points, for the estimated windows ``bbox`` and ``hull``.
+
+    Raises
+    ------
+    WindowError
+        For anything else, or a malformed window.
+    """
+    if isinstance(obj, Window):
+        return obj
+    if isinstance(obj, str):
+        return parse_window(obj, points)
+    import shapely
+
+    if isinstance(obj, shapely.Geometry):
+        return PolygonWindow(obj)
+    raise WindowError(f"cannot use a {type(obj).__name__!r} object as a window: give a Window, "
+                      "a shapely Polygon/MultiPolygon or a specification string")
+
+
+def _read_image(path: str, dim: int) -> np.ndarray:
+    """Read a mask image: ``.npy`` (any dimension), ``.png``/``.tif``/``.tiff`` (2D)."""
+    ext = os.path.splitext(path)[1].lower()
+    if ext == ".npy":
+        try:
+            return np.load(path, allow_pickle=False)
+        except (OSError, ValueError, EOFError) as exc:
+            msg = str(exc).splitlines()[0] if str(exc) else exc.__class__.__name__
+            raise WindowError(f"cannot read mask file {path!r}: {msg}") from None
+    if dim == 3:
+        raise WindowError(f"voxel mask {path!r}: expected a .npy file holding a 3D array")
+    if ext not in (".png", ".tif", ".tiff"):
+        raise WindowError(f"mask file {path!r}: expected .npy, .png, .tif or .tiff")
+    try:
+        from PIL import Image, UnidentifiedImageError
+    except ImportError:  # pragma: no cover - Pillow ships with matplotlib
+        raise WindowError(f"mask file {path!r}: reading images needs Pillow "
+                          "(pip install pillow), or save the mask as .npy") from None
+    try:
+        with Image.open(path) as img:
+            if getattr(img, "n_frames", 1) > 1:
+                raise WindowError(f"mask file {path!r} has {img.n_frames} frames; "
+                                  "a 2D mask needs one")
+            if img.mode not in ("1", "L", "I", "F", "I;16", "I;16B", "I;16L"):
+                img = img.convert("L")     # colour/palette images: grey levels
+            return np.array(img)
+    except WindowError:
+        raise
+    except (OSError, UnidentifiedImageError, ValueError, SyntaxError,
+            Image.DecompressionBombError) as exc:
+        msg = str(exc).splitlines()[0] if str(exc) else exc.__class__.__name__
+        raise WindowError(f"cannot read mask file {path!r}: {msg}") from None
+
+
+def _file_and_numbers(spec: str, rest: str, counts: tuple[int, ...], syntax: str):
+    """Split ``FILE,a,b,...`` from the right: the file name may hold commas."""
+    parts = rest.split(",")
+    for k in counts:
+        if len(parts) > k and parts[0].strip():
+            try:
+                vals = [float(s) for s in parts[-k:]]
+            except ValueError:
+                continue
+            path = ",".join(parts[:-k]).strip()
+            head = path.split(",")[0]
+            if not os.path.exists(path) and head != path and os.path.exists(head):
+                break              # FILE followed by a wrong count of numbers
+            return path, vals
+    raise WindowError(f"window '{spec}': expected {syntax}")
+
+
+def _parse_mask(spec: str, key: str, rest: str) -> Window:
+    if key == "mask":
+        syntax = "mask:FILE,PIXEL[,X0,Y0]"
+        path, vals = _file_and_numbers(spec, rest, (3, 1), syntax)
+        image = _read_image(path, 2)
+        origin = vals[1:] if len(vals) == 3 else (0.0, 0.0)
+        return MaskWindow(image, vals[0], origin, source=spec)
+    syntax = "voxels:FILE.npy,VOXEL[,X0,Y0,Z0]"
+    path, vals = _file_and_numbers(spec, rest, (4, 1), syntax)
+    volume = _read_image(path, 3)
+    origin = vals[1:] if len(vals) == 4 else (0.0, 0.0, 0.0)
+    return VoxelWindow(volume, vals[0], origin, source=spec)
+
+
+# --------------------------------------------------------------------------
 # Parsing of window specifications
 # --------------------------------------------------------------------------
 
-_NUMERIC = {"rect": (Rectangle, 4), "disk": (Disk, 3), "box": (Box, 6), "ball": (Ball, 4)}
+_NUMERIC = {"rect": (Rectangle, 4), "disk": (Disk, 3), "box": (Box, 6), "ball": (Ball, 4),
+            "cylinder": (Cylinder, 5)}
 
 from .windowspec import SPEC_HELP
 
@@ -737,10 +1356,15 @@ def parse_window(spec: str, points: np.ndarray | None = None) -> Window:
     ----------
     spec : str
         One of ``rect:xmin,ymin,xmax,ymax``, ``disk:cx,cy,r``,
-        ``box:xmin,ymin,zmin,xmax,ymax,zmax``, ``ball:cx,cy,cz,r``, a path to
+        ``box:xmin,ymin,zmin,xmax,ymax,zmax``, ``ball:cx,cy,cz,r``,
+        ``cylinder:cx,cy,z0,z1,r`` (axis along z), ``polygon:WKT``, a path to
         a ``.geojson``/``.json``/``.wkt`` file holding a (multi)polygon,
-        ``bbox`` or ``hull``.  The last two are estimated from ``points`` and
-        emit an :class:`EstimatedWindowWarning`.
+        ``mask:FILE,PIXEL[,X0,Y0]`` (a 2D ``.npy``/``.png``/``.tif`` image,
+        nonzero = inside, row 0 at the top, (X0, Y0) the lower-left corner
+        of the lower-left pixel; see :class:`MaskWindow`),
+        ``voxels:FILE.npy,VOXEL[,X0,Y0,Z0]`` (a 3D array indexed x, y, z;
+        see :class:`VoxelWindow`), ``bbox`` or ``hull``.  The last two are
+        estimated from ``points`` and emit an :class:`EstimatedWindowWarning`.
     points : ndarray, optional
         Required for ``bbox`` and ``hull``.
 
@@ -768,6 +1392,8 @@ def parse_window(spec: str, points: np.ndarray | None = None) -> Window:
         except ValueError:
             raise WindowError(f"window '{spec}': not all of {rest!r} are numbers") from None
         return cls(*vals)
+    if key in ("mask", "voxels") and rest:
+        return _parse_mask(spec, key, rest)
     if key == "torus" and rest:                 # periodic box (lookup.periodic)
         from .periodic import parse_torus
         return parse_torus(spec, rest)
