@@ -18,14 +18,16 @@ the persistent homology of the union of balls on the torus.  We build it as
 follows.
 
 1. Coordinates relative to the box centre, rounded to multiples of
-   g_i = ulp(L_i) (a move of at most half a unit in the last place of the
-   side, the size of the rounding of p - c itself) and wrapped into
-   [-L_i/2, L_i/2).  Every image u + k L_i with |u + k L_i| < L_i is then a
-   double *exactly* (a multiple of g_i below 2^53 g_i), so images are exact
+   g_i = ulp(L_i) = 2^(e_i - 53), L_i in [2^(e_i - 1), 2^e_i) (a move of at
+   most half a unit in the last place of the side, the size of the rounding
+   of p - c itself) and wrapped into [-L_i/2, L_i/2).  Every image
+   u + k L_i with |u + k L_i| <= 2^e_i is then a double *exactly* (a
+   multiple of g_i of at most 53 significant bits), so images are exact
    translates and every copy of a simplex has bit-identically the same
-   filtration value.
-2. Images of the points in a halo of width h <= min L_i / 2 around the box
-   (offsets k in {-1, 0, 1}^d), and the exact alpha filtration of that
+   filtration value.  This bounds the halo: h <= 2^e_i - L_i/2, which is
+   between L_i/2 and 3 L_i/2 (3 L_i/2 when L_i is a power of two).
+2. Images of the points in a halo of width h around the box (offsets k in
+   {-2, ..., 2}^d), and the exact alpha filtration of that
    extended set: our kernels (``engine="fast"``: ``lookup.alpha2d`` /
    ``lookup.alpha3d``, exactly rounded values) or gudhi's
    ``AlphaComplex(precision="exact")`` (``engine="gudhi"``, the reference,
@@ -43,14 +45,15 @@ follows.
    a simplicial complex: no simplex has two vertices in one orbit and
    distinct simplices have distinct vertex sets (guaranteed when
    2 R_max < min L_i / 2: edges are then shorter than half a period, so each
-   is the unique minimum-image edge between its vertices); (c) it is a closed
+   is the unique minimum-image edge between its vertices; beyond that it is
+   checked, not assumed); (c) it is a closed
    pseudomanifold of Euler characteristic 0, the torus's: every (d-1)-simplex
    lies in exactly two d-simplices.  Co-circular (lattice) inputs whose
    copies our triangulator splits differently fail (c) and are recomputed
-   with the gudhi engine.  When no halo up to half the side suffices (the
-   largest empty ball has radius near L/4 or more), the pattern is too sparse
-   for the quotient to be a simplicial complex and :class:`PointsError` says
-   so in one line.
+   with the gudhi engine.  When no admissible halo suffices or the quotient
+   is not simplicial (the largest empty ball has a radius of about a quarter
+   of the shortest side or more), the pattern is too sparse and
+   :class:`PointsError` says so in one line.
 5. Persistence of the quotient filtered complex over Z/2 with gudhi's
    ``SimplexTree`` (all dimensions 0..d).
 
@@ -226,8 +229,8 @@ def torus_frame(points, box: PeriodicBox):
     """Exact periodic coordinates: (u, L, g).
 
     ``u`` are the coordinates relative to the box centre, rounded to multiples
-    of g_i = ulp(L_i) and wrapped into [-L_i/2, L_i/2); every image
-    u + k L_i with |u + k L_i| < L_i is exactly representable.
+    of g_i = ulp(L_i) = 2^(e_i - 53) and wrapped into [-L_i/2, L_i/2); every
+    image u + k L_i with |u + k L_i| <= 2^e_i is exactly representable.
     """
     P = np.asarray(points, dtype=float)
     L = box.sides
@@ -248,8 +251,8 @@ def _images(u, L, h):
     n, d = u.shape
     half = 0.5 * L
     coords, orig, inbox = [u], [np.arange(n)], [np.ones(n, bool)]
-    for shift in np.ndindex(*(3,) * d):
-        k = np.array(shift) - 1
+    for shift in np.ndindex(*(5,) * d):
+        k = np.array(shift) - 2
         if not k.any():
             continue
         moved = u + k * L                         # exact (see torus_frame)
@@ -397,7 +400,8 @@ def periodic_diagram(points, box: PeriodicBox, engine: str = "fast") -> Periodic
     # the halo must exceed its diameter.
     ln = math.log(max(n, 3))
     r_est = ((ln + (d - 1) * math.log(ln)) / (math.pi if d == 2 else 4 * math.pi / 3)) ** (1 / d)
-    h_cap = 0.5 * float(L.min())
+    # exact images up to |u + k L_i| <= 2^e_i (see torus_frame)
+    h_cap = float(np.min(np.ldexp(1.0, np.frexp(L)[1]) - 0.5 * L))
     h = min(h_cap, 2.2 * r_est * spacing)
     engines = [engine] if engine == "gudhi" else ["fast", "gudhi"]
     result = None
@@ -419,8 +423,9 @@ def periodic_diagram(points, box: PeriodicBox, engine: str = "fast") -> Periodic
                 if r.grow_to is None:      # inconsistent split of co-circular cells
                     break
                 raise PointsError(
-                    f"too few points for a periodic window: {n} points leave an empty "
-                    f"ball of radius about a quarter of the box side, so the periodic "
+                    f"too few points for a periodic window: {n} points leave empty balls "
+                    f"too large for the shortest period {float(L.min()):.4g} (need a "
+                    f"largest empty radius below about a quarter of it), so the periodic "
                     f"Delaunay complex does not fold into a simplicial complex on the "
                     f"torus; use more points or a non-periodic box") from None
             except ValueError:            # degenerate extended set (e.g. all collinear)
