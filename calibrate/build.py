@@ -27,7 +27,8 @@ from nullatlas.lookup.statistics import STATISTICS, resolve_stats
 from nullatlas.lookup.tablereader import load_cell, open_table
 
 from . import assemble as asm
-from .model import (MODEL_TOL_SD, cell_covariates, fit_extreme_geomodel, fit_geomodel, fit_model,
+from .model import (MODEL_TOL_SD, cell_covariates, fit_extreme_geomodel_robust, fit_geomodel_robust,
+                    fit_model,
                     holdout_errors, holdout_sd_errors, model_n_ok)
 from .moments import Moments
 from .nmin import n_min_table
@@ -203,17 +204,21 @@ GEO_N_FIT = 100
 
 def fit_geomodels(records: list, stat_names, dimension: int, n_fit: int = GEO_N_FIT) -> dict:
     """The geometric finite-window model of every statistic (``calibrate.model``):
-    additive statistics by :func:`fit_geomodel`, extremes by
-    :func:`fit_extreme_geomodel`; statistics that cannot be fitted are left out."""
+    additive statistics by :func:`fit_geomodel_robust`, extremes by
+    :func:`fit_extreme_geomodel_robust`; statistics that cannot be fitted are left out."""
+    from nullatlas.lookup.boundary import grid_depths
+
     out = {}
-    covs = {}
-    for r in records:
-        if r.get("spec") and r["spec"] != "hull":
-            try:
-                covs[r["name"]] = cell_covariates(r["spec"], r["n"])
-            except ValueError:      # a window this version cannot parse
-                continue
     for stat in stat_names:
+        st = STATISTICS[stat]
+        depth = grid_depths(st.grid, st.kind)
+        covs = {}
+        for r in records:
+            if r.get("spec") and r["spec"] != "hull" and stat in r["stats"]:
+                try:
+                    covs[r["name"]] = cell_covariates(r["spec"], r["n"], depth)
+                except ValueError:      # a window this version cannot parse
+                    continue
         rows = []
         for r in records:
             it = r["stats"].get(stat)
@@ -222,13 +227,16 @@ def fit_geomodels(records: list, stat_names, dimension: int, n_fit: int = GEO_N_
             m = it["moments"]
             if m.count <= 2:
                 continue
-            rows.append({"name": r["name"], "n": r["n"], "cov": covs[r["name"]], "mean": m.mean,
+            rows.append({"name": r["name"], "shape": r["shape"], "n": r["n"],
+                         "cov": covs[r["name"]], "mean": m.mean,
                          "var": np.diag(m.cov), "count": m.count, "values": it.get("values")})
         try:
             if STATISTICS[stat].kind == "extreme":
-                out[stat] = fit_extreme_geomodel(rows, n_fit)
+                out[stat] = fit_extreme_geomodel_robust(rows, n_fit)
             else:
-                out[stat] = fit_geomodel(rows, dimension, n_fit)
+                out[stat], excl = fit_geomodel_robust(rows, dimension, n_fit)
+                out[stat].excluded = list(excl)
+                out[stat].depth = depth
         except ValueError:
             continue
     return out

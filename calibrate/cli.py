@@ -163,6 +163,25 @@ def build_parser() -> argparse.ArgumentParser:
                    help="figure: cell means against the model for the mean nearest-neighbour "
                    "distance and the Euler curve")
     f.add_argument("--json", action="store_true")
+
+    v = sub.add_parser("validate", help="score the model route on held-out windows and store "
+                       "where it holds",
+                       description="Score the instant answers of a table on the held-out "
+                       "validation windows (fresh CSR patterns that no model was fitted on, "
+                       "simulated with --simulate or by scripts/make_heldout.py), refit the "
+                       "geometric model first unless --no-refit, and store the scores and the "
+                       "validated range (where the model route is trusted) in the table.")
+    v.add_argument("table", help="HDF5 table (rewritten atomically)")
+    v.add_argument("--heldout", metavar="FOLDER", default=None,
+                   help="folder of the held-out simulations (default: tables/heldout.parts "
+                   "beside the package's tables)")
+    v.add_argument("--simulate", type=_int, default=0, metavar="R",
+                   help="first simulate missing held-out cells with R patterns each")
+    v.add_argument("--window", metavar="NAME[,NAME...]", default=None,
+                   help="only these held-out windows (default: all of the table's dimension)")
+    v.add_argument("--no-refit", action="store_true",
+                   help="keep the stored geometric model (default: refit it first)")
+    _add_run_options(v)
     return p
 
 
@@ -354,6 +373,67 @@ def _cmd_fit(a):
     return s
 
 
+def _cmd_validate(a):
+    import os
+
+    from nullatlas.lookup.nullmoments import TableSet
+    from nullatlas.lookup.tablereader import open_table
+
+    from . import build
+    from .heldout import HELDOUT, HELDOUT_N, simulate_heldout
+    from .tablewriter import update_table
+    from .validate import validate_tables
+
+    info = open_table(a.table)
+    folder = a.heldout or os.path.join(os.path.dirname(os.path.abspath(a.table)),
+                                       "heldout.parts")
+    names = None
+    if a.window:
+        names = [x.strip() for x in a.window.split(",") if x.strip()]
+        bad = [x for x in names if x not in HELDOUT]
+        if bad:
+            raise OptionError(f"unknown held-out window '{bad[0]}'; choose from "
+                              f"{', '.join(HELDOUT)}")
+    if a.simulate:
+        if a.simulate < 100:
+            raise OptionError(f"--simulate must be at least 100 patterns, got {a.simulate}")
+        for name, (d, _, _) in HELDOUT.items():
+            if d == info.dimension and (names is None or name in names):
+                for n in HELDOUT_N[d]:
+                    simulate_heldout(folder, name, n, a.simulate, jobs=_jobs(a.jobs),
+                                     progress=a.progress)
+    if not a.no_refit:
+        build.refit_geomodel(a.table)
+    res = validate_tables(TableSet([a.table], use_shipped=False), folder, info.dimension, names)
+    if not res["rows"]:
+        raise OptionError(f"no held-out simulations of {info.dimension}D windows in {folder}; "
+                          "run with --simulate R or scripts/make_heldout.py")
+    update_table(a.table, validation=res)
+    return {"_kind": "validate", "table": a.table, "heldout": folder, "rows": res["rows"],
+            "trust": res["trust"]}
+
+
+def _print_validate(s, out=None):
+    out = out or sys.stdout
+    out.write(f"held-out validation of {s['table']} ({len(s['rows'])} scores)\n")
+    out.write(f"{'window':14s} {'n':>6s} {'statistic':10s} {'route':6s} {'bias/sd':>8s} "
+              f"{'size':>6s} {'lower':>6s} {'upper':>6s}  holds\n")
+    for r in s["rows"]:
+        def f(k):
+            v = r.get(k)
+            return f"{v:6.3f}" if isinstance(v, float) else f"{'':6s}"
+        out.write(f"{r['window']:14s} {r['n']:6d} {r['statistic']:10s} {r['route']:6s} "
+                  f"{r['mean_err_sd']:+8.3f} {f('size')} {f('lower')} {f('upper')}  "
+                  f"{'yes' if r['passed'] else 'NO'}\n")
+    out.write("validated range of the model route (trusted inside):\n")
+    for stat, per in s["trust"].items():
+        for test, r in per.items():
+            out.write(f"  {stat:10s} {test:10s} boundary share <= {r['boundary_share_max']:.3f}, "
+                      f"second order <= {r['second_order_max']:.3f}, narrow share <= "
+                      f"{r['narrow_share_max']:.3f}, n {r['n_lo']}..{r['n_hi']} "
+                      f"({r['passed']} of {r['cells']} cells inside)\n")
+
+
 def _clean(v):
     """JSON-ready copy: numpy scalars to Python, NaN/inf to None."""
     import math
@@ -375,7 +455,7 @@ def main(argv=None) -> int:
 
     def run():
         s = {"build": _cmd_build, "extend": _cmd_extend, "fit": _cmd_fit,
-             "check": _cmd_check, "power": _cmd_power}[a.command](a)
+             "check": _cmd_check, "power": _cmd_power, "validate": _cmd_validate}[a.command](a)
         kind = s.pop("_kind", "table")
         if a.json:
             json.dump(_clean(s), sys.stdout, indent=2, allow_nan=False)
@@ -384,6 +464,8 @@ def main(argv=None) -> int:
             _print_check(s)
         elif kind == "power":
             _print_power(s)
+        elif kind == "validate":
+            _print_validate(s)
         else:
             _print_summary(s)
         return 0

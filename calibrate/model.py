@@ -20,7 +20,7 @@ grid point, and the standardised residuals per cell.
 """
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -93,6 +93,7 @@ class Fit:
     mean_resid: np.ndarray
     var_resid: np.ndarray
     n_fit: int
+    excluded: list = field(default_factory=list)
 
     @property
     def dof(self) -> int:
@@ -185,12 +186,12 @@ def model_n_ok(ns, err_sd: np.ndarray, tol: float = MODEL_TOL_SD) -> int:
 # The geometric model: covariates from the window's inner parallel sets
 # --------------------------------------------------------------------------
 
-def cell_covariates(spec: str, n: int) -> np.ndarray:
+def cell_covariates(spec: str, n: int, depth=1.0) -> np.ndarray:
     """Covariates [1, B1, B2, B3] (``lookup.boundary``) of a table cell,
-    from its window specification and n."""
+    from its window specification and n, at the band depth(s) ``depth``."""
     from nullatlas.lookup.boundary import covariates
 
-    return covariates(_window_of(spec), int(n))
+    return covariates(_window_of(spec), int(n), depth)
 
 
 _WINDOWS: dict = {}
@@ -215,17 +216,66 @@ def fit_geomodel(cells: list[dict], d: int, n_fit: int = 100) -> Fit:
         raise ValueError(f"the geometric model needs at least 6 cells with n >= {n_fit}, "
                          f"got {len(use)}")
     n = np.array([c["n"] for c in use], float)
-    X = np.array([c["cov"] for c in use], float)
+    X = np.array([np.atleast_2d(c["cov"]) for c in use], float)      # cells x (1 or k) x 4
     R = np.array([c["count"] for c in use], float)
-    mean = np.array([c["mean"] for c in use])
-    var = np.array([c["var"] for c in use])
+    mean = np.array([np.atleast_1d(c["mean"]) for c in use])
+    var = np.array([np.atleast_1d(c["var"]) for c in use])
     sem = np.sqrt(var / R[:, None])
     nvar = n[:, None] * var
     nvar_se = nvar * np.sqrt(2.0 / (R[:, None] - 1.0))
-    mc, ms, mcov, mchi, mres = wls(X, mean, sem)
-    vc, vs, vcov, vchi, vres = wls(X, nvar, nvar_se)
+    k = mean.shape[1]
+    parts = []
+    for j in range(k):
+        Xj = X[:, min(j, X.shape[1] - 1), :]     # the design of grid point j
+        parts.append((wls(Xj, mean[:, j:j + 1], sem[:, j:j + 1]),
+                      wls(Xj, nvar[:, j:j + 1], nvar_se[:, j:j + 1])))
+
+    def stack(which, i):
+        a = [p[which][i] for p in parts]
+        return np.concatenate(a, axis=1 if i == 4 else 0)
+
+    mc, ms, mcov, mchi, mres = (stack(0, i) for i in range(5))
+    vc, vs, vcov, vchi, vres = (stack(1, i) for i in range(5))
     return Fit(d, [c["name"] for c in use], mc, ms, mcov, mchi, vc, vs, vcov, vchi, mres, vres,
                int(n_fit))
+
+
+#: A shape is left out of a statistic's geometric model when its mean squared
+#: standardised residual exceeds this many times the median of the others'
+#: and the fit's median chi-square per degree of freedom exceeds EXCLUDE_CHI2.
+EXCLUDE_FACTOR = 4.0
+EXCLUDE_CHI2 = 3.0
+
+
+def fit_geomodel_robust(cells: list[dict], d: int, n_fit: int = 100, min_shapes: int = 4):
+    """:func:`fit_geomodel`, leaving out whole shapes for which the local
+    (additive) model does not hold for this statistic -- for example a
+    window with a hole for loop statistics: the hole itself is a loop of the
+    union of balls whose lifetime grows like sqrt(n), no local boundary
+    term.  Shapes are dropped one at a time, worst first, while the fit's
+    median chi2/dof exceeds EXCLUDE_CHI2 and the worst shape's mean squared
+    standardised residual exceeds EXCLUDE_FACTOR times the median of the
+    other shapes'.  Returns (fit, list of excluded shapes)."""
+    excluded = []
+    while True:
+        use = [c for c in cells if c.get("shape") not in excluded]
+        fit = fit_geomodel(use, d, n_fit)
+        dof = max(len(fit.cells) - fit.mean_coef.shape[1], 1)
+        if np.nanmedian(fit.mean_chi2 / dof) <= EXCLUDE_CHI2:
+            return fit, excluded
+        shape_of = {c["name"]: c.get("shape") for c in use}
+        shapes = sorted({shape_of[nm] for nm in fit.cells})
+        if len(shapes) <= min_shapes:
+            return fit, excluded
+        msr = {}
+        for sh in shapes:
+            rows = [i for i, nm in enumerate(fit.cells) if shape_of[nm] == sh]
+            msr[sh] = float(np.nanmean(fit.mean_resid[rows] ** 2))
+        worst = max(msr, key=msr.get)
+        others = [v for k, v in msr.items() if k != worst]
+        if msr[worst] <= EXCLUDE_FACTOR * float(np.median(others)):
+            return fit, excluded
+        excluded.append(worst)
 
 
 def predict_geo(coef: np.ndarray, cov: np.ndarray) -> np.ndarray:
@@ -270,8 +320,9 @@ def fit_extreme_geomodel(cells: list[dict], n_fit: int = 100) -> dict:
     x = np.quantile(pooled, np.linspace(0.0005, 0.9995, EXTREME_GRID))
     x = np.unique(x)
     coef = np.full((len(x), 3), np.nan)
+    resid = np.full((len(use), len(x)), np.nan)
     n = np.array([c["n"] for c in use], float)
-    nb1 = n * np.array([c["cov"][1] for c in use], float)
+    nb1 = n * np.array([np.atleast_2d(c["cov"])[0, 1] for c in use], float)
     X = np.column_stack([n, nb1, np.ones_like(n)])
     for j, xj in enumerate(x):
         y, w, rows = [], [], []
@@ -288,4 +339,27 @@ def fit_extreme_geomodel(cells: list[dict], n_fit: int = 100) -> dict:
             Xw = X[rows] * np.asarray(w)[:, None]
             b, *_ = np.linalg.lstsq(Xw, np.asarray(y) * np.asarray(w), rcond=None)
             coef[j] = b
-    return {"x": x, "coef": coef}
+            resid[rows, j] = (np.asarray(y) - X[rows] @ b) * np.asarray(w)
+    return {"x": x, "coef": coef, "resid": resid, "cells": [c.get("shape") for c in use]}
+
+
+def fit_extreme_geomodel_robust(cells: list[dict], n_fit: int = 100, min_shapes: int = 4):
+    """:func:`fit_extreme_geomodel` leaving out shapes for which the
+    exceedance model does not hold (a window's own hole is the largest loop
+    of every pattern in it), by the rule of :func:`fit_geomodel_robust`.
+    Returns the fit dict with ``excluded`` (list of shapes)."""
+    excluded = []
+    while True:
+        fit = fit_extreme_geomodel([c for c in cells if c.get("shape") not in excluded], n_fit)
+        r2 = fit["resid"] ** 2
+        shapes = sorted(set(fit["cells"]))
+        msr = {sh: float(np.nanmean(r2[[i for i, s in enumerate(fit["cells"]) if s == sh]]))
+               for sh in shapes}
+        fit["excluded"] = list(excluded)
+        if np.nanmedian(r2) <= EXCLUDE_CHI2 or len(shapes) <= min_shapes:
+            return fit
+        worst = max(msr, key=msr.get)
+        others = [v for k, v in msr.items() if k != worst]
+        if msr[worst] <= EXCLUDE_FACTOR * float(np.median(others)):
+            return fit
+        excluded.append(worst)

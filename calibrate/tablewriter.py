@@ -108,9 +108,13 @@ def write_geomodels(fh, geomodels: dict) -> None:
             _put(g, "x", np.asarray(fit["x"], float))
             _put(g, "coef", np.asarray(fit["coef"], float))
             g.attrs["kind"] = "extreme"
+            g.attrs["excluded_shapes"] = json.dumps(list(fit.get("excluded", [])))
         else:
             _write_fit(g, fit)
             g.attrs["kind"] = "additive"
+            g.attrs["excluded_shapes"] = json.dumps(list(getattr(fit, "excluded", [])))
+            if getattr(fit, "depth", None) is not None:
+                _put(g, "depth", np.asarray(fit.depth, float))
 
 
 def write_validation(fh, validation: dict) -> None:

@@ -14,7 +14,8 @@ of the boundary):
     B2 = B1 h - 1 + V(h / s) / |W|
        = (1/n) int_0^h (P*(0) - P*(t)) dt,
          P*(t) the normalised perimeter (surface) of the inner parallel set
-         at normalised depth t, h = ``DEPTH`` mean spacings: how much the
+         at normalised depth t, h the depth that contributions at this grid
+         point reach (:func:`grid_depths`: 2 rho, at least ``DEPTH``): how much the
          boundary band falls short of (boundary measure x depth).  It is
          tau h^2 / (2 n) for a convex polygon with tau = sum over corners of
          2 cot(angle / 2) (2 pi for a disk), negative around holes and reflex
@@ -44,7 +45,7 @@ from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["DEPTH", "NARROW_WIDTH", "MEASURES", "covariates", "trust_measures", "COVARIATES"]
+__all__ = ["DEPTH", "NARROW_WIDTH", "MEASURES", "covariates", "grid_depths", "trust_measures", "COVARIATES"]
 
 #: The trust measures, in the order of the validated range.
 MEASURES = ("boundary_share", "second_order", "narrow_share")
@@ -61,24 +62,42 @@ def _scale(window, n: int) -> float:
     return (n / float(window.measure)) ** (1.0 / window.dim)
 
 
-def _inner_fraction(window, t: float) -> float:
-    """V(t) / |W| for one physical distance t (1 for windows without boundary)."""
+def _inner_fraction(window, t) -> np.ndarray:
+    """V(t) / |W| for physical distances t (1 for windows without boundary)."""
+    t = np.atleast_1d(np.asarray(t, float))
     if getattr(window, "periodic", False) or float(window.boundary_measure) == 0.0:
-        return 1.0
-    v = np.asarray(window.inner_content(np.array([t], float)), float).reshape(-1)[0]
-    return float(v) / float(window.measure)
+        return np.ones_like(t)
+    v = np.asarray(window.inner_content(t), float).reshape(-1)
+    return v / float(window.measure)
 
 
-def covariates(window, n: int, depth: float = DEPTH) -> np.ndarray:
-    """The model covariates [1, B1, B2, B3] of ``n`` points in ``window``."""
+def grid_depths(grid, kind: str) -> np.ndarray:
+    """Depth h of the band behind B2 for each grid point of a statistic:
+    contributions at normalised radius rho reach 2 rho into the window
+    (DESIGN.md, pilot lessons), so h = max(DEPTH, 2 rho) for curves; scalars
+    and extremes, which gather features up to rho of about 1, use 2."""
+    if kind == "curve" and grid is not None:
+        g = np.asarray(grid, float)
+        g = g.max(axis=1) if g.ndim == 2 else g
+        return np.maximum(DEPTH, 2.0 * g)
+    return np.array([2.0])
+
+
+def covariates(window, n: int, depth=DEPTH) -> np.ndarray:
+    """The model covariates [1, B1, B2, B3] of ``n`` points in ``window``:
+    shape (4,) for a scalar ``depth``, (len(depth), 4) for an array."""
     n = int(n)
     d = window.dim
     s = _scale(window, n)
+    scalar = np.ndim(depth) == 0
+    h = np.atleast_1d(np.asarray(depth, float))
     b1 = float(window.boundary_measure) * s ** (d - 1) / n
-    if b1 == 0.0:
-        return np.array([1.0, 0.0, 0.0, 1.0 / n])
-    b2 = b1 * depth - 1.0 + _inner_fraction(window, depth / s)
-    return np.array([1.0, b1, b2, 1.0 / n])
+    out = np.empty((len(h), 4))
+    out[:, 0] = 1.0
+    out[:, 1] = b1
+    out[:, 3] = 1.0 / n
+    out[:, 2] = 0.0 if b1 == 0.0 else b1 * h - 1.0 + _inner_fraction(window, h / s)
+    return out[0] if scalar else out
 
 
 def trust_measures(window, n: int) -> dict:
@@ -90,7 +109,7 @@ def trust_measures(window, n: int) -> dict:
     if getattr(window, "periodic", False) or float(window.boundary_measure) == 0.0:
         return {"boundary_share": 0.0, "second_order": 0.0, "narrow_share": 0.0, "B1": 0.0,
                 "B2": 0.0}
-    share = 1.0 - _inner_fraction(window, 1.0 / s)
+    share = 1.0 - float(_inner_fraction(window, 1.0 / s)[0])
     narrow = 0.0
     fn = getattr(window, "narrow_share", None)
     if fn is not None:

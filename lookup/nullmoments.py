@@ -128,8 +128,9 @@ class _Table:
                 for s, g in fh.get("geomodel", {}).items():
                     kind = g.attrs.get("kind", "additive")
                     kind = kind.decode() if isinstance(kind, bytes) else kind
-                    keys = ("x", "coef") if kind == "extreme" else ("mean_coef", "var_coef")
-                    self._geo[s] = {k: np.asarray(g[k][()], float) for k in keys}
+                    keys = ("x", "coef") if kind == "extreme" else ("mean_coef", "var_coef",
+                                                                    "depth")
+                    self._geo[s] = {k: np.asarray(g[k][()], float) for k in keys if k in g}
                     self._geo[s]["kind"] = kind
         return self._geo.get(stat)
 
@@ -330,15 +331,15 @@ def _geo_moments(t: _Table, stat: str, n: int, window, d: int, near: list):
     g = t.geomodel(stat)
     if g is None:
         return None
-    cov = covariates(window, n)
+    cov = covariates(window, n, g.get("depth", np.array([1.0])))      # (k or 1, 4)
     base = _from_cells(t, stat, near, n if len(near) == 2 else near[0].n, d)
     if g["kind"] == "extreme":
-        vals = extreme_sample(g["x"], g["coef"], n, float(cov[1]))
+        vals = extreme_sample(g["x"], g["coef"], n, float(cov[0, 1]))
         return {"mean": np.array([vals.mean()]), "cov": np.atleast_2d(np.var(vals, ddof=1)),
                 "usable": None, "values": vals, "replicates": base["replicates"],
                 "covariates": cov}
-    mean = g["mean_coef"] @ cov
-    nvar = g["var_coef"] @ cov
+    mean = np.einsum("kc,kc->k", g["mean_coef"], np.broadcast_to(cov, g["mean_coef"].shape))
+    nvar = np.einsum("kc,kc->k", g["var_coef"], np.broadcast_to(cov, g["var_coef"].shape))
     sd_b = np.sqrt(np.clip(np.diag(base["cov"]), 0, None))
     with np.errstate(divide="ignore", invalid="ignore"):
         corr = base["cov"] / np.outer(sd_b, sd_b)
@@ -427,7 +428,7 @@ def null_moments(tables: TableSet, window, n: int, stat: str) -> NullMoments | N
             res.extra["trust"] = t.info.trust.get(stat)
             res.extra["schema_version"] = t.info.schema_version
             if "covariates" in mom:
-                res.extra["covariates"] = [float(v) for v in mom["covariates"]]
+                res.extra["covariates"] = np.asarray(mom["covariates"])[0].tolist()
         if stat.startswith("betti"):
             res.expected_count = n * res.mean
             if res.usable is not None:
