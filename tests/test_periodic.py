@@ -85,6 +85,47 @@ def test_rescaled_box_gives_the_same_normalised_diagram():
     assert same(a, c)
 
 
+def test_images_are_exact_translates():
+    """The frame of ``torus_frame``: for any box (here with non-dyadic sides) every
+    image u + k L_i within the admissible halo is an exact double, so all copies
+    of a simplex have bit-identical filtration values."""
+    from nullatlas.lookup.periodic import torus_frame
+
+    rng = np.random.default_rng(0)
+    for lo, hi in (([0.1, -7.3], [1.3, 0.9]), ([3.0, 0.0, 1e-3], [3.7, 0.3, 2.1e-3])):
+        box = PeriodicBox(*lo, *hi)
+        p = box.lo + box.sides * rng.random((2000, box.dim))
+        u, L, g = torus_frame(p, box)
+        assert np.all(np.abs(u - (p - (box.lo + 0.5 * L))) <= g)       # moved < 1 ulp(L)
+        top = np.ldexp(1.0, np.frexp(L)[1])
+        for k in (-2, -1, 1, 2):
+            v = u + k * L
+            inside = np.abs(v) <= top
+            bb = v - u
+            err = (u - (v - bb)) + (k * L - bb)                           # Two-Sum error
+            assert np.all(err[inside] == 0.0)
+
+
+def test_large_hole_grows_the_halo_and_stays_exact():
+    """Points everywhere but in an empty disc of radius 0.15 on the unit torus: the
+    first halo (a few mean spacings) is too thin for the hole's Delaunay triangles,
+    the halo grows, and the diagram is the same wherever the hole sits (here moved
+    across the corner of the box)."""
+    p = dyadic(6000, 2, seed=4)
+    p = p[np.linalg.norm(p - 0.5, axis=1) > 0.15][:2000]
+    box = UNIT[2]
+    ref = periodic_diagram(p, box)
+    assert ref.meta["halo"] > 0.3
+    # the last hole to fill is this one, and on a torus filling the last hole closes
+    # the surface: it gives birth to the H2 class (its boundary loop was already
+    # null-homologous in the punctured torus), at the hole's Delaunay circumradius
+    assert 0.14 < ref.pairs[2][0, 0] / ref.scale < 0.2
+    assert ref.finite(1)[:, 1].max() / ref.scale < 0.1
+    for shift in ([0.5, 0.5], [0.25, 0.625], [0.5, 0.0]):
+        assert same(periodic_diagram(np.mod(p + shift, 1.0), box), ref)
+    assert same(periodic_diagram(p, box, engine="gudhi"), ref)
+
+
 # --------------------------------------------------------------------------------------
 # (b) H0 = half the edges of the periodic Euclidean minimum spanning tree, exactly
 # --------------------------------------------------------------------------------------
