@@ -319,6 +319,34 @@ class _Retry(Exception):
         self.grow_to = grow_to
 
 
+def _row_keys(rows, n):
+    """Integer keys ordered like the (sorted) rows in lexicographic order: the
+    rows as numbers in base n, or None when they do not fit in 63 bits."""
+    k = rows.shape[1]
+    if float(n) ** k >= 2.0 ** 62:
+        return None
+    key = np.zeros(len(rows), dtype=np.int64)
+    for j in range(k):
+        key = key * n + rows[:, j]
+    return key
+
+
+def _lex_order(rows, n):
+    key = _row_keys(rows, n)
+    return np.lexsort(rows.T[::-1]) if key is None else np.argsort(key, kind="stable")
+
+
+def _facet_multiplicities(top, n):
+    """Multiplicity of each distinct facet of the (sorted) rows ``top``."""
+    facets = np.concatenate([np.delete(top, j, axis=1) for j in range(top.shape[1])])
+    key = _row_keys(facets, n)
+    if key is None:
+        return np.unique(facets, axis=0, return_counts=True)[1]
+    key.sort()
+    starts = np.flatnonzero(np.r_[True, key[1:] != key[:-1]])
+    return np.diff(np.r_[starts, len(key)])
+
+
 def _quotient(filtration, orig, inbox, n, d, h):
     """Canonical orbit representatives in original indices, with the checks
     (a)-(c) of the module docstring.  Returns [(simplices, values)] per q >= 1."""
@@ -336,7 +364,7 @@ def _quotient(filtration, orig, inbox, n, d, h):
         v = v[keep]
         if np.any(o[:, 1:] == o[:, :-1]):                             # check (b)
             raise _Retry(grow_to=math.inf)
-        order = np.lexsort(o.T[::-1])
+        order = _lex_order(o, n)
         o, v = o[order], v[order]
         if np.any(np.all(o[1:] == o[:-1], axis=1)):
             raise _Retry(grow_to=math.inf)
@@ -344,12 +372,72 @@ def _quotient(filtration, orig, inbox, n, d, h):
     counts = [n] + [len(o) for o, _ in out]
     chi = sum((-1) ** q * c for q, c in enumerate(counts))
     # check (c): every facet of a top simplex (as an orbit) in exactly two of them
-    top = out[-1][0]
-    facets = np.concatenate([np.delete(top, j, axis=1) for j in range(d + 1)])
-    _, mult = np.unique(facets, axis=0, return_counts=True)
+    mult = _facet_multiplicities(out[-1][0], n)
     if chi != 0 or len(mult) != counts[d - 1] or np.any(mult != 2):
         raise _Retry()
     return out, counts
+
+
+def _simplex_tree_pairs(n, d, simplices):
+    """Pairs [H0..Hd] in squared radii by gudhi's ``SimplexTree`` (Z/2, all
+    dimensions, pairs of zero length left out)."""
+    import gudhi
+
+    st = gudhi.SimplexTree()
+    st.insert_batch(np.arange(n, dtype=np.int64)[None, :], np.zeros(n))
+    for S, v in simplices:
+        st.insert_batch(np.ascontiguousarray(S.T), v)
+    st.compute_persistence(homology_coeff_field=2, persistence_dim_max=True)
+    return [np.asarray(st.persistence_intervals_in_dimension(q), dtype=float).reshape(-1, 2)
+            for q in range(d + 1)]
+
+
+def _torus_pairs_2d(n, simplices):
+    """Pairs [H0, H1, H2] (squared radii) of a filtered triangulated 2-torus by
+    union-find, or None when the counts do not come out as for a torus.
+
+    H0: Kruskal over the edges (the minimum spanning tree edges are the
+    negative ones).  H1 and H2 by duality on the closed surface (Edelsbrunner
+    & Harer 2010, VII.2; Cohen-Steiner, Edelsbrunner & Harer, *Extending
+    persistence using Poincare and Lefschetz duality*, FoCM 9, 2009): the
+    complement of the triangles present at t is a disjoint union of dual
+    components, each of which but one bounds a finite H1 class.  The edges not
+    in the spanning tree are swept in decreasing order with union-find on the
+    triangles (``pairing._dual_pairs``, elder rule: the dual component whose
+    last triangle enters earlier dies, giving the pair (edge value, that
+    triangle's value)); the two non-tree edges that close a dual cycle are
+    the essential H1 classes (birth = their value), and the last triangle
+    closes the surface (H2 born at the largest triangle value).
+    """
+    from .pairing import _dual_pairs, _kruskal, radix_argsort
+
+    (E, ev), (T, tv) = simplices
+    ekey = _row_keys(E, n)
+    tkey = _row_keys(np.delete(T, 0, axis=1), n)
+    if ekey is None or tkey is None:
+        return None
+    # the two triangles of each edge (rows of E are in increasing key order)
+    fkey = np.concatenate([_row_keys(np.delete(T, j, axis=1), n) for j in range(3)])
+    ftri = np.tile(np.arange(len(T), dtype=np.int64), 3)
+    pos = np.searchsorted(ekey, fkey)
+    by_edge = np.argsort(pos, kind="stable")
+    cof = ftri[by_edge].reshape(-1, 2)                    # exactly two per edge (checked)
+    order = radix_argsort(ev)
+    eu = np.ascontiguousarray(E[:, 0])
+    evv = np.ascontiguousarray(E[:, 1])
+    d0, is_mst = _kruskal(n, eu, evv, ev, order)
+    b1, d1, is_tree = _dual_pairs(np.ascontiguousarray(tv), np.ascontiguousarray(cof[:, 0]),
+                                  np.ascontiguousarray(cof[:, 1]), ev, order,
+                                  np.empty(0, dtype=np.int64), np.empty(0, dtype=np.int64),
+                                  is_mst)
+    essential = ev[~is_mst & ~is_tree]
+    if len(d0) != n - 1 or len(essential) != 2:
+        return None
+    h0 = np.concatenate([np.stack([np.zeros(len(d0)), d0], axis=1), [[0.0, np.inf]]])
+    h1 = np.concatenate([np.stack([b1, d1], axis=1),
+                         np.stack([essential, np.full(2, np.inf)], axis=1)])
+    h2 = np.array([[float(tv.max()), np.inf]])
+    return [h0, h1, h2]
 
 
 def periodic_diagram(points, box: PeriodicBox, engine: str = "fast") -> PeriodicDiagram:
@@ -382,7 +470,6 @@ def periodic_diagram(points, box: PeriodicBox, engine: str = "fast") -> Periodic
         Points coincide on the torus, or the pattern is too sparse for the
         quotient of its periodic Delaunay complex to be a simplicial complex.
     """
-    import gudhi
 
     if engine not in ("fast", "gudhi"):
         raise ValueError("engine must be 'fast' or 'gudhi'")
@@ -441,15 +528,12 @@ def periodic_diagram(points, box: PeriodicBox, engine: str = "fast") -> Periodic
         raise PointsError("the periodic Delaunay complex of these points could not be "
                           "folded consistently onto the torus")
     simplices, counts = result
-    st = gudhi.SimplexTree()
-    st.insert_batch(np.arange(n, dtype=np.int64)[None, :], np.zeros(n))
-    for S, v in simplices:
-        st.insert_batch(np.ascontiguousarray(S.T), v)
-    st.compute_persistence(homology_coeff_field=2, persistence_dim_max=True)
+    squared = _torus_pairs_2d(n, simplices) if (d == 2 and engine == "fast") else None
+    if squared is None:
+        squared = _simplex_tree_pairs(n, d, simplices)
     scale = intensity_scale(n, box.measure, d)
     pairs = []
-    for q in range(d + 1):
-        iv = np.asarray(st.persistence_intervals_in_dimension(q), dtype=float).reshape(-1, 2)
+    for iv in squared:
         iv = iv[~(iv[:, 1] <= iv[:, 0])]                # zero length (exact values)
         iv = np.sqrt(iv) * scale
         pairs.append(iv[np.lexsort((iv[:, 1], iv[:, 0]))])

@@ -74,6 +74,17 @@ def test_translation_invariance_bit_identical(d, n):
     assert same(periodic_diagram(p, box, engine="gudhi"), ref)
 
 
+@pytest.mark.parametrize("n,bits", [(40, 16), (300, 16), (3000, 16), (300, 8), (1500, 10),
+                                    (500, 6)])
+def test_engines_agree_bit_for_bit_2d(n, bits):
+    """The fast engine (our exact kernels, union-find persistence by duality on the
+    torus) against the reference (gudhi's exact alpha complex, SimplexTree
+    persistence); 6-bit grids have many equal values and co-circular points."""
+    for seed in range(4):
+        p = dyadic(n, 2, seed=seed, bits=bits)
+        assert same(periodic_diagram(p, UNIT[2]), periodic_diagram(p, UNIT[2], engine="gudhi"))
+
+
 def test_rescaled_box_gives_the_same_normalised_diagram():
     p = dyadic(500, 2, seed=7)
     a = periodic_diagram(p, UNIT[2])
