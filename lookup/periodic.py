@@ -484,15 +484,19 @@ def periodic_diagram(points, box: PeriodicBox, engine: str = "fast") -> Periodic
     n, d = P.shape
     if d != box.dim:
         raise PointsError(f"points are {d}D but the torus is {box.dim}D")
+    if n < d + 1:
+        raise PointsError(f"too few points for a periodic window: {n} (need at least "
+                          f"{d + 1} in {d}D, and in practice some dozens)")
     u, L, _ = torus_frame(P, box)
     if len(np.unique(u, axis=0)) != n:
         raise PointsError("two points coincide on the torus (a point on an upper face is "
                           "the same as its image on the lower face, or two points are "
                           "closer than the rounding of the box side)")
     spacing = (box.measure / n) ** (1.0 / d)
-    # Largest empty ball of a CSR pattern: lambda |B_R| ~ log n + (d - 1) log log n
-    # (Hall, *Introduction to the Theory of Coverage Processes*, 1988, ch. 3);
-    # the halo must exceed its diameter.
+    # First guess of the halo: the diameter of the largest empty ball of a CSR
+    # pattern, lambda |B_R| ~ log n + (d - 1) log log n (coverage asymptotics; Hall,
+    # *Introduction to the Theory of Coverage Processes*, 1988 -- from memory).  Only
+    # a starting point: check (a) measures R_max and grows the halo when needed.
     ln = math.log(max(n, 3))
     r_est = ((ln + (d - 1) * math.log(ln)) / (math.pi if d == 2 else 4 * math.pi / 3)) ** (1 / d)
     # exact images up to |u + k L_i| <= 2^e_i (see torus_frame)

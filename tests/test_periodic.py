@@ -287,7 +287,7 @@ def test_full_complex_is_a_torus(d, n, engine):
 # --------------------------------------------------------------------------------------
 
 
-@pytest.mark.parametrize("d,n", [(2, 5), (2, 8), (3, 6), (3, 12)])
+@pytest.mark.parametrize("d,n", [(2, 2), (2, 5), (2, 8), (3, 6), (3, 12)])
 def test_too_sparse_gives_one_clear_error(d, n):
     p = np.random.default_rng(n).random((n, d))
     with pytest.raises(PointsError, match="too few points for a periodic window") as e:
