@@ -380,7 +380,7 @@ def _cmd_validate(a):
     from nullatlas.lookup.tablereader import open_table
 
     from . import build
-    from .heldout import HELDOUT, HELDOUT_N, simulate_heldout
+    from .heldout import HELDOUT, heldout_ns, simulate_heldout
     from .tablewriter import update_table
     from .validate import validate_tables
 
@@ -399,7 +399,7 @@ def _cmd_validate(a):
             raise OptionError(f"--simulate must be at least 100 patterns, got {a.simulate}")
         for name, (d, _, _) in HELDOUT.items():
             if d == info.dimension and (names is None or name in names):
-                for n in HELDOUT_N[d]:
+                for n in heldout_ns(name):
                     simulate_heldout(folder, name, n, a.simulate, jobs=_jobs(a.jobs),
                                      progress=a.progress)
     if not a.no_refit:

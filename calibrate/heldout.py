@@ -23,14 +23,24 @@ import numpy as np
 from nullatlas.lookup.atomic import atomic_path
 from nullatlas.lookup.statistics import resolve_stats
 
-__all__ = ["HELDOUT", "heldout_window", "HELDOUT_SEED", "HELDOUT_N", "simulate_heldout",
+__all__ = ["HELDOUT", "heldout_window", "HELDOUT_SEED", "HELDOUT_N", "HELDOUT_N_PERIODIC",
+           "heldout_ns", "simulate_heldout",
            "load_heldout"]
 
 #: Root seed of the held-out simulations (not the tables' seed).
 HELDOUT_SEED = 7_160_016
 
-#: n simulated per dimension.
+#: n simulated per dimension (periodic windows: see HELDOUT_N_PERIODIC).
 HELDOUT_N = {2: [100, 500, 2000, 20000], 3: [100, 500, 2000, 5000]}
+#: Periodic windows: exact periodic persistence costs more than the bounded
+#: windows' (the 3D torus needs about 200 points to fold into a complex).
+HELDOUT_N_PERIODIC = {2: [100, 500, 2000], 3: [500, 2000]}
+
+
+def heldout_ns(name: str) -> list:
+    """The n simulated for held-out window ``name``."""
+    d = HELDOUT[name][0]
+    return HELDOUT_N_PERIODIC[d] if name.startswith("torus") else HELDOUT_N[d]
 
 
 def _poly(geom):

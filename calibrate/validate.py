@@ -24,10 +24,11 @@ below 2% while a size of 0.07 still fails).
 The validated range of a statistic and test (:func:`validated_range`):
 upper bounds on the boundary share (share of the window within one mean
 spacing of the boundary), the second-order share (|B2| sqrt(n): corners,
-tips, curvature, holes) and the narrow share (share in parts narrower than
-``lookup.boundary.NARROW_WIDTH`` mean spacings) such that no failing cell
-lies inside, chosen to hold as many passing cells as possible, and the n
-range of the held-out cells.  The runtime trusts the model route only
+tips, curvature), the narrow share (share in parts narrower than
+``lookup.boundary.NARROW_WIDTH`` mean spacings), the number of holes and
+the hull deficit (concavities), such that no failing cell lies inside,
+chosen greedily to hold as many passing cells as possible, and the n range
+of the held-out cells.  The runtime trusts the model route only
 inside it (``lookup.asymptotic.verdict``).
 """
 from __future__ import annotations
@@ -42,7 +43,7 @@ from nullatlas.lookup.globaltests import maxabs_pvalue
 from nullatlas.lookup.nullmoments import null_moments
 from nullatlas.lookup.statistics import STATISTICS
 
-from .heldout import HELDOUT, HELDOUT_N, heldout_window, load_heldout
+from .heldout import HELDOUT, heldout_ns, heldout_window, load_heldout
 
 __all__ = ["score_cell", "validated_range", "validate_tables", "MEAN_TOL_SD", "SIZE_TOL",
            "TAIL_TOL"]
@@ -139,30 +140,39 @@ def validated_range(rows: list[dict], test: str) -> dict:
     """The validated range of one statistic's ``test`` from its scored
     held-out cells: upper bounds on the trust measures
     (``lookup.boundary.MEASURES``) such that no failing cell lies inside the
-    box they span, chosen to hold as many passing cells as possible (ties:
-    the smaller box), and the n range of the held-out cells."""
+    box they span.  Greedy: start from the box of all passing cells; while a
+    failing cell lies inside, lower one bound to just below that cell (the
+    largest passing value under it), choosing the cut that keeps the most
+    passing cells.  Also the n range of the held-out cells."""
     pts = [r for r in rows if test in r.get("tests", {})]
     if not pts:
         return {}
     X = np.array([[r[k] for k in MEASURES] for r in pts], float)
     ok = np.array([bool(r["tests"][test]) for r in pts])
-    best, box = -1, np.zeros(len(MEASURES))
-    cands = [np.unique(X[ok, j]) for j in range(len(MEASURES))]
     if ok.any():
-        import itertools
-
-        for lim in itertools.product(*cands):
-            lim = np.asarray(lim)
-            inside = np.all(X <= lim + 1e-12, axis=1)
-            if np.any(inside & ~ok):
-                continue
-            k = int(np.sum(inside))
-            if k > best or (k == best and np.all(lim <= box)):
-                best, box = k, lim
+        box = X[ok].max(axis=0)
+        while True:
+            inside = np.all(X <= box + 1e-12, axis=1)
+            bad = np.flatnonzero(inside & ~ok)
+            if bad.size == 0:
+                break
+            best = None
+            for f in bad:
+                for j in range(X.shape[1]):
+                    below = X[ok & inside & (X[:, j] < X[f, j] - 1e-12), j]
+                    cand = box.copy()
+                    cand[j] = below.max() if below.size else -1.0
+                    keep = int(np.sum(np.all(X[ok] <= cand + 1e-12, axis=1)))
+                    if best is None or keep > best[0]:
+                        best = (keep, cand)
+            box = best[1]
+        passed = int(np.sum(np.all(X[ok] <= box + 1e-12, axis=1)))
+    else:
+        box, passed = np.full(X.shape[1], -1.0), 0
     ns = [r["n"] for r in pts]
     out = {f"{k}_max": float(v) for k, v in zip(MEASURES, box)}
     out.update({"n_lo": int(min(ns)), "n_hi": int(max(ns)), "cells": len(pts),
-                "passed": int(max(best, 0)), "failed": int(np.sum(~ok))})
+                "passed": passed, "failed": int(np.sum(~ok))})
     return out
 
 
@@ -185,7 +195,7 @@ def validate_tables(tset, folder: str, dimension: int, names=None, ns=None) -> d
             w = heldout_window(name)
         except (ImportError, AttributeError):     # window kind not available here
             continue
-        for n in (ns or HELDOUT_N[d]):
+        for n in (ns or heldout_ns(name)):
             raw = load_heldout(folder, name, n)
             if raw is None:
                 continue

@@ -90,6 +90,14 @@ def _model_trust(nm: NullMoments, stat, n: int, window, key: str) -> list:
         out.append(f"the window's corners, tips or curvature are too strong for this n "
                    f"(second-order term |B2| sqrt(n) = {m['second_order']:.3g}; the model of "
                    f"'{stat.name}' was validated up to {per['second_order_max']:.3g})")
+    if m["holes"] > per.get("holes_max", np.inf) + 1e-12:
+        out.append(f"the window has {int(m['holes'])} hole(s): each is a loop of the union of "
+                   f"balls in every pattern, and the model of '{stat.name}' was validated on "
+                   f"windows with at most {int(max(per['holes_max'], 0))}")
+    if m["hull_deficit"] > per.get("hull_deficit_max", np.inf) + 1e-12:
+        out.append(f"the window's concavities ({m['hull_deficit']:.0%} of its convex hull) are "
+                   f"deeper than on the held-out windows where the model of '{stat.name}' held "
+                   f"({max(per['hull_deficit_max'], 0):.0%})")
     if m["boundary_share"] > per["boundary_share_max"] + 1e-12:
         out.append(f"{m['boundary_share']:.1%} of the window lies within one mean spacing of its "
                    f"boundary (the model of '{stat.name}' was validated up to "

@@ -39,7 +39,11 @@ Trust measures (``lookup.asymptotic``):
         a constant per statistic): corners, acute tips, curvature, holes;
     narrow_share = share of the window in parts narrower than
         ``NARROW_WIDTH`` mean spacings (1 - |opening of W by a ball of
-        radius NARROW_WIDTH / 2| / |W|).
+        radius NARROW_WIDTH / 2| / |W|);
+    holes = number of holes of the window (a hole is a loop of the union of
+        balls in every pattern, no local boundary term);
+    hull_deficit = 1 - |W| / |convex hull of W|
+        concavities whose mouths close before they fill make loops too.
 """
 from __future__ import annotations
 
@@ -48,7 +52,7 @@ import numpy as np
 __all__ = ["DEPTH", "NARROW_WIDTH", "MEASURES", "covariates", "grid_depths", "trust_measures", "COVARIATES"]
 
 #: The trust measures, in the order of the validated range.
-MEASURES = ("boundary_share", "second_order", "narrow_share")
+MEASURES = ("boundary_share", "second_order", "narrow_share", "holes", "hull_deficit")
 
 #: Depth h (mean spacings) of the band behind the second-order term B2.
 DEPTH = 1.0
@@ -107,15 +111,29 @@ def trust_measures(window, n: int) -> dict:
     s = _scale(window, int(n))
     cov = covariates(window, n)
     if getattr(window, "periodic", False) or float(window.boundary_measure) == 0.0:
-        return {"boundary_share": 0.0, "second_order": 0.0, "narrow_share": 0.0, "B1": 0.0,
-                "B2": 0.0}
+        return {"boundary_share": 0.0, "second_order": 0.0, "narrow_share": 0.0, "holes": 0.0,
+                "hull_deficit": 0.0, "B1": 0.0, "B2": 0.0}
     share = 1.0 - float(_inner_fraction(window, 1.0 / s)[0])
     narrow = 0.0
     fn = getattr(window, "narrow_share", None)
     if fn is not None:
         narrow = float(fn(NARROW_WIDTH / s))
     return {"boundary_share": float(share), "second_order": float(abs(cov[2]) * np.sqrt(n)),
-            "narrow_share": float(max(narrow, 0.0)), "B1": float(cov[1]), "B2": float(cov[2])}
+            "narrow_share": float(max(narrow, 0.0)), "holes": float(getattr(window, "holes", 0)),
+            "hull_deficit": hull_deficit(window), "B1": float(cov[1]), "B2": float(cov[2])}
+
+
+def hull_deficit(window) -> float:
+    """1 - |W| / |convex hull of W| (0 for convex windows)."""
+    if getattr(window, "convex", True) and not getattr(window, "holes", 0):
+        return 0.0
+    geom = getattr(window, "geometry", None)
+    if geom is not None:
+        return float(max(0.0, 1.0 - geom.area / geom.convex_hull.area))
+    fn = getattr(window, "hull_measure", None)
+    if fn is not None:
+        return float(max(0.0, 1.0 - float(window.measure) / float(fn())))
+    return 0.0
 
 
 def describe_narrow(width_spacings: float = NARROW_WIDTH) -> str:

@@ -118,6 +118,8 @@ SHAPES = {
     "box122": (3, lambda: _box(np.array([1.0, 2.0, 2.0]) / 4.0 ** (1.0 / 3.0)),
                "box with sides 1:2:2"),
     "cyl1": (3, lambda: _cylinder(1.0), "cylinder with height = diameter"),
+    "torus2": (2, lambda: _torus(2), "periodic square (a flat torus: no boundary)"),
+    "torus3": (3, lambda: _torus(3), "periodic cube (a flat 3-torus: no boundary)"),
 }
 
 #: Names of the rectangle and box shapes (matched by the sorted aspect of the sides).
@@ -168,6 +170,14 @@ def _poly_normalise(w: W.PolygonWindow) -> W.Window:
     return W.PolygonWindow(shapely.normalize(g)), best[0]
 
 
+def _torus(d: int, sides=None):
+    from .periodic import PeriodicBox
+
+    s = np.ones(d) if sides is None else np.asarray(sides, float)
+    s = s / np.prod(s) ** (1.0 / d)
+    return PeriodicBox(*(-s / 2), *(s / 2))
+
+
 def normalise(window: W.Window, allow_estimated: bool = False) -> tuple[str, W.Window]:
     """Name and unit-content representative of a user's window.
 
@@ -184,6 +194,12 @@ def normalise(window: W.Window, allow_estimated: bool = False) -> tuple[str, W.W
     if window.estimated and not allow_estimated:
         raise WindowError("a table cannot be built for a window estimated from the data "
                           "(bbox/hull); give the window explicitly")
+    if getattr(window, "periodic", False):
+        sides = np.sort(np.asarray(window.sides, float))
+        rounded = np.round(sides / sides[0], 6)
+        if np.all(rounded == 1.0):
+            return f"torus{window.dim}", _torus(window.dim)
+        return "torus-" + "x".join(f"{v:g}" for v in rounded), _torus(window.dim, sides)
     if isinstance(window, W.PolygonWindow):
         sides = _polygon_rectangle(window)
         if sides is not None:

@@ -21,7 +21,7 @@ FOLDER = os.path.join(os.path.dirname(HERE), "tables", "heldout.parts")
 
 
 def main(argv=None) -> int:
-    from nullatlas.calibrate.heldout import HELDOUT, HELDOUT_N, simulate_heldout
+    from nullatlas.calibrate.heldout import HELDOUT, heldout_ns, simulate_heldout
 
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     ap.add_argument("--window", default=None, help="comma-separated names (default: all)")
@@ -36,7 +36,7 @@ def main(argv=None) -> int:
         d = HELDOUT[name][0]
         if a.dim and d != a.dim:
             continue
-        ns = [int(x) for x in a.n.split(",")] if a.n else HELDOUT_N[d]
+        ns = [int(x) for x in a.n.split(",")] if a.n else heldout_ns(name)
         for n in ns:
             t0 = time.time()
             simulate_heldout(a.folder, name, n, a.reps, jobs=a.jobs, progress=False)
