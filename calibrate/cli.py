@@ -167,7 +167,7 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def _targets(a):
-    from nullatlas.lookup.windows import parse_window
+    from nullatlas.lookup.patterns.windows import parse_window
 
     from . import shapes
 
@@ -240,7 +240,7 @@ def _cmd_extend(a):
 
 
 def _cmd_check(a):
-    from nullatlas.lookup.windows import parse_window
+    from nullatlas.lookup.patterns.windows import parse_window
 
     from . import check, shapes
 
@@ -301,7 +301,7 @@ def _print_check(s, out=None):
 
 
 def _cmd_power(a):
-    from nullatlas.lookup.windows import parse_window
+    from nullatlas.lookup.patterns.windows import parse_window
 
     from . import power, shapes
 

@@ -6,14 +6,15 @@ import warnings
 
 import numpy as np
 
-from . import montecarlo, nulls
 from .errors import OptionError
-from .readers import read_points
+from .inference import montecarlo
+from .patterns.readers import read_points
+from .patterns.validate import validate_pattern
+from .patterns.windows import Window, parse_window
+from .persistence.diagram import ENGINES
+from .processes.csr import replicate_seeds
 from .results import CSRTestResult
-from .diagram import ENGINES
-from .statistics import PatternSummary, evaluate, resolve_stats
-from .validate import validate_pattern
-from .windows import Window, parse_window
+from .summaries.statistics import PatternSummary, evaluate, resolve_stats
 
 __all__ = ["csr_test", "METHODS", "ALTERNATIVES"]
 
@@ -77,14 +78,14 @@ def csr_test(points, window, stats=None, *, method="auto", n_sims=999, seed=None
         Progress bar on standard error (None: only on a terminal).
     engine : {"fast", "gudhi"}
         Persistence engine: our exact kernels (default) or gudhi's generic
-        path, the reference (see :func:`lookup.diagram.alpha_diagram`).
+        path, the reference (see :func:`lookup.persistence.diagram.alpha_diagram`).
     tables : list of str, optional
         Your own null tables (``nullatlas-calibrate build``); they take
         precedence over the shipped ones for their windows.
     use_shipped : bool
         Also consult the shipped tables (default True).
     null : str
-        The null model: ``"csr"`` (default), or a model of ``lookup.models``
+        The null model: ``"csr"`` (default), or a model of ``lookup.processes.registry``
         (e.g. ``"thomas:parents=0.05,sigma=0.3"``) conditioned on n, simulated
         on the Monte Carlo route (the tables are for CSR only).
 
@@ -101,7 +102,7 @@ def csr_test(points, window, stats=None, *, method="auto", n_sims=999, seed=None
     """
     t0 = time.perf_counter()
     _check_options(method, n_sims, jobs, alternative, alpha, engine)
-    from .models import describe, parse_model
+    from .processes.registry import describe, parse_model
     model = parse_model(null)
     if model[0] != "csr":
         if method == "asymptotic":
@@ -131,11 +132,11 @@ def csr_test(points, window, stats=None, *, method="auto", n_sims=999, seed=None
     observed = evaluate(summary, chosen)
     results = [None] * len(chosen)
     if method in ("auto", "asymptotic"):
-        from .asymptotic import asymptotic_result, verdict
-        from .nullmoments import TableSet, default_tables, null_moments
+        from .inference.asymptotic import asymptotic_result, verdict
+        from .inference.nullmoments import TableSet, default_tables, null_moments
 
         if tables:
-            from .tablereader import open_table
+            from .inference.tablereader import open_table
             for tp in tables:              # a table given explicitly must fit the data
                 open_table(tp, dimension=pts.shape[1])
         tset = TableSet(tables or (), use_shipped) if (tables or not use_shipped) \
@@ -155,7 +156,7 @@ def csr_test(points, window, stats=None, *, method="auto", n_sims=999, seed=None
                               "Monte Carlo used instead")
     todo = [st for st, r in zip(chosen, results) if r is None]
     if todo:
-        seeds = nulls.replicate_seeds(sim_seed, int(n_sims))
+        seeds = replicate_seeds(sim_seed, int(n_sims))
         sims = montecarlo.simulate_null(window, n, todo, seeds, jobs=int(jobs), progress=progress,
                                         engine=engine, model=None if model[0] == "csr" else model)
         mc = montecarlo.mc_results(observed, sims, todo, alternative=alternative, alpha=alpha)

@@ -110,7 +110,7 @@ class CSRTestResult:
         Method requested: "auto", "asymptotic" or "mc" (each result's
         ``method`` says how its p-value was obtained).
     null : str
-        The null model ("csr", or a model of ``lookup.models``).
+        The null model ("csr", or a model of ``lookup.processes.registry``).
     """
 
     results: list

@@ -3,7 +3,7 @@
 Three routes, tried in this order (the result says which one was used):
 
 ``cell``
-    The table has a cell of this window's shape (``lookup.shapes.normalise``)
+    The table has a cell of this window's shape (``lookup.patterns.shapes.normalise``)
     and this n: its moments as stored.
 ``interpolated``
     The shape is calibrated and n lies between two of its cells n1 < n < n2:
@@ -29,9 +29,9 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .errors import TableError
-from .shapes import normalise
-from .statistics import STATISTICS
+from ..errors import TableError
+from ..patterns.shapes import normalise
+from ..summaries.statistics import STATISTICS
 from .tablereader import open_table, read_m2, shipped_tables
 
 __all__ = ["NullMoments", "TableSet", "null_moments", "default_tables"]
@@ -180,7 +180,7 @@ def default_tables() -> TableSet:
 
 @functools.lru_cache(maxsize=256)
 def _shape_by_spec(spec: str):
-    from .windows import parse_window
+    from ..patterns.windows import parse_window
 
     return normalise(parse_window(spec))[0]
 

@@ -23,7 +23,7 @@ import warnings
 
 import numpy as np
 
-from .errors import WindowError
+from ..errors import WindowError
 
 __all__ = [
     "Window", "Rectangle", "Disk", "PolygonWindow", "Box", "Ball",
@@ -387,7 +387,8 @@ class ConvexPolytope(Window):
         try:
             self._hull = ConvexHull(v)
         except (QhullError, ValueError) as exc:
-            raise WindowError(f"cannot build a 3D convex hull: points are flat or too few ({exc.__class__.__name__})") from None
+            raise WindowError("cannot build a 3D convex hull: points are flat or too few "
+                              f"({exc.__class__.__name__})") from None
         # Facet equations n.x + b <= 0 inside, |n| = 1.
         self._eq = self._hull.equations
         self.vertices = v[self._hull.vertices]

@@ -34,8 +34,8 @@ import math
 
 import numpy as np
 
+from ..errors import OptionError, WindowError
 from . import windows as W
-from .errors import OptionError, WindowError
 
 __all__ = ["SHAPES", "SHIPPED", "shape_window", "normalise", "shape_dimension"]
 

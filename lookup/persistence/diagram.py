@@ -15,8 +15,8 @@ nothing to any summary computed here.
 Two engines compute the same diagram:
 
 ``fast`` (default)
-    Our exact kernels: ``lookup.alpha2d`` (all of H0 and H1 in 2D) and
-    ``lookup.alpha3d`` (H0, H2, Betti and Euler curves and total H1
+    Our exact kernels: ``lookup.persistence.alpha2d`` (all of H0 and H1 in 2D) and
+    ``lookup.persistence.alpha3d`` (H0, H2, Betti and Euler curves and total H1
     persistence in 3D; the H1 pairs themselves, needed only by pair-level
     summaries of loops in 3D, are computed by gudhi on first use).  Values are
     exactly rounded, so ties in lattices stay ties.
@@ -96,7 +96,7 @@ class Diagram:
 
 
 class FastDiagram3D(Diagram):
-    """3D diagram from ``lookup.alpha3d``: H0 and H2 pairs, the Betti-1 curve
+    """3D diagram from ``lookup.persistence.alpha3d``: H0 and H2 pairs, the Betti-1 curve
     from chi = b0 - b1 + b2 and the total H1 persistence from the filtration;
     the H1 pairs are computed (by gudhi) only when asked for."""
 

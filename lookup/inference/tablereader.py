@@ -38,7 +38,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .errors import TableError
+from ..errors import TableError
 
 __all__ = ["SCHEMA", "SCHEMA_VERSION", "TableInfo", "CellInfo", "open_table", "load_cell",
            "load_model", "load_holdout", "shipped_tables", "read_m2",

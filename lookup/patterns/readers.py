@@ -18,7 +18,7 @@ import re
 
 import numpy as np
 
-from .errors import PointsError
+from ..errors import PointsError
 
 __all__ = ["read_points", "parse_columns"]
 
@@ -116,7 +116,8 @@ def _read_text(path: str, columns) -> np.ndarray:
         for (lineno, _), toks in zip(lines, rows):
             for j, t in enumerate(toks):
                 if not _is_number(t):
-                    raise PointsError(f"{path}, line {lineno}, column {j + 1}: '{t[:40]}' is not a number") from None
+                    raise PointsError(f"{path}, line {lineno}, column {j + 1}: "
+                                      f"'{t[:40]}' is not a number") from None
         raise PointsError(f"{path}: cannot parse numbers") from None
     arr = arr.reshape(len(rows), ncol)
     out = _select(arr, names, columns, path)
@@ -181,7 +182,8 @@ def read_points(source, columns=None) -> np.ndarray:
         try:
             arr = np.load(path, allow_pickle=False)
         except Exception as exc:
-            raise PointsError(f"{path}: not a readable .npy array ({str(exc).splitlines()[0][:80]})") from None
+            raise PointsError(f"{path}: not a readable .npy array "
+                              f"({str(exc).splitlines()[0][:80]})") from None
         return _read_array(arr, path, columns)
     return _read_text(path, columns)
 
