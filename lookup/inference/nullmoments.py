@@ -70,6 +70,16 @@ class NullMoments:
     approximate : str
         Non-empty when the route is an approximation beyond the model
         (extremes of an uncalibrated shape).
+
+    Examples
+    --------
+    >>> import nullatlas
+    >>> from nullatlas.lookup.inference.nullmoments import default_tables, null_moments
+    >>> nm = null_moments(default_tables(), nullatlas.Disk(0, 0, 150), 500, "euler")
+    >>> nm.kind, nm.mean.shape, nm.cov.shape, nm.sd.shape
+    ('curve', (60,), (60, 60), (60,))
+    >>> bool(nm.usable.any()), nm.replicates >= 2000
+    (True, True)
     """
 
     stat: str
@@ -158,7 +168,27 @@ class _Table:
 
 
 class TableSet:
-    """The tables consulted by the runtime: user tables first, then the shipped ones."""
+    """The tables consulted by the runtime: user tables first, then the shipped ones.
+
+    Parameters
+    ----------
+    paths : sequence of str
+        Your own tables (``nullatlas-calibrate build``), consulted first.
+    use_shipped : bool
+        Also consult the shipped tables (after ``paths``).
+
+    Examples
+    --------
+    >>> import os
+    >>> from nullatlas.lookup.inference.nullmoments import TableSet
+    >>> tables = TableSet()
+    >>> [os.path.basename(t.path) for t in tables.tables]
+    ['null2d.h5', 'null3d.h5']
+    >>> [os.path.basename(t.path) for t in tables.for_dimension(3)]
+    ['null3d.h5']
+    >>> TableSet(use_shipped=False).tables
+    []
+    """
 
     def __init__(self, paths=(), use_shipped: bool = True):
         self.tables = [_Table(p) for p in paths]
@@ -174,7 +204,14 @@ class TableSet:
 
 @functools.lru_cache(maxsize=1)
 def default_tables() -> TableSet:
-    """The shipped tables (opened once per process)."""
+    """The shipped tables (opened once per process).
+
+    Examples
+    --------
+    >>> from nullatlas.lookup.inference.nullmoments import default_tables
+    >>> default_tables() is default_tables()
+    True
+    """
     return TableSet()
 
 
@@ -287,10 +324,54 @@ def _model_moments(t: _Table, stat: str, n: int, kappa: float, d: int, near: lis
 
 
 def null_moments(tables: TableSet, window, n: int, stat: str) -> NullMoments | None:
-    """Null moments of ``stat`` for ``n`` points in ``window``; None when no
-    table of the window's dimension has the statistic.
+    """Null moments of ``stat`` for ``n`` points in ``window``.
 
-    Raises TableError only for damaged tables."""
+    Parameters
+    ----------
+    tables : TableSet
+        The tables to consult, in order (e.g. :func:`default_tables`).
+    window : Window
+        The observation window; its shape decides the route (module doc).
+    n : int
+        Number of points.
+    stat : str
+        A statistic name of ``lookup.summaries.statistics.STATISTICS``.
+
+    Returns
+    -------
+    NullMoments or None
+        None when no table of the window's dimension has the statistic.
+
+    Raises
+    ------
+    TableError
+        Only for damaged tables.
+
+    Examples
+    --------
+    A calibrated shape (every disk) at a tabulated n reads one cell; between
+    two cells the moments are interpolated in n^(-1/d):
+
+    >>> import numpy as np
+    >>> import nullatlas
+    >>> from nullatlas.lookup.inference.nullmoments import default_tables, null_moments
+    >>> wafer = nullatlas.Disk(0, 0, 150)
+    >>> nm = null_moments(default_tables(), wafer, 500, "nnmean")
+    >>> nm.route, nm.shape, nm.cells
+    ('cell', 'disk', ['disk-n00000500'])
+    >>> np.round(nm.mean, 2), np.round(nm.sd, 2)
+    (array([0.51]), array([0.01]))
+    >>> nm = null_moments(default_tables(), wafer, 700, "nnmean")
+    >>> nm.route, nm.cells
+    ('interpolated', ['disk-n00000500', 'disk-n00001000'])
+
+    A rectangle of aspect 3 is not a calibrated shape: the finite-window
+    model in (n, kappa) gives the moments:
+
+    >>> nm = null_moments(default_tables(), nullatlas.Rectangle(0, 0, 3, 1), 700, "nnmean")
+    >>> nm.route, nm.shape
+    ('model', None)
+    """
     st = STATISTICS[stat]
     d = window.dim
     for t in tables.for_dimension(d):

@@ -57,9 +57,31 @@ def validate_pattern(points, window, on_duplicates="error", rng=None):
         Used by ``jitter`` (default: a generator seeded with 0, so the
         result is reproducible).
 
+    Returns
+    -------
+    points : ndarray, shape (m, d)
+        The points to test (duplicates dropped or jittered as asked).
+    report : ValidationReport
+        What was done.
+
     Raises
     ------
     PointsError, WindowError
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from nullatlas import Rectangle, validate_pattern
+    >>> w = Rectangle(0, 0, 10, 10)
+    >>> pts = w.sample(50, np.random.default_rng(0))
+    >>> twice = np.vstack([pts, pts[:2]])
+    >>> kept, report = validate_pattern(twice, w, on_duplicates="drop")
+    >>> kept.shape, report.n_duplicates
+    ((50, 2), 2)
+    >>> validate_pattern(pts + 20, w)
+    Traceback (most recent call last):
+    ...
+    nullatlas.lookup.errors.PointsError: 50 of 50 points lie outside the window; first is point 0 at (...)
     """
     if on_duplicates not in DUPLICATE_POLICIES:
         raise PointsError(f"--on-duplicates must be one of {', '.join(DUPLICATE_POLICIES)}, "

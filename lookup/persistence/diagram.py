@@ -60,6 +60,17 @@ class Diagram:
         Dimension of the ambient space.
     scale : float
         (n / |W|)^(1/d); radii are ``pairs / scale``.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from nullatlas.lookup import Diagram
+    >>> dg = Diagram(pairs=[np.array([[0.0, np.inf], [0.0, 1.0]]), np.array([[1.0, 1.5]])],
+    ...              n=2, dim=2)
+    >>> dg.finite(0), dg.total_lifetime(1), dg.max_dim
+    (array([[0., 1.]]), 0.5, 1)
+    >>> dg.betti_counts(1, np.array([0.5, 1.2, 1.5]))
+    array([0, 1, 0])
     """
 
     pairs: list
@@ -162,6 +173,32 @@ def alpha_diagram(points: np.ndarray, measure: float | None = None,
     -------
     Diagram
         H0..H(d-1), radius units scaled to normalised radius.
+
+    Examples
+    --------
+    The four corners of a square of side 2: three components merge at
+    radius 1 (half a side), and the loop they close is filled at sqrt(2),
+    the circumradius of the triangles:
+
+    >>> import numpy as np
+    >>> from nullatlas.lookup import alpha_diagram
+    >>> square = np.array([[0.0, 0.0], [2.0, 0.0], [2.0, 2.0], [0.0, 2.0]])
+    >>> dg = alpha_diagram(square)
+    >>> dg.pairs[0]
+    array([[ 0.,  1.],
+           [ 0.,  1.],
+           [ 0.,  1.],
+           [ 0., inf]])
+    >>> dg.pairs[1]
+    array([[1.        , 1.41421356]])
+    >>> alpha_diagram(square, engine="gudhi").pairs[1]
+    array([[1.        , 1.41421356]])
+
+    With the window's area the radii are normalised, rho = r (n / |W|)^(1/d):
+
+    >>> dg = alpha_diagram(square, measure=16.0)
+    >>> dg.scale, dg.pairs[1]
+    (0.5, array([[0.5       , 0.70710678]]))
     """
     if engine not in ENGINES:
         raise ValueError(f"engine must be one of {ENGINES}")
