@@ -13,9 +13,9 @@ from __future__ import annotations
 import numpy as np
 from scipy import stats as _st
 
-from nullatlas.lookup import globaltests as gt
-from nullatlas.lookup.extremes import GumbelTail
-from nullatlas.lookup.statistics import STATISTICS
+from nullatlas.lookup.inference import globaltests as gt
+from nullatlas.lookup.inference.extremes import GumbelTail
+from nullatlas.lookup.summaries.statistics import STATISTICS
 
 from .moments import Moments
 
@@ -112,14 +112,14 @@ def audit_cell(kind: str, x: np.ndarray, rng: np.random.Generator, n: int = 0,
     two-sided test at alpha, for alpha in ALPHAS.
 
     Extremes: the runtime's test, the other fold's values as the empirical
-    null with a Gumbel tail (``lookup.extremes.GumbelTail``): its upper-tail
+    null with a Gumbel tail (``lookup.inference.extremes.GumbelTail``): its upper-tail
     rejection rate at ALPHAS; KS distances of z to N(0, 1) and of the
     Gumbel probability transform (Gumbel fitted to the other fold) to U(0, 1).
 
     Curves: pointwise tail rates at 0.05 per grid point and the sizes at
     ALPHAS of the global max |z| test (critical values from GAUSS_SIMS
     Gaussian vectors with the other fold's correlation) and of the
-    regularised Mahalanobis test (``lookup.globaltests``), both over the
+    regularised Mahalanobis test (``lookup.inference.globaltests``), both over the
     grid points usable in the other fold (``usable_coordinates``, with the
     cell's ``n``; ``count_based`` for Betti curves).  No usable grid point:
     no global rates (the global test is never trusted there).

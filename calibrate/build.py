@@ -21,15 +21,22 @@ import time
 
 import numpy as np
 
-from nullatlas.lookup import grids
 from nullatlas.lookup.errors import OptionError
-from nullatlas.lookup.statistics import STATISTICS, resolve_stats
-from nullatlas.lookup.tablereader import load_cell, open_table
+from nullatlas.lookup.inference.tablereader import load_cell, open_table
+from nullatlas.lookup.summaries import grids
+from nullatlas.lookup.summaries.statistics import STATISTICS, resolve_stats
 
 from . import assemble as asm
-from .model import (MODEL_TOL_SD, cell_covariates, fit_extreme_geomodel_robust, fit_geomodel_robust,
-                    fit_model,
-                    holdout_errors, holdout_sd_errors, model_n_ok)
+from .model import (
+    MODEL_TOL_SD,
+    cell_covariates,
+    fit_extreme_geomodel_robust,
+    fit_geomodel_robust,
+    fit_model,
+    holdout_errors,
+    holdout_sd_errors,
+    model_n_ok,
+)
 from .moments import Moments
 from .nmin import n_min_table
 from .plan import DEFAULT_STATS, CellPlan, chunk_seed, chunk_size_for
@@ -44,7 +51,7 @@ _AUDIT_INDEX = 1_000_000_000   # chunk index reserved for the audit's Gaussian v
 
 
 def table_grids() -> dict:
-    """The grids stored with every table (``lookup.grids``, audit levels)."""
+    """The grids stored with every table (``lookup.summaries.grids``, audit levels)."""
     return {"rho": grids.RHO, "apf_age": grids.APF_AGE, "nn_rho": grids.NN_RHO,
             "l_rho": grids.L_RHO, "pbetti_pairs": grids.PBETTI_PAIRS,
             "silhouette_t": grids.SILHOUETTE_T, "quantile_levels": asm.QUANTILE_LEVELS,
@@ -105,7 +112,7 @@ def _merge_item(old: dict, new: dict, n: int) -> dict:
     if "expected_count" in new:
         item["expected_count"] = n * m.mean
     if "usable" in new:
-        from nullatlas.lookup.globaltests import usable_coordinates
+        from nullatlas.lookup.inference.globaltests import usable_coordinates
         item["usable"] = usable_coordinates(m.mean, m.sd, m.skewness, n,
                                             "expected_count" in new).astype(np.int8)
     ao, an = old.get("audit", {}), new.get("audit", {})
@@ -206,7 +213,7 @@ def fit_geomodels(records: list, stat_names, dimension: int, n_fit: int = GEO_N_
     """The geometric finite-window model of every statistic (``calibrate.model``):
     additive statistics by :func:`fit_geomodel_robust`, extremes by
     :func:`fit_extreme_geomodel_robust`; statistics that cannot be fitted are left out."""
-    from nullatlas.lookup.boundary import grid_depths
+    from nullatlas.lookup.patterns.boundary import grid_depths
 
     out = {}
     for stat in stat_names:
@@ -357,7 +364,7 @@ def extend_table(path, reps: int, *, targets: list | None = None, ns: list | Non
     dim = info.dimension
     by = {(r["shape"], r["n"]): r for r in records}
     if targets is None:
-        from nullatlas.lookup.windows import parse_window
+        from nullatlas.lookup.patterns.windows import parse_window
         groups = {}
         for r in records:
             groups.setdefault(r["shape"], (parse_window(r["spec"]), []))[1].append(r["n"])

@@ -23,11 +23,11 @@ import math
 import numpy as np
 from scipy import stats as _st
 
-from nullatlas.lookup.asymptotic import asymptotic_result, verdict
 from nullatlas.lookup.errors import OptionError
-from nullatlas.lookup.montecarlo import _alternative_for, simulate_null
-from nullatlas.lookup.nullmoments import TableSet, default_tables, null_moments
-from nullatlas.lookup.statistics import resolve_stats
+from nullatlas.lookup.inference.asymptotic import asymptotic_result, verdict
+from nullatlas.lookup.inference.montecarlo import _alternative_for, simulate_null
+from nullatlas.lookup.inference.nullmoments import TableSet, default_tables, null_moments
+from nullatlas.lookup.summaries.statistics import resolve_stats
 
 __all__ = ["ALPHAS", "wilson", "check_window", "CHECK_SEED"]
 

@@ -186,7 +186,7 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def _targets(a):
-    from nullatlas.lookup.windows import parse_window
+    from nullatlas.lookup.patterns.windows import parse_window
 
     from . import shapes
 
@@ -259,7 +259,7 @@ def _cmd_extend(a):
 
 
 def _cmd_check(a):
-    from nullatlas.lookup.windows import parse_window
+    from nullatlas.lookup.patterns.windows import parse_window
 
     from . import check, shapes
 
@@ -320,7 +320,7 @@ def _print_check(s, out=None):
 
 
 def _cmd_power(a):
-    from nullatlas.lookup.windows import parse_window
+    from nullatlas.lookup.patterns.windows import parse_window
 
     from . import power, shapes
 
@@ -376,8 +376,8 @@ def _cmd_fit(a):
 def _cmd_validate(a):
     import os
 
-    from nullatlas.lookup.nullmoments import TableSet
-    from nullatlas.lookup.tablereader import open_table
+    from nullatlas.lookup.inference.nullmoments import TableSet
+    from nullatlas.lookup.inference.tablereader import open_table
 
     from . import build
     from .heldout import HELDOUT, heldout_ns, simulate_heldout

@@ -21,7 +21,7 @@ import os
 import numpy as np
 
 from nullatlas.lookup.atomic import atomic_path
-from nullatlas.lookup.statistics import resolve_stats
+from nullatlas.lookup.summaries.statistics import resolve_stats
 
 __all__ = ["HELDOUT", "heldout_window", "HELDOUT_SEED", "HELDOUT_N", "HELDOUT_N_PERIODIC",
            "heldout_ns", "simulate_heldout",
@@ -44,7 +44,7 @@ def heldout_ns(name: str) -> list:
 
 
 def _poly(geom):
-    from nullatlas.lookup.windows import PolygonWindow
+    from nullatlas.lookup.patterns.windows import PolygonWindow
 
     return PolygonWindow(geom)
 
@@ -95,7 +95,7 @@ def _plate_holes():
 
 
 def _rect16():
-    from nullatlas.lookup.windows import Rectangle
+    from nullatlas.lookup.patterns.windows import Rectangle
     return Rectangle(0, 0, 16, 1)
 
 
@@ -124,22 +124,22 @@ def _blob():
 
 
 def _box(a, b, c):
-    from nullatlas.lookup.windows import Box
+    from nullatlas.lookup.patterns.windows import Box
     return Box(0, 0, 0, a, b, c)
 
 
 def _ball():
-    from nullatlas.lookup.windows import Ball
+    from nullatlas.lookup.patterns.windows import Ball
     return Ball(0, 0, 0, 1.0)
 
 
 def _cylinder_long():
-    from nullatlas.lookup.windows import Cylinder
+    from nullatlas.lookup.patterns.windows import Cylinder
     return Cylinder(0.0, 0.0, 0.0, 6.0, 0.5)
 
 
 def _torus(d):
-    from nullatlas.lookup.periodic import PeriodicBox
+    from nullatlas.lookup.patterns.periodic import PeriodicBox
     return PeriodicBox(*([0.0] * d + [1.0] * d))
 
 
@@ -180,7 +180,7 @@ def simulate_heldout(folder: str, name: str, n: int, reps: int, jobs: int = 1,
     import h5py
 
     from nullatlas.calibrate.plan import DEFAULT_STATS
-    from nullatlas.lookup.montecarlo import simulate_null
+    from nullatlas.lookup.inference.montecarlo import simulate_null
 
     os.makedirs(folder, exist_ok=True)
     path = _cell_path(folder, name, n)

@@ -187,9 +187,9 @@ def model_n_ok(ns, err_sd: np.ndarray, tol: float = MODEL_TOL_SD) -> int:
 # --------------------------------------------------------------------------
 
 def cell_covariates(spec: str, n: int, depth=1.0) -> np.ndarray:
-    """Covariates [1, B1, B2, B3] (``lookup.boundary``) of a table cell,
+    """Covariates [1, B1, B2, B3] (``lookup.patterns.boundary``) of a table cell,
     from its window specification and n, at the band depth(s) ``depth``."""
-    from nullatlas.lookup.boundary import covariates
+    from nullatlas.lookup.patterns.boundary import covariates
 
     return covariates(_window_of(spec), int(n), depth)
 
@@ -198,7 +198,7 @@ _WINDOWS: dict = {}
 
 
 def _window_of(spec: str):
-    from nullatlas.lookup.windows import parse_window
+    from nullatlas.lookup.patterns.windows import parse_window
 
     w = _WINDOWS.get(spec)
     if w is None:
@@ -210,7 +210,7 @@ def fit_geomodel(cells: list[dict], d: int, n_fit: int = 100) -> Fit:
     """Fit E[S] = mu + c1 B1 + c2 B2 + c3 B3 and the same form for n Var[S]
     per grid point (weighted least squares as :func:`fit_model`), over the
     cells with n >= ``n_fit``.  Each cell dict needs ``cov`` (the covariates
-    of ``lookup.boundary.covariates``) besides the keys of :func:`fit_model`."""
+    of ``lookup.patterns.boundary.covariates``) besides the keys of :func:`fit_model`."""
     use = [c for c in cells if c["n"] >= n_fit and c["count"] > 2]
     if len(use) < 6:
         raise ValueError(f"the geometric model needs at least 6 cells with n >= {n_fit}, "

@@ -10,8 +10,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from nullatlas.lookup.inference.tablereader import load_cell, load_holdout, load_model, open_table
 from nullatlas.lookup.plots import check_plot_path, save_figure
-from nullatlas.lookup.tablereader import load_cell, load_holdout, load_model, open_table
 
 __all__ = ["plot_model"]
 

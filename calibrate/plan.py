@@ -25,7 +25,7 @@ __all__ = ["CellPlan", "chunk_size_for", "cell_name", "cell_seed", "chunk_seed",
 
 #: Statistics stored in tables, per dimension.  3D leaves out statistics
 #: that need the H1 pairs themselves (computed by gudhi, see
-#: ``lookup.statistics.Statistic.needs_h1_pairs``): too slow to tabulate.
+#: ``lookup.summaries.statistics.Statistic.needs_h1_pairs``): too slow to tabulate.
 DEFAULT_STATS = {
     2: ["euler", "betti0", "betti1", "apf0", "apf1", "total0", "total1",
         "maxpers1", "maxratio1", "nnmean", "lfunc", "gfunc"],

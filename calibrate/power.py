@@ -7,7 +7,7 @@ to exactly that count) and the rest CSR, so s = 0 is CSR (power = size) and
 s = 1 is the pure alternative.
 
 Alternatives (``--alt NAME[:key=value,...]``): the models of
-``lookup.models`` (thomas, matern, hardcore, strauss, lattice, voids,
+``lookup.processes.registry`` (thomas, matern, hardcore, strauss, lattice, voids,
 inhom:EXPR), with lengths in normalised units.
 
 Statistics: the instant tests of ``nullatlas test`` (from the tables; an
@@ -25,20 +25,21 @@ import math
 
 import numpy as np
 
-from nullatlas.lookup import nulls, ranks
-from nullatlas.lookup.models import FAMILIES, parse_model, simulate
-from nullatlas.lookup.asymptotic import asymptotic_result, verdict
 from nullatlas.lookup.errors import OptionError
-from nullatlas.lookup.montecarlo import _alternative_for, simulate_null
-from nullatlas.lookup.nullmoments import TableSet, default_tables, null_moments
-from nullatlas.lookup.statistics import STATISTICS, compute, resolve_stats
+from nullatlas.lookup.inference import ranks
+from nullatlas.lookup.inference.asymptotic import asymptotic_result, verdict
+from nullatlas.lookup.inference.montecarlo import _alternative_for, simulate_null
+from nullatlas.lookup.inference.nullmoments import TableSet, default_tables, null_moments
+from nullatlas.lookup.processes.csr import csr
+from nullatlas.lookup.processes.registry import FAMILIES, parse_model, simulate
+from nullatlas.lookup.summaries.statistics import STATISTICS, compute, resolve_stats
 
 from .check import wilson
 
 __all__ = ["FAMILIES", "parse_alternative", "structured", "power_study", "clark_evans_p",
            "POWER_SEED"]
 
-#: Alternatives are the models of ``lookup.models`` (see there).
+#: Alternatives are the models of ``lookup.processes.registry`` (see there).
 parse_alternative = parse_model
 structured = simulate
 
@@ -63,7 +64,7 @@ def _replicate(window, n, name, params, s, stats, seed):
     rng = np.random.default_rng(seed)
     k = int(round(s * n))
     pts = np.concatenate([structured(window, name, params, k, rng, n),
-                          nulls.csr(window, n - k, rng)])
+                          csr(window, n - k, rng)])
     vals = compute(pts, window, stats)
     ce = clark_evans_p(pts, window) if window.dim == 2 else float("nan")
     return vals, ce

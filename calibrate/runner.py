@@ -1,7 +1,7 @@
 """Running the chunks of a calibration: simulation, checkpoints, parallelism.
 
 Each chunk simulates its replicates with exactly the runtime code of
-``lookup`` (``nulls.csr`` and ``statistics.compute`` with the fast engine)
+``lookup`` (``processes.csr.csr`` and ``statistics.compute`` with the fast engine)
 and returns the summary vectors.  The parent process writes every finished
 chunk to a checkpoint file (HDF5, written atomically) in a folder beside the
 output; a killed run started again with the same arguments loads the
@@ -21,8 +21,8 @@ import numpy as np
 
 from nullatlas.lookup.atomic import atomic_path
 from nullatlas.lookup.errors import OptionError
-from nullatlas.lookup.statistics import resolve_stats
-from nullatlas.lookup.windows import parse_window
+from nullatlas.lookup.patterns.windows import parse_window
+from nullatlas.lookup.summaries.statistics import resolve_stats
 
 from .plan import CellPlan, chunk_seed
 
@@ -37,7 +37,7 @@ def simulate_chunk(spec: str, n: int, stat_names: list, root_seed: int, dimensio
     -------
     dict stat name -> float64 array of shape (count, k)
     """
-    from nullatlas.lookup.montecarlo import _chunk
+    from nullatlas.lookup.inference.montecarlo import _chunk
 
     window = parse_window(spec)
     stats = resolve_stats(list(stat_names), dimension)

@@ -1,4 +1,4 @@
-"""Writing null tables (HDF5, schema of ``lookup.tablereader``), atomically.
+"""Writing null tables (HDF5, schema of ``lookup.inference.tablereader``), atomically.
 
 The file is written under a temporary name in the target folder and renamed
 over the target only when complete (``lookup.atomic.atomic_path``): a killed
@@ -13,7 +13,7 @@ from datetime import datetime, timezone
 import numpy as np
 
 from nullatlas.lookup.atomic import atomic_path
-from nullatlas.lookup.tablereader import SCHEMA, SCHEMA_VERSION
+from nullatlas.lookup.inference.tablereader import SCHEMA, SCHEMA_VERSION
 
 from .moments import Moments
 
@@ -55,7 +55,7 @@ def _write_stat(g, sname, item):
         arr = arrays[part]
         if part == "m2" and np.ndim(arr) == 2 and arr.shape[0] > 1:
             # scatter matrices of curves: the upper triangle (row-major, see
-            # lookup.tablereader.unpack_symmetric) in float32 -- ample for a
+            # lookup.inference.tablereader.unpack_symmetric) in float32 -- ample for a
             # covariance and a quarter of the full float64 matrix
             k = arr.shape[0]
             _put(sg, part, np.asarray(arr[np.triu_indices(k)], dtype=np.float32), compress=True)

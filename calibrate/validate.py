@@ -25,7 +25,7 @@ The validated range of a statistic and test (:func:`validated_range`):
 upper bounds on the boundary share (share of the window within one mean
 spacing of the boundary), the second-order share (|B2| sqrt(n): corners,
 tips, curvature), the narrow share (share in parts narrower than
-``lookup.boundary.NARROW_WIDTH`` mean spacings), the number of holes and
+``lookup.patterns.boundary.NARROW_WIDTH`` mean spacings), the number of holes and
 the hull deficit (concavities), such that no failing cell lies inside,
 chosen greedily to hold as many passing cells as possible, and the n range
 of the held-out cells.  The runtime trusts the model route only
@@ -37,11 +37,11 @@ import math
 
 import numpy as np
 
-from nullatlas.lookup.asymptotic import _curve_null, _gumbel, test_key
-from nullatlas.lookup.boundary import MEASURES, trust_measures
-from nullatlas.lookup.globaltests import maxabs_pvalue
-from nullatlas.lookup.nullmoments import null_moments
-from nullatlas.lookup.statistics import STATISTICS
+from nullatlas.lookup.inference.asymptotic import _curve_null, _gumbel, test_key
+from nullatlas.lookup.inference.globaltests import maxabs_pvalue
+from nullatlas.lookup.inference.nullmoments import null_moments
+from nullatlas.lookup.patterns.boundary import MEASURES, trust_measures
+from nullatlas.lookup.summaries.statistics import STATISTICS
 
 from .heldout import HELDOUT, heldout_ns, heldout_window, load_heldout
 
@@ -139,7 +139,7 @@ def score_cell(tset, window, n: int, raw: dict, stats) -> list[dict]:
 def validated_range(rows: list[dict], test: str) -> dict:
     """The validated range of one statistic's ``test`` from its scored
     held-out cells: upper bounds on the trust measures
-    (``lookup.boundary.MEASURES``) such that no failing cell lies inside the
+    (``lookup.patterns.boundary.MEASURES``) such that no failing cell lies inside the
     box they span.  Greedy: start from the box of all passing cells; while a
     failing cell lies inside, lower one bound to just below that cell (the
     largest passing value under it), choosing the cut that keeps the most

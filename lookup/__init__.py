@@ -16,14 +16,14 @@ import importlib
 # Names are imported on first use (PEP 562) so that ``nullatlas --help`` and
 # other light commands start without loading numba, gudhi and scipy.
 _WHERE = {
-    "csr_test": "csrtest", "Diagram": "diagram", "alpha_diagram": "diagram",
+    "csr_test": "csrtest", "Diagram": "persistence.diagram", "alpha_diagram": "persistence.diagram",
     "NullAtlasError": "errors", "OptionError": "errors", "PointsError": "errors",
-    "TableError": "errors", "WindowError": "errors", "read_points": "readers",
-    "CSRTestResult": "results", "StatResult": "results", "STATISTICS": "statistics",
-    "default_stats": "statistics", "validate_pattern": "validate", "Ball": "windows",
-    "Box": "windows", "ConvexPolytope": "windows", "Disk": "windows",
-    "PolygonWindow": "windows", "Rectangle": "windows", "Window": "windows",
-    "parse_window": "windows",
+    "TableError": "errors", "WindowError": "errors", "read_points": "patterns.readers",
+    "CSRTestResult": "results", "StatResult": "results", "STATISTICS": "summaries.statistics",
+    "default_stats": "summaries.statistics", "validate_pattern": "patterns.validate",
+    "Ball": "patterns.windows", "Box": "patterns.windows", "ConvexPolytope": "patterns.windows",
+    "Disk": "patterns.windows", "PolygonWindow": "patterns.windows", "Rectangle": "patterns.windows",
+    "Window": "patterns.windows", "parse_window": "patterns.windows",
 }
 __all__ = list(_WHERE)
 

@@ -14,7 +14,7 @@ the number of workers.  A file that fails (unreadable, bad window, bad
 points) is reported with its one-line error and the others are processed.
 The primary test's p-values are adjusted over the files that produced one:
 Holm (family-wise) and Benjamini–Hochberg (false discovery rate), see
-``lookup.adjust``.
+``lookup.inference.adjust``.
 
 Resuming: with a ``journal`` path every finished row is appended to it (JSON
 lines, flushed and synced) after a header line with the batch's options and
@@ -33,8 +33,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .adjust import benjamini_hochberg, holm
 from .errors import NullAtlasError, OptionError
+from .inference.adjust import benjamini_hochberg, holm
 
 __all__ = ["BatchItem", "BatchResult", "collect_inputs", "read_manifest", "run_batch",
            "POINT_SUFFIXES"]
@@ -144,7 +144,7 @@ def _one(item: BatchItem, opts: dict, seed: int) -> dict:
     import warnings
 
     from .csrtest import csr_test
-    from .readers import parse_columns
+    from .patterns.readers import parse_columns
 
     row = {"file": item.path, "window": item.window, "n": None, "statistic": None, "value": None,
            "p_value": None, "method": None, "trusted": None, "reason": "", "error": "",

@@ -38,7 +38,7 @@ def _float(text):
 
 
 def build_parser() -> argparse.ArgumentParser:
-    from .windowspec import SPEC_HELP
+    from .patterns.windowspec import SPEC_HELP
 
     p = _Parser(prog=PROG, description=(
         "Test whether a 2D or 3D point pattern is consistent with complete spatial "
@@ -57,7 +57,8 @@ def build_parser() -> argparse.ArgumentParser:
     t.add_argument("--stat", action="append", metavar="NAME",
                    help="statistic to test (repeat or comma-separate); the first is the primary "
                    "test, the rest are secondary and unadjusted. Default: euler, then "
-                   "total0,total1[,total2],maxpers1 (2D) or maxpers2 (3D),nnmean,lfunc. See 'nullatlas stats'")
+                   "total0,total1[,total2],maxpers1 (2D) or maxpers2 (3D),nnmean,lfunc. "
+                   "See 'nullatlas stats'")
     t.add_argument("--method", default="auto", choices=["auto", "asymptotic", "mc"],
                    help="how p-values are computed: auto = instant test from the null tables "
                    "where it is trusted, Monte Carlo where it is not (default); asymptotic = "
@@ -199,9 +200,9 @@ def _print_table(res, alpha, out=None):
 
 def _cmd_test(a) -> int:
     from .csrtest import csr_test
+    from .patterns.readers import parse_columns, read_points
+    from .patterns.windows import parse_window
     from .plots import check_plot_path, plot_result
-    from .readers import parse_columns, read_points
-    from .windows import parse_window
 
     if a.sims < 1:
         raise OptionError(f"--sims must be at least 1, got {a.sims}")
@@ -236,7 +237,7 @@ def _cmd_test(a) -> int:
 
 
 def _cmd_stats(a) -> int:
-    from .statistics import STATISTICS
+    from .summaries.statistics import STATISTICS
 
     rows = [{"name": s.name, "kind": s.kind, "dimensions": list(s.dims),
              "under_clustering": {1: "larger", -1: "smaller", None: "unknown"}[s.clustered],
@@ -306,7 +307,7 @@ def _cmd_batch(a) -> int:
 
 
 def _table_summary(path) -> dict:
-    from .tablereader import open_table
+    from .inference.tablereader import open_table
 
     info = open_table(path)
     shapes = {}
@@ -323,7 +324,7 @@ def _table_summary(path) -> dict:
 
 
 def _cmd_tables(a) -> int:
-    from .tablereader import shipped_tables
+    from .inference.tablereader import shipped_tables
 
     files = a.file or list(shipped_tables().values())
     if not files:

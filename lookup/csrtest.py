@@ -6,14 +6,15 @@ import warnings
 
 import numpy as np
 
-from . import montecarlo, nulls
 from .errors import OptionError
-from .readers import read_points
+from .inference import montecarlo
+from .patterns.readers import read_points
+from .patterns.validate import validate_pattern
+from .patterns.windows import Window, as_window
+from .persistence.diagram import ENGINES
+from .processes.csr import replicate_seeds
 from .results import CSRTestResult
-from .diagram import ENGINES
-from .statistics import PatternSummary, evaluate, resolve_stats
-from .validate import validate_pattern
-from .windows import Window, as_window
+from .summaries.statistics import PatternSummary, evaluate, resolve_stats
 
 __all__ = ["csr_test", "METHODS", "ALTERNATIVES"]
 
@@ -48,7 +49,7 @@ def csr_test(points, window, stats=None, *, method="auto", n_sims=999, seed=None
         Coordinates, or a file readable by :func:`read_points`.
     window : Window, shapely Polygon/MultiPolygon, or str
         The observation window, a polygon, or a specification (see
-        :func:`~nullatlas.lookup.windows.parse_window`).
+        :func:`~nullatlas.lookup.patterns.windows.parse_window`).
     stats : list of str, optional
         Statistic names; the first is the primary test.  Default: the Euler
         characteristic curve, then total H0/H1(/H2) persistence, max H1
@@ -78,14 +79,14 @@ def csr_test(points, window, stats=None, *, method="auto", n_sims=999, seed=None
         Progress bar on standard error (None: only on a terminal).
     engine : {"fast", "gudhi"}
         Persistence engine: our exact kernels (default) or gudhi's generic
-        path, the reference (see :func:`lookup.diagram.alpha_diagram`).
+        path, the reference (see :func:`lookup.persistence.diagram.alpha_diagram`).
     tables : list of str, optional
         Your own null tables (``nullatlas-calibrate build``); they take
         precedence over the shipped ones for their windows.
     use_shipped : bool
         Also consult the shipped tables (default True).
     null : str
-        The null model: ``"csr"`` (default), or a model of ``lookup.models``
+        The null model: ``"csr"`` (default), or a model of ``lookup.processes.registry``
         (e.g. ``"thomas:parents=0.05,sigma=0.3"``) conditioned on n, simulated
         on the Monte Carlo route (the tables are for CSR only).
 
@@ -99,10 +100,43 @@ def csr_test(points, window, stats=None, *, method="auto", n_sims=999, seed=None
     ------
     NullAtlasError
         On any bad input (a ``ValueError`` subclass).
+
+    Examples
+    --------
+    A wafer with a cluster of defects on top of uniform ones, tested with the
+    instant tests (null moments from the shipped tables):
+
+    >>> import numpy as np
+    >>> import nullatlas
+    >>> rng = np.random.default_rng(4)
+    >>> wafer = nullatlas.Disk(0, 0, 150)
+    >>> spot = nullatlas.Disk(40, -30, 25)
+    >>> pts = np.vstack([wafer.sample(300, rng), spot.sample(100, rng)])
+    >>> res = nullatlas.csr_test(pts, wafer, method="asymptotic", seed=1)
+    >>> [r.name for r in res.results]
+    ['euler', 'total0', 'total1', 'maxpers1', 'nnmean', 'lfunc']
+    >>> res.primary.method, res.pvalue < 0.001
+    ('asymptotic-maxabs', True)
+
+    The same pattern by Monte Carlo, one statistic, a one-sided alternative
+    and 19 simulations (p-values are multiples of 1/20); the window can also
+    be given by its specification:
+
+    >>> res = nullatlas.csr_test(pts, "disk:0,0,150", stats=["nnmean"], method="mc",
+    ...                          n_sims=19, seed=3, alternative="clustered")
+    >>> res.primary.method, res.primary.n_sims, res.pvalue
+    ('mc-rank', 19, 0.05)
+
+    Uniform points in the same window are not rejected:
+
+    >>> uniform = wafer.sample(400, np.random.default_rng(1))
+    >>> res = nullatlas.csr_test(uniform, wafer, method="asymptotic", seed=1)
+    >>> res.pvalue > 0.05
+    True
     """
     t0 = time.perf_counter()
     _check_options(method, n_sims, jobs, alternative, alpha, engine)
-    from .models import describe, parse_model
+    from .processes.registry import describe, parse_model
     model = parse_model(null)
     if model[0] != "csr":
         if method == "asymptotic":
@@ -132,11 +166,11 @@ def csr_test(points, window, stats=None, *, method="auto", n_sims=999, seed=None
     observed = evaluate(summary, chosen)
     results = [None] * len(chosen)
     if method in ("auto", "asymptotic"):
-        from .asymptotic import asymptotic_result, verdict
-        from .nullmoments import TableSet, default_tables, null_moments
+        from .inference.asymptotic import asymptotic_result, verdict
+        from .inference.nullmoments import TableSet, default_tables, null_moments
 
         if tables:
-            from .tablereader import open_table
+            from .inference.tablereader import open_table
             for tp in tables:              # a table given explicitly must fit the data
                 open_table(tp, dimension=pts.shape[1])
         tset = TableSet(tables or (), use_shipped) if (tables or not use_shipped) \
@@ -156,7 +190,7 @@ def csr_test(points, window, stats=None, *, method="auto", n_sims=999, seed=None
                               "Monte Carlo used instead")
     todo = [st for st, r in zip(chosen, results) if r is None]
     if todo:
-        seeds = nulls.replicate_seeds(sim_seed, int(n_sims))
+        seeds = replicate_seeds(sim_seed, int(n_sims))
         sims = montecarlo.simulate_null(window, n, todo, seeds, jobs=int(jobs), progress=progress,
                                         engine=engine, model=None if model[0] == "csr" else model)
         mc = montecarlo.mc_results(observed, sims, todo, alternative=alternative, alpha=alpha)

@@ -69,7 +69,8 @@ def plot_result(result, path: str, title: str | None = None) -> str:
         # the pointwise (+-1.96) and global 95% bands in the same units
         c = r.curve
         g = np.asarray(c["grid"], float)
-        f = lambda key: np.asarray([np.nan if v is None else v for v in c[key]], float)
+        def f(key):
+            return np.asarray([np.nan if v is None else v for v in c[key]], float)
         mean, sd = f("null_mean"), f("null_sd")
         with np.errstate(invalid="ignore", divide="ignore"):
             z = np.where(sd > 0, (f("observed") - mean) / sd, np.nan)

@@ -53,6 +53,25 @@ class StatResult:
     details : dict or None
         Method-specific extras: for instant tests the table route and cells,
         n_min, and for curves the Mahalanobis variant's statistic and p-value.
+
+    Examples
+    --------
+    ``csr_test`` makes these; ``as_dict`` gives their JSON form, with
+    non-finite numbers as ``None``:
+
+    >>> import json
+    >>> import numpy as np
+    >>> from nullatlas import StatResult
+    >>> r = StatResult(name="nnmean", kind="scalar", statistic=0.49, pvalue=0.03,
+    ...                observed=0.49, null_mean=0.51, null_sd=0.009, z=-2.2,
+    ...                method="mc-rank", n_sims=99)
+    >>> r.as_dict()["p_value"], r.as_dict()["method"]
+    (0.03, 'mc-rank')
+    >>> undefined = StatResult(name="total1", kind="scalar", statistic=np.nan, pvalue=np.nan,
+    ...                        observed=np.nan, null_mean=0.1, null_sd=0.01, z=np.nan,
+    ...                        method="untested", trusted=False, reason="undefined")
+    >>> json.dumps(undefined.as_dict())[:60]
+    '{"statistic": "total1", "kind": "scalar", "observed": null, '
     """
 
     name: str
@@ -110,7 +129,25 @@ class CSRTestResult:
         Method requested: "auto", "asymptotic" or "mc" (each result's
         ``method`` says how its p-value was obtained).
     null : str
-        The null model ("csr", or a model of ``lookup.models``).
+        The null model ("csr", or a model of ``lookup.processes.registry``).
+
+    Examples
+    --------
+    >>> import json
+    >>> import numpy as np
+    >>> import nullatlas
+    >>> w = nullatlas.Rectangle(0, 0, 1, 1)
+    >>> pts = w.sample(200, np.random.default_rng(2))
+    >>> res = nullatlas.csr_test(pts, w, stats=["nnmean", "total1"], method="asymptotic", seed=5)
+    >>> res.n, res.dimension, res.window["kind"], res.seed
+    (200, 2, 'rect', 5)
+    >>> res.statistic == res.primary.statistic == res.results[0].statistic
+    True
+    >>> res["total1"].method, res.primary.reason
+    ('asymptotic-normal', 'instant test from the null table (cell: square-n00000200)')
+    >>> sorted(json.loads(json.dumps(res.as_dict())))
+    ['dimension', 'elapsed_s', 'engine', 'method', 'n', 'null', 'results', 'seed',
+     'validation', 'warnings', 'window']
     """
 
     results: list

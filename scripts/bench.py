@@ -40,10 +40,10 @@ EXAMPLES = os.path.join(HERE, "..", "examples")
 
 def ours(points):
     if points.shape[1] == 2:
-        from nullatlas.lookup.alpha2d import alpha_pairs_2d
+        from nullatlas.lookup.persistence.alpha2d import alpha_pairs_2d
 
         return alpha_pairs_2d(points, sort=False)
-    from nullatlas.lookup.alpha3d import betti_euler_3d
+    from nullatlas.lookup.persistence.alpha3d import betti_euler_3d
 
     a = betti_euler_3d(points)
     return a.betti_curves(np.linspace(0.0, 0.2, 200))
@@ -86,8 +86,9 @@ def bench_speed(sizes2, sizes3, repeats, rows):
             rows.append({"part": "speed", "dim": d, "n": n, "ours_s": to, "gudhi_s": tg,
                          "ratio": to / tg})
     if sizes2:
-        from nullatlas.lookup.delaunay2d import delaunay_mesh
         from scipy.spatial import Delaunay
+
+        from nullatlas.lookup.persistence.delaunay2d import delaunay_mesh
 
         n = max(sizes2)
         pts = np.random.default_rng(7).random((n, 2))
@@ -124,8 +125,8 @@ def _compare(a, b):
 
 
 def bench_equality(n2, n3, rows):
-    from nullatlas.lookup.alpha2d import alpha_pairs_2d, sort_rows
-    from nullatlas.lookup.alpha3d import betti_euler_3d
+    from nullatlas.lookup.persistence.alpha2d import alpha_pairs_2d, sort_rows
+    from nullatlas.lookup.persistence.alpha3d import betti_euler_3d
 
     print("2. equality with gudhi AlphaComplex(precision='exact') (counts and values)")
     rng = np.random.default_rng(3)
@@ -220,7 +221,7 @@ def bench_memory(n, rows):
 def bench_compile(rows):
     print("4. numba compile time in a fresh process (first diagram of 500 points, 2D + 3D)")
     code = ("import time; t = time.perf_counter(); import numpy as np; "
-            "from nullatlas.lookup.diagram import alpha_diagram; "
+            "from nullatlas.lookup.persistence.diagram import alpha_diagram; "
             "p = np.random.default_rng(0).random((500, 3)); "
             "alpha_diagram(p[:, :2]); alpha_diagram(p).betti_counts(1, np.r_[0.1]); "
             "print(time.perf_counter() - t, 0)")
@@ -234,9 +235,9 @@ def bench_compile(rows):
 
 def bench_throughput(sims, rows):
     from nullatlas.lookup import Disk, read_points
-    from nullatlas.lookup.montecarlo import simulate_null
-    from nullatlas.lookup.nulls import replicate_seeds
-    from nullatlas.lookup.statistics import resolve_stats
+    from nullatlas.lookup.inference.montecarlo import simulate_null
+    from nullatlas.lookup.processes.csr import replicate_seeds
+    from nullatlas.lookup.summaries.statistics import resolve_stats
 
     print(f"5. Monte Carlo throughput, demo wafer window, {sims} null patterns, default statistics")
     n = len(read_points(os.path.join(EXAMPLES, "wafer_lot_clustered.csv")))

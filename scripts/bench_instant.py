@@ -26,11 +26,12 @@ import time
 def main(argv=None) -> int:
     import numpy as np
 
-    from nullatlas.lookup import csr_test, windows
-    from nullatlas.lookup.asymptotic import asymptotic_result, verdict
-    from nullatlas.lookup.montecarlo import _alternative_for
-    from nullatlas.lookup.nullmoments import default_tables, null_moments
-    from nullatlas.lookup.statistics import PatternSummary, default_stats, evaluate, resolve_stats
+    from nullatlas.lookup import csr_test
+    from nullatlas.lookup.inference.asymptotic import asymptotic_result, verdict
+    from nullatlas.lookup.inference.montecarlo import _alternative_for
+    from nullatlas.lookup.inference.nullmoments import default_tables, null_moments
+    from nullatlas.lookup.patterns import windows
+    from nullatlas.lookup.summaries.statistics import PatternSummary, default_stats, evaluate, resolve_stats
 
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     ap.add_argument("--n", type=int, default=10_000)

@@ -4,7 +4,7 @@
 * kappa model: E[S] = mu + c kappa n^(-1/d) + e n^(-2/d) (the shipped model
   of table schema 1, ``calibrate.model.fit_model``);
 * geometric model: E[S] = mu + c1 B1 + c2 B2 + c3 / n with the covariates of
-  the window's inner parallel sets (``lookup.boundary``,
+  the window's inner parallel sets (``lookup.patterns.boundary``,
   ``calibrate.model.fit_geomodel``).
 
 Both are fitted on the same training cells of a table (n >= 100, the shapes
@@ -33,9 +33,9 @@ def main(argv=None) -> int:
     from nullatlas.calibrate.build import _load_records
     from nullatlas.calibrate.heldout import HELDOUT, heldout_ns, heldout_window, load_heldout
     from nullatlas.calibrate.model import cell_covariates, fit_geomodel, fit_model
-    from nullatlas.lookup.boundary import covariates, grid_depths
-    from nullatlas.lookup.nullmoments import TableSet, null_moments
-    from nullatlas.lookup.statistics import STATISTICS
+    from nullatlas.lookup.inference.nullmoments import TableSet, null_moments
+    from nullatlas.lookup.patterns.boundary import covariates, grid_depths
+    from nullatlas.lookup.summaries.statistics import STATISTICS
 
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     ap.add_argument("table")
@@ -117,7 +117,8 @@ def main(argv=None) -> int:
           f"{'max kappa':>9s} {'geometric':>10s}  cells")
     for r in out:
         hm, hx = r["heldout_err_sd_median"], r["heldout_err_sd_max"]
-        f = (lambda v: f"{v:10.3f}" if v is not None else f"{'-':>10s}")
+        def f(v):
+            return f"{v:10.3f}" if v is not None else f"{'-':>10s}"
         print(f"{r['statistic']:10s} {r['training_chi2_dof']['kappa']:14.2f} "
               f"{r['training_chi2_dof']['geometric']:10.2f}   {f(hm['kappa']):>32s} "
               f"{f(hm['geometric'])}   {f(hx['kappa']):>9s} {f(hx['geometric'])}  "

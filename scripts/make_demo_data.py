@@ -19,8 +19,9 @@ import sys
 
 import numpy as np
 
-from nullatlas.lookup.nulls import csr, perturbed_lattice, thomas
-from nullatlas.lookup.windows import Box, Disk
+from nullatlas.lookup.patterns.windows import Box, Disk
+from nullatlas.lookup.processes.alternatives import perturbed_lattice, thomas
+from nullatlas.lookup.processes.csr import csr
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 OUT = os.path.join(HERE, "..", "examples")

@@ -54,7 +54,7 @@ HOLDOUT = {2: "disk", 3: None}
 
 def main(argv=None) -> int:
     from nullatlas.calibrate import build, shapes
-    from nullatlas.lookup.tablereader import open_table
+    from nullatlas.lookup.inference.tablereader import open_table
 
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     ap.add_argument("--dim", choices=["2", "3", "all"], default="all")

@@ -11,7 +11,7 @@ smallest value of its cofaces.
 The reference diagram of dimension q is ``st.persistence_intervals_in_dimension(q)``
 after ``st.compute_persistence(min_persistence=0)``, taken to radius units with
 ``sqrt``; rows with death <= birth are dropped on both sides and rows are sorted
-lexicographically.  In 2D the diagrams of ``nullatlas.lookup.alpha2d`` must have
+lexicographically.  In 2D the diagrams of ``nullatlas.lookup.persistence.alpha2d`` must have
 the same number of rows and be bit-identical (both sides take ``sqrt`` of the
 same exactly rounded doubles); in 3D H0/H2 must match in count and to 1e-12
 relative, the Euler and Betti-1 curves must equal those derived from gudhi's
@@ -33,12 +33,11 @@ gudhi = pytest.importorskip("gudhi")
 from hypothesis import HealthCheck, given, settings  # noqa: E402
 from hypothesis import strategies as st  # noqa: E402
 
-from nullatlas.lookup.alpha2d import (alpha_filtration_2d, alpha_pairs_2d,  # noqa: E402
-                                      scipy_triangles_2d)
-from nullatlas.lookup.alpha3d import betti_euler_3d  # noqa: E402
-from nullatlas.lookup.delaunay2d import delaunay_mesh  # noqa: E402
-from nullatlas.lookup.pairing import radix_argsort  # noqa: E402
-from nullatlas.lookup.pointsets import distinct_morton  # noqa: E402
+from nullatlas.lookup.persistence.alpha2d import alpha_filtration_2d, alpha_pairs_2d, scipy_triangles_2d  # noqa: E402
+from nullatlas.lookup.persistence.alpha3d import betti_euler_3d  # noqa: E402
+from nullatlas.lookup.persistence.delaunay2d import delaunay_mesh  # noqa: E402
+from nullatlas.lookup.persistence.pairing import radix_argsort  # noqa: E402
+from nullatlas.lookup.persistence.pointsets import distinct_morton  # noqa: E402
 
 RTOL = 1e-12
 HYP = dict(deadline=None, derandomize=True, database=None,
@@ -229,7 +228,8 @@ COLLINEAR = {
     "horizontal": lambda: np.column_stack([np.random.default_rng(11).random(25), np.full(25, 0.3)]),
     "vertical": lambda: np.column_stack([np.full(20, -2.0), np.random.default_rng(12).random(20)]),
     "diagonal": lambda: np.repeat(np.random.default_rng(13).random(18)[:, None], 2, axis=1),
-    "integer_slope": lambda: np.random.default_rng(14).integers(-50, 50, 30)[:, None] * np.array([[3.0, -1.0]]),
+    "integer_slope": lambda: (np.random.default_rng(14).integers(-50, 50, 30)[:, None]
+                              * np.array([[3.0, -1.0]])),
     "offset1e6": lambda: np.column_stack([1e6 + np.random.default_rng(15).random(15), np.full(15, 1e6)]),
     "two_points": lambda: np.array([[0.0, 0.0], [1.0, 2.0]]),
 }
@@ -417,8 +417,8 @@ def test_filtration_2d_value_multisets_equal_gudhi(name):
 
 
 def grid3(k=4, h=0.1):
-    i, j, l = np.meshgrid(np.arange(k), np.arange(k), np.arange(k), indexing="ij")
-    return np.column_stack([i.ravel(), j.ravel(), l.ravel()]) * h
+    i, j, m = np.meshgrid(np.arange(k), np.arange(k), np.arange(k), indexing="ij")
+    return np.column_stack([i.ravel(), j.ravel(), m.ravel()]) * h
 
 
 def sphere_float(n, seed):

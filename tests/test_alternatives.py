@@ -6,9 +6,10 @@ import numpy as np
 import pytest
 from scipy.spatial import cKDTree
 
-from nullatlas.lookup import alternatives as A
-from nullatlas.lookup import grids, statistics, windows
 from nullatlas.lookup.errors import OptionError
+from nullatlas.lookup.patterns import windows
+from nullatlas.lookup.processes import alternatives as A
+from nullatlas.lookup.summaries import grids, statistics
 
 S = statistics.STATISTICS
 
@@ -62,7 +63,8 @@ def test_strauss_inhibition_removes_close_pairs():
     assert cKDTree(x).query(x, k=2)[0][:, 1].min() >= 0.3
     y = A.strauss(W, 4.0, 0.3, 0.3, rng)
     z = A.strauss(W, 4.0, 1.0, 0.3, rng)
-    pairs = lambda p: len(cKDTree(p).query_pairs(0.3)) / len(p)
+    def pairs(p):
+        return len(cKDTree(p).query_pairs(0.3)) / len(p)
     assert pairs(y) < 0.6 * pairs(z)
 
 
@@ -118,9 +120,8 @@ def test_voids_leave_the_vacant_fraction():
 def test_monte_carlo_route_with_a_cluster_null(capsys):
     """--null: the Monte Carlo route simulates the given model conditioned on n.
     A Thomas pattern is rejected against CSR but not against its own model."""
-    import json as _json
-    from nullatlas.lookup import cli, csr_test
-    from nullatlas.lookup.models import simulate
+    from nullatlas.lookup import csr_test
+    from nullatlas.lookup.processes.registry import simulate
     W = windows.Disk(0, 0, 1)
     rng = np.random.default_rng(9)
     spec = ("thomas", {"parents": 0.05, "sigma": 0.25})

@@ -8,10 +8,11 @@ import numpy as np
 import pytest
 from scipy import stats as st
 
-from nullatlas.lookup import cli, csr_test, windows
-from nullatlas.lookup.adjust import benjamini_hochberg, holm
+from nullatlas.lookup import cli, csr_test
 from nullatlas.lookup.batch import collect_inputs, read_manifest, run_batch
 from nullatlas.lookup.errors import OptionError
+from nullatlas.lookup.inference.adjust import benjamini_hochberg, holm
+from nullatlas.lookup.patterns import windows
 
 
 def test_bh_matches_scipy_and_holm_matches_its_definition():

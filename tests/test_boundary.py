@@ -1,5 +1,5 @@
 """Geometric covariates and trust measures of the finite-window model
-(lookup.boundary): closed forms of the inner parallel sets.
+(lookup.patterns.boundary): closed forms of the inner parallel sets.
 
 Steiner's formula for the inner parallel set of a convex polygon (the
 perimeter shrinks by 2 cot(angle/2) t per corner; 2 pi t for a disk) is
@@ -12,8 +12,8 @@ import numpy as np
 import pytest
 import shapely
 
-from nullatlas.lookup.boundary import DEPTH, covariates, trust_measures
-from nullatlas.lookup.windows import Box, Disk, PolygonWindow, Rectangle
+from nullatlas.lookup.patterns.boundary import DEPTH, covariates, trust_measures
+from nullatlas.lookup.patterns.windows import Box, Disk, PolygonWindow, Rectangle
 
 
 @pytest.mark.parametrize("n", [100, 1000, 20000])
@@ -75,7 +75,7 @@ def test_trust_measures_flag_narrow_parts():
 
 
 def test_periodic_window_has_no_boundary_terms():
-    from nullatlas.lookup.periodic import PeriodicBox
+    from nullatlas.lookup.patterns.periodic import PeriodicBox
 
     w = PeriodicBox(0, 0, 2, 1)
     assert np.allclose(covariates(w, 500), [1, 0, 0, 1 / 500])

@@ -11,7 +11,7 @@ from nullatlas.calibrate.assemble import ALPHAS, audit_cell
 from nullatlas.calibrate.model import design, fit_model, holdout_errors, wls
 from nullatlas.calibrate.nmin import n_min_table
 from nullatlas.calibrate.plan import CellPlan, chunk_seed
-from nullatlas.lookup.tablereader import load_cell, open_table
+from nullatlas.lookup.inference.tablereader import load_cell, open_table
 
 TINY_STATS = ["euler", "total1", "maxpers1", "nnmean"]
 
@@ -273,7 +273,7 @@ def test_cli_build_refuses_existing_output(tmp_path, capsys):
 
 
 def test_user_window_normalisation_is_invariant():
-    from nullatlas.lookup.windows import parse_window
+    from nullatlas.lookup.patterns.windows import parse_window
     a = shapes.normalise(parse_window("polygon:POLYGON((0 0, 4 0, 5 2, 1 3, 0 0))"))
     b = shapes.normalise(parse_window("polygon:POLYGON((10 10, 10 18, 6 20, 4 12, 10 10))"))
     assert a[0] == b[0] and abs(a[1].measure - 1) < 1e-9          # rotated and scaled copy
@@ -295,7 +295,7 @@ def test_cli_builds_a_users_polygon_and_extends_it(tmp_path, capsys):
     info = open_table(out)
     shape = info.cells[0].shape
     assert shape.startswith("polygon-") and s["cells"] == 2
-    from nullatlas.lookup.windows import parse_window
+    from nullatlas.lookup.patterns.windows import parse_window
     w = parse_window(info.cells[0].spec)
     assert abs(w.measure - 1.0) < 1e-9 and abs(w.kappa - parse_window(str(poly)).kappa) < 1e-9
     assert cli.main(["extend", str(out), "--reps", "20", "--window", str(poly), "--n", "40",

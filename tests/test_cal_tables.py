@@ -7,7 +7,7 @@ import pytest
 from nullatlas.calibrate.moments import Moments
 from nullatlas.calibrate.tablewriter import write_table
 from nullatlas.lookup.errors import TableError
-from nullatlas.lookup.tablereader import SCHEMA_VERSION, open_table
+from nullatlas.lookup.inference.tablereader import SCHEMA_VERSION, open_table
 
 
 def _write(path, dimension=2):
@@ -33,7 +33,7 @@ def test_round_trip(tmp_path):
     assert cov[0]["statistics"] == ["euler", "nnmean"]
     with h5py.File(p, "r") as fh:
         g = fh["cells/disk_n100/euler"]
-        from nullatlas.lookup.tablereader import read_m2
+        from nullatlas.lookup.inference.tablereader import read_m2
         back = Moments.from_arrays({"count": g.attrs["count"], "m2": read_m2(g["m2"]),
                                     **{k: g[k][()] for k in ("mean", "m3")}})
     # curve scatter matrices are stored in float32

@@ -6,7 +6,7 @@ import pytest
 
 from nullatlas.calibrate import check, cli, power
 from nullatlas.calibrate.shapes import shape_window
-from nullatlas.lookup import windows
+from nullatlas.lookup.patterns import windows
 
 
 def test_wilson_interval():

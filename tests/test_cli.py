@@ -73,14 +73,15 @@ def test_same_seed_same_json_any_jobs(capsys):
     args = [os.path.join(EX, "wafer_lot_random.csv"), "-w", WAFER, "--sims", "30", "--seed", "9"]
     a = run_json(capsys, *args, "--jobs", "1")
     b = run_json(capsys, *args, "--jobs", "2")
-    strip = lambda d: [{k: v for k, v in r.items()} for r in d["results"]]
+    def strip(d):
+        return [{k: v for k, v in r.items()} for r in d["results"]]
     assert strip(a) == strip(b)
 
 
 def test_plot_written(tmp_path, capsys):
     fig = tmp_path / "fig.png"
-    rc = main(["test", os.path.join(EX, "wafer_lot_clustered.csv"), "-w", WAFER, "--method", "mc", "--sims", "19",
-               "--seed", "1", "--plot", str(fig), "--no-progress"])
+    rc = main(["test", os.path.join(EX, "wafer_lot_clustered.csv"), "-w", WAFER, "--method", "mc",
+               "--sims", "19", "--seed", "1", "--plot", str(fig), "--no-progress"])
     assert rc == 0 and fig.stat().st_size > 10_000
     assert fig.read_bytes()[:4] == b"\x89PNG"
     assert not [p for p in os.listdir(tmp_path) if p != "fig.png"]  # no temp files left
@@ -146,8 +147,8 @@ def test_bad_input_one_line_exit_2(tmp_path, capsys, case):
     text, window, needle = BAD[case]
     path = _csv(tmp_path, text) if text is not None else _square_csv(tmp_path)
     fig = tmp_path / "never.png"
-    rc = main(["test", path, "--window", window, "--method", "mc", "--sims", "5", "--seed", "1", "--no-progress",
-               "--plot", str(fig)])
+    rc = main(["test", path, "--window", window, "--method", "mc", "--sims", "5", "--seed", "1",
+               "--no-progress", "--plot", str(fig)])
     err = capsys.readouterr().err
     assert rc == 2
     lines = [ln for ln in err.splitlines() if ln.strip()]
@@ -211,6 +212,7 @@ def test_duplicate_policies_run(tmp_path, capsys, policy):
 def _table_cases(tmp_path):
     """Bad --table files: truncated, foreign HDF5, unknown schema version, 3D table."""
     import h5py
+
     from nullatlas.calibrate import build, shapes
     good = tmp_path / "good3d.h5"
     build.build_table(str(good), [("cube", shapes.shape_window("cube"))], [40, 80], 40,

@@ -12,7 +12,7 @@ import time
 import numpy as np
 import pytest
 
-from nullatlas.lookup.tablereader import open_table
+from nullatlas.lookup.inference.tablereader import open_table
 
 # 6 chunks: n = 10,000 in chunks of 40 replicates, n = 20,000 in chunks of 20
 BUILD = ["--shape", "square", "--n", "10000,20000", "--reps", "80", "--stat", "euler,nnmean",

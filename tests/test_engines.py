@@ -1,6 +1,6 @@
 """The two persistence engines give the same answers.
 
-``fast`` (our exact kernels, lookup.alpha2d / lookup.alpha3d) and ``gudhi``
+``fast`` (our exact kernels, lookup.persistence.alpha2d / lookup.persistence.alpha3d) and ``gudhi``
 (gudhi's AlphaComplex with its generic reduction, the reference) must produce
 the same diagrams, hence the same statistics and the same Monte Carlo
 p-values for the same seed.  gudhi's default precision carries a relative
@@ -14,9 +14,9 @@ import pytest
 
 from nullatlas.lookup import csr_test
 from nullatlas.lookup.cli import main
-from nullatlas.lookup.diagram import FastDiagram3D, alpha_diagram
-from nullatlas.lookup.statistics import STATISTICS, compute, resolve_stats
-from nullatlas.lookup.windows import parse_window
+from nullatlas.lookup.patterns.windows import parse_window
+from nullatlas.lookup.persistence.diagram import FastDiagram3D, alpha_diagram
+from nullatlas.lookup.summaries.statistics import STATISTICS, compute, resolve_stats
 
 EX = os.path.join(os.path.dirname(os.path.dirname(os.path.abspath(__file__))), "examples")
 

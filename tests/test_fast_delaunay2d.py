@@ -1,4 +1,4 @@
-"""Tests of nullatlas.lookup.delaunay2d (exact numba Delaunay triangulation).
+"""Tests of nullatlas.lookup.persistence.delaunay2d (exact numba Delaunay triangulation).
 
 The checks here are independent of the module's own predicates: exact signs are
 computed with fractions.Fraction (every float is a dyadic rational), behind a
@@ -16,7 +16,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from scipy.spatial import Delaunay
 
-from nullatlas.lookup.delaunay2d import (
+from nullatlas.lookup.persistence.delaunay2d import (
     delaunay_triangles,
     delaunay_triangles_qhull,
     incircle,
@@ -53,9 +53,9 @@ def orient_signs(A, B, C) -> np.ndarray:
     """Exact signs of orient2d for rows of (k,2) arrays A, B, C."""
     acx, acy = A[:, 0] - C[:, 0], A[:, 1] - C[:, 1]
     bcx, bcy = B[:, 0] - C[:, 0], B[:, 1] - C[:, 1]
-    l, r = acx * bcy, acy * bcx
-    det = l - r
-    perm = np.abs(l) + np.abs(r)
+    left, right = acx * bcy, acy * bcx
+    det = left - right
+    perm = np.abs(left) + np.abs(right)
     out = np.sign(det).astype(np.int64)
     unsure = ~(np.abs(det) > _LOOSE * perm)
     for i in np.flatnonzero(unsure):

@@ -1,4 +1,4 @@
-"""Tests of nullatlas.lookup.delaunay3d (exact numba Delaunay tetrahedralisation).
+"""Tests of nullatlas.lookup.persistence.delaunay3d (exact numba Delaunay tetrahedralisation).
 
 The checks are independent of the module's own predicates: exact signs come from
 fractions.Fraction (every float is a dyadic rational), behind a deliberately loose
@@ -19,7 +19,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from scipy.spatial import ConvexHull, Delaunay
 
-from nullatlas.lookup.delaunay3d import (
+from nullatlas.lookup.persistence.delaunay3d import (
     _WS_SIZE,
     _exact_pred,
     _hilbert_index_3d,
@@ -149,7 +149,7 @@ def in_sphere_signs(A, B, C, D, E) -> np.ndarray:
     loose filter; unsure rows are decided with Python integers."""
     rows = [X - E for X in (A, B, C, D)]
     lift = [np.einsum("ij,ij->i", r, r) for r in rows]
-    M = np.stack([np.column_stack([r, l]) for r, l in zip(rows, lift)], axis=1)
+    M = np.stack([np.column_stack([r, q]) for r, q in zip(rows, lift)], axis=1)
     det = np.linalg.det(M)
     # Hadamard-type bound on |det| (product of the rows' 1-norms): the LU
     # determinant's rounding error is ~1e-15 of it, far below the 1e-7 cut

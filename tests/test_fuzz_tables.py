@@ -11,10 +11,10 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from nullatlas.calibrate import build, shapes
-from nullatlas.lookup.alternatives import intensity_function
 from nullatlas.lookup.batch import read_manifest
 from nullatlas.lookup.errors import NullAtlasError, TableError
-from nullatlas.lookup.tablereader import load_cell, open_table
+from nullatlas.lookup.inference.tablereader import load_cell, open_table
+from nullatlas.lookup.processes.alternatives import intensity_function
 
 FUZZ = settings(max_examples=120, deadline=None, derandomize=True, database=None,
                 suppress_health_check=[HealthCheck.too_slow, HealthCheck.function_scoped_fixture])

@@ -6,11 +6,12 @@ import numpy as np
 import pytest
 import shapely
 
-from nullatlas.lookup import csr_test, windows
-from nullatlas.lookup.asymptotic import asymptotic_result, verdict
-from nullatlas.lookup.montecarlo import simulate_null
-from nullatlas.lookup.nullmoments import default_tables, null_moments
-from nullatlas.lookup.statistics import PatternSummary, evaluate, resolve_stats
+from nullatlas.lookup import csr_test
+from nullatlas.lookup.inference.asymptotic import asymptotic_result, verdict
+from nullatlas.lookup.inference.montecarlo import simulate_null
+from nullatlas.lookup.inference.nullmoments import default_tables, null_moments
+from nullatlas.lookup.patterns import windows
+from nullatlas.lookup.summaries.statistics import PatternSummary, evaluate, resolve_stats
 
 # Fresh null patterns: a seed family unrelated to the tables' root seed.
 FRESH = 777_001

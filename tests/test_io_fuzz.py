@@ -17,9 +17,9 @@ from hypothesis import strategies as st
 from hypothesis.extra import numpy as hnp
 
 from nullatlas.lookup.errors import NullAtlasError, WindowError
-from nullatlas.lookup.readers import read_points
-from nullatlas.lookup.validate import MIN_POINTS, validate_pattern
-from nullatlas.lookup.windows import EstimatedWindowWarning, Window, parse_window
+from nullatlas.lookup.patterns.readers import read_points
+from nullatlas.lookup.patterns.validate import MIN_POINTS, validate_pattern
+from nullatlas.lookup.patterns.windows import EstimatedWindowWarning, Window, parse_window
 
 # NULLATLAS_FUZZ_EXAMPLES=5000 runs a longer, randomised bug hunt; by default
 # the examples are fixed (derandomize) so the suite is fast and stable.

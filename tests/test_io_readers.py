@@ -7,7 +7,7 @@ import numpy as np
 import pytest
 
 from nullatlas.lookup.errors import NullAtlasError, PointsError
-from nullatlas.lookup.readers import parse_columns, read_points
+from nullatlas.lookup.patterns.readers import parse_columns, read_points
 
 XY = np.array([[0.1, 0.2], [0.3, 0.4], [0.5, 0.6], [-1.5, 2e3]])
 XYZ = np.array([[0.1, 0.2, 0.3], [0.4, 0.5, 0.6], [0.7, 0.8, 0.9], [1.0, 1.1, 1.2]])

@@ -9,8 +9,8 @@ import numpy as np
 import pytest
 
 from nullatlas.lookup.errors import NullAtlasError, PointsError, WindowError
-from nullatlas.lookup.validate import MIN_POINTS, ValidationReport, validate_pattern
-from nullatlas.lookup.windows import EstimatedWindowWarning, parse_window
+from nullatlas.lookup.patterns.validate import MIN_POINTS, ValidationReport, validate_pattern
+from nullatlas.lookup.patterns.windows import EstimatedWindowWarning, parse_window
 
 SQUARE = parse_window("rect:0,0,1,1")
 CUBE = parse_window("box:0,0,0,1,1,1")
@@ -403,7 +403,7 @@ def test_window_from_collinear_points():
 
 
 # --------------------------------------------------------------------------
-# Regressions for bugs found by these tests (fixed in lookup/windows.py)
+# Regressions for bugs found by these tests (fixed in lookup/patterns/windows.py)
 # --------------------------------------------------------------------------
 
 @pytest.mark.parametrize("spec", ["\x00.wkt", "a\x00b.geojson"])

@@ -5,14 +5,17 @@ import math
 
 import numpy as np
 import pytest
-from nullatlas.lookup import grids, summaries
-from nullatlas.lookup.cli import main
-from nullatlas.lookup.errors import NullAtlasError, PointsError, WindowError
-from nullatlas.lookup.periodic import PeriodicBox, periodic_diagram
-from nullatlas.lookup.statistics import STATISTICS, PatternSummary, compute
-from nullatlas.lookup.windows import parse_window
 from scipy.sparse import coo_matrix
 from scipy.sparse.csgraph import minimum_spanning_tree
+
+from nullatlas.lookup.cli import main
+from nullatlas.lookup.errors import NullAtlasError, PointsError, WindowError
+from nullatlas.lookup.patterns.periodic import PeriodicBox
+from nullatlas.lookup.patterns.windows import parse_window
+from nullatlas.lookup.persistence.periodic import periodic_diagram
+from nullatlas.lookup.summaries import grids
+from nullatlas.lookup.summaries import topological as summaries
+from nullatlas.lookup.summaries.statistics import STATISTICS, PatternSummary, compute
 
 UNIT = {2: PeriodicBox(0, 0, 1, 1), 3: PeriodicBox(0, 0, 0, 1, 1, 1)}
 
@@ -100,7 +103,7 @@ def test_images_are_exact_translates():
     """The frame of ``torus_frame``: for any box (here with non-dyadic sides) every
     image u + k L_i within the admissible halo is an exact double, so all copies
     of a simplex have bit-identical filtration values."""
-    from nullatlas.lookup.periodic import torus_frame
+    from nullatlas.lookup.persistence.periodic import torus_frame
 
     rng = np.random.default_rng(0)
     for lo, hi in (([0.1, -7.3], [1.3, 0.9]), ([3.0, 0.0, 1e-3], [3.7, 0.3, 2.1e-3])):

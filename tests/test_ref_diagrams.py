@@ -14,7 +14,7 @@ import math
 import numpy as np
 import pytest
 
-from nullatlas.lookup.diagram import alpha_diagram, intensity_scale
+from nullatlas.lookup.persistence.diagram import alpha_diagram, intensity_scale
 
 TOL = 1e-12  # elementary geometry is exact; only floating-point rounding remains
 

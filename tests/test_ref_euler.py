@@ -20,7 +20,7 @@ unbiased routes are used (both suggested in REFERENCES.md):
   boundary are averaged.  Whether a simplex is in the alpha complex at r
   depends only on the points within 2r of any of its vertices, so those
   vertices see the same complex as in an infinite pattern.  This is checked
-  against ``summaries.euler_curve`` through the exact Euler--Poincaré
+  against ``topological.euler_curve`` through the exact Euler--Poincaré
   identity (same simplices, same normalisation) on the same patterns.
 * large n with the finite-window model of DESIGN.md,
   E[chi/n] = mu + a n^(-1/d) + b n^(-2/d): from patterns of n and
@@ -38,8 +38,9 @@ import math
 import numpy as np
 import pytest
 
-from nullatlas.lookup import grids, summaries, windows
-from nullatlas.lookup.diagram import alpha_diagram, intensity_scale
+from nullatlas.lookup.patterns import windows
+from nullatlas.lookup.persistence.diagram import alpha_diagram, intensity_scale
+from nullatlas.lookup.summaries import grids, topological
 
 RHO = grids.RHO
 
@@ -70,8 +71,10 @@ def wrong_formulas(d):
     else:
         eta = lambda r: 4.0 / 3.0 * math.pi * r ** 3  # noqa: E731
         out.update({
-            "sign of 3 eta": lambda r: np.exp(-eta(r)) * (1 + 3 * eta(r) + 3 * math.pi ** 2 / 32 * eta(r) ** 2),
-            "coefficient pi^2/32": lambda r: np.exp(-eta(r)) * (1 - 3 * eta(r) + math.pi ** 2 / 32 * eta(r) ** 2),
+            "sign of 3 eta": lambda r: np.exp(-eta(r)) * (1 + 3 * eta(r)
+                                                          + 3 * math.pi ** 2 / 32 * eta(r) ** 2),
+            "coefficient pi^2/32": lambda r: np.exp(-eta(r)) * (1 - 3 * eta(r)
+                                                                + math.pi ** 2 / 32 * eta(r) ** 2),
             "2D formula": lambda r: np.exp(-eta(r)) * (1 - eta(r)),
             "missing 4/3 in eta": lambda r: miles(r * 0.75 ** (1 / 3), 3),
         })
@@ -142,7 +145,7 @@ def test_euler_curve_equals_alternating_simplex_count(window):
         pts = window.sample(n, rng)
         scale = intensity_scale(n, window.measure, window.dim)
         chi = vertex_euler_shares(pts, scale).sum(axis=0) / n
-        got = summaries.euler_curve(alpha_diagram(pts, window.measure))
+        got = topological.euler_curve(alpha_diagram(pts, window.measure))
         np.testing.assert_allclose(got, chi, rtol=0, atol=1e-12)
 
 
@@ -164,7 +167,7 @@ def test_miles_2d_minus_sampling():
         e, c = minus_sampled_chi(pts, W)
         # the same simplices give exactly the library's curve on the full window
         np.testing.assert_allclose(c.sum(axis=0) / len(pts),
-                                   summaries.euler_curve(alpha_diagram(pts, W.measure)), atol=1e-12)
+                                   topological.euler_curve(alpha_diagram(pts, W.measure)), atol=1e-12)
         est.append(e)
     est = np.array(est)
     mean = est.mean(axis=0)
@@ -193,12 +196,12 @@ def test_miles_3d_minus_sampling():
 
 
 # ---------------------------------------------------------------------------
-# Miles formulae through summaries.euler_curve on the full window
+# Miles formulae through topological.euler_curve on the full window
 # ---------------------------------------------------------------------------
 
 def _mean_euler_curve(window, n, reps, seed):
     rng = np.random.default_rng(seed)
-    cs = np.array([summaries.euler_curve(alpha_diagram(window.sample(n, rng), window.measure))
+    cs = np.array([topological.euler_curve(alpha_diagram(window.sample(n, rng), window.measure))
                    for _ in range(reps)])
     return cs.mean(axis=0), cs.var(axis=0, ddof=1) / reps
 

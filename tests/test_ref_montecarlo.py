@@ -23,8 +23,9 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from nullatlas.lookup import ranks, windows
 from nullatlas.lookup.csrtest import csr_test
+from nullatlas.lookup.inference import ranks
+from nullatlas.lookup.patterns import windows
 
 KS_CRIT = 1.63  # asymptotic 1% critical value of sqrt(R) * sup|F_R - F| (Kolmogorov)
 

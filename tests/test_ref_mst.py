@@ -17,8 +17,8 @@ from scipy.sparse import coo_matrix
 from scipy.sparse.csgraph import connected_components, minimum_spanning_tree
 from scipy.spatial import Delaunay
 
-from nullatlas.lookup import summaries
-from nullatlas.lookup.diagram import alpha_diagram
+from nullatlas.lookup.persistence.diagram import alpha_diagram
+from nullatlas.lookup.summaries import topological
 
 RTOL = 1e-12  # REFERENCES.md: "must agree to floating-point precision"
 
@@ -82,4 +82,4 @@ def test_h0_normalised_and_total_persistence(d):
     mst = mst_edge_lengths(pts)
     diag = alpha_diagram(pts, measure)
     np.testing.assert_allclose(_h0_finite_deaths(diag), mst / 2 * scale, rtol=RTOL, atol=0)
-    assert summaries.total_persistence(diag, 0) == pytest.approx(mst.sum() / 2 * scale / n, rel=1e-12)
+    assert topological.total_persistence(diag, 0) == pytest.approx(mst.sum() / 2 * scale / n, rel=1e-12)

@@ -27,8 +27,10 @@ import numpy as np
 import pytest
 from scipy.special import gamma
 
-from nullatlas.lookup import classical, grids, nulls, statistics, windows
-from nullatlas.lookup.diagram import intensity_scale
+from nullatlas.lookup.patterns import windows
+from nullatlas.lookup.persistence.diagram import intensity_scale
+from nullatlas.lookup.processes import alternatives
+from nullatlas.lookup.summaries import classical, grids, statistics
 
 S = statistics.STATISTICS
 CLARK_EVANS_SD = 0.26136  # Clark & Evans (1954): sd of one NN distance, normalised
@@ -193,7 +195,7 @@ def test_thomas_k_function():
     rho = grids.L_RHO
     est, ref, alt_var, alt_2s = [], [], [], []
     for _ in range(30):
-        pts = nulls.thomas(W, kappa, mu, sigma, rng)
+        pts = alternatives.thomas(W, kappa, mu, sigma, rng)
         n = len(pts)
         lam = n / W.measure
         r = rho / math.sqrt(lam)
@@ -226,7 +228,7 @@ def test_thomas_intensity_and_window():
     rng = np.random.default_rng(500)
     counts = []
     for _ in range(200):
-        pts = nulls.thomas(W, kappa, mu, sigma, rng)
+        pts = alternatives.thomas(W, kappa, mu, sigma, rng)
         assert pts.shape[1] == 2 and np.all(W.contains(pts))
         counts.append(len(pts))
     counts = np.array(counts)

@@ -10,9 +10,15 @@ import pytest
 from nullatlas.calibrate.nmin import TESTS
 from nullatlas.calibrate.plan import DEFAULT_STATS
 from nullatlas.calibrate.shapes import SHIPPED
-from nullatlas.lookup import grids
-from nullatlas.lookup.statistics import STATISTICS
-from nullatlas.lookup.tablereader import load_cell, load_holdout, load_model, open_table, shipped_tables
+from nullatlas.lookup.inference.tablereader import (
+    load_cell,
+    load_holdout,
+    load_model,
+    open_table,
+    shipped_tables,
+)
+from nullatlas.lookup.summaries import grids
+from nullatlas.lookup.summaries.statistics import STATISTICS
 
 TABLES = shipped_tables()
 LARGEST = {2: 100_000, 3: 20_000}

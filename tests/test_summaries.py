@@ -3,8 +3,8 @@ import gudhi
 import numpy as np
 import pytest
 
-from nullatlas.lookup import grids, summaries
-from nullatlas.lookup.diagram import Diagram, alpha_diagram
+from nullatlas.lookup.persistence.diagram import Diagram, alpha_diagram
+from nullatlas.lookup.summaries import grids, topological
 
 
 def random_diagram(seed, n=60, d=2):
@@ -24,7 +24,7 @@ def test_euler_curve_equals_signed_simplex_count(d):
     r2 = (grids.RHO / dg.scale) ** 2
     direct = np.array([np.sum((-1.0) ** dims[filt <= v]) for v in r2]) / len(pts)
     # a grid point may sit exactly at a filtration value; compare away from ties
-    np.testing.assert_allclose(summaries.euler_curve(dg), direct, atol=1e-12)
+    np.testing.assert_allclose(topological.euler_curve(dg), direct, atol=1e-12)
 
 
 def test_betti_and_persistent_betti_by_counting():
@@ -32,11 +32,11 @@ def test_betti_and_persistent_betti_by_counting():
     for q in (0, 1):
         p = dg.pairs[q]
         brute = [np.sum((p[:, 0] <= x) & (x < p[:, 1])) / dg.n for x in grids.RHO]
-        np.testing.assert_allclose(summaries.betti_curve(dg, q), brute)
+        np.testing.assert_allclose(topological.betti_curve(dg, q), brute)
         pb = [np.sum((p[:, 0] <= s) & (p[:, 1] > t)) / dg.n for s, t in grids.PBETTI_PAIRS]
-        np.testing.assert_allclose(summaries.persistent_betti(dg, q), pb)
+        np.testing.assert_allclose(topological.persistent_betti(dg, q), pb)
     # beta_0 at rho -> 0+ is n/n (every point its own component)
-    assert summaries.betti_curve(dg, 0, np.array([1e-9]))[0] == 1.0
+    assert topological.betti_curve(dg, 0, np.array([1e-9]))[0] == 1.0
 
 
 def test_apf_total_max_silhouette_by_loops():
@@ -45,18 +45,18 @@ def test_apf_total_max_silhouette_by_loops():
     life = p[:, 1] - p[:, 0]
     age = p.mean(axis=1)
     apf = [life[age <= m].sum() / dg.n for m in grids.APF_AGE]
-    np.testing.assert_allclose(summaries.apf(dg, 1), apf)
+    np.testing.assert_allclose(topological.apf(dg, 1), apf)
     # APF tends to total persistence (Biscio & Møller 2019: APF(inf) = total)
-    assert summaries.apf(dg, 1, np.array([1e9]))[0] == pytest.approx(summaries.total_persistence(dg, 1))
-    assert summaries.total_persistence(dg, 1) == pytest.approx(life.sum() / dg.n)
-    assert summaries.total_persistence(dg, 1, alpha=2) == pytest.approx((life ** 2).sum() / dg.n)
-    assert summaries.max_lifetime(dg, 1) == pytest.approx(life.max())
-    assert summaries.max_ratio(dg, 1) == pytest.approx((p[:, 1] / p[:, 0]).max())
+    assert topological.apf(dg, 1, np.array([1e9]))[0] == pytest.approx(topological.total_persistence(dg, 1))
+    assert topological.total_persistence(dg, 1) == pytest.approx(life.sum() / dg.n)
+    assert topological.total_persistence(dg, 1, alpha=2) == pytest.approx((life ** 2).sum() / dg.n)
+    assert topological.max_lifetime(dg, 1) == pytest.approx(life.max())
+    assert topological.max_ratio(dg, 1) == pytest.approx((p[:, 1] / p[:, 0]).max())
     sil = []
     for t in grids.SILHOUETTE_T:
         tent = np.maximum(0, np.minimum(t - p[:, 0], p[:, 1] - t))
         sil.append((life * tent).sum() / life.sum())
-    np.testing.assert_allclose(summaries.silhouette(dg, 1), sil)
+    np.testing.assert_allclose(topological.silhouette(dg, 1), sil)
 
 
 def test_h0_total_persistence_is_half_mst_length():
@@ -71,13 +71,13 @@ def test_h0_total_persistence_is_half_mst_length():
     w = np.linalg.norm(pts[e[:, 0]] - pts[e[:, 1]], axis=1)
     mst = minimum_spanning_tree(coo_matrix((w, (e[:, 0], e[:, 1])), shape=(100, 100)))
     dg = alpha_diagram(pts, 1.0)
-    assert summaries.total_persistence(dg, 0) == pytest.approx(mst.sum() / 2 * dg.scale / 100, rel=1e-12)
+    assert topological.total_persistence(dg, 0) == pytest.approx(mst.sum() / 2 * dg.scale / 100, rel=1e-12)
 
 
 def test_empty_dimensions():
     dg = Diagram(pairs=[np.array([[0, 0.5], [0, np.inf]]), np.empty((0, 2))], n=2, dim=2)
-    assert summaries.total_persistence(dg, 1) == 0
-    assert summaries.max_lifetime(dg, 1) == 0
-    assert summaries.max_ratio(dg, 1) == 1
-    assert not summaries.apf(dg, 1).any() and not summaries.silhouette(dg, 1).any()
-    np.testing.assert_allclose(summaries.euler_curve(dg, np.array([0.1, 1.0])), [1.0, 0.5])
+    assert topological.total_persistence(dg, 1) == 0
+    assert topological.max_lifetime(dg, 1) == 0
+    assert topological.max_ratio(dg, 1) == 1
+    assert not topological.apf(dg, 1).any() and not topological.silhouette(dg, 1).any()
+    np.testing.assert_allclose(topological.euler_curve(dg, np.array([0.1, 1.0])), [1.0, 0.5])

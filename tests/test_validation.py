@@ -5,7 +5,7 @@ import numpy as np
 import pytest
 
 from nullatlas.calibrate.validate import score_cell, validated_range
-from nullatlas.lookup.boundary import MEASURES
+from nullatlas.lookup.patterns.boundary import MEASURES
 
 
 def _row(ok, **m):
@@ -39,8 +39,8 @@ def test_validated_range_when_nothing_passes():
 
 def test_score_cell_flags_a_biased_prediction(monkeypatch):
     from nullatlas.calibrate import validate as V
-    from nullatlas.lookup.nullmoments import NullMoments
-    from nullatlas.lookup.windows import Rectangle
+    from nullatlas.lookup.inference.nullmoments import NullMoments
+    from nullatlas.lookup.patterns.windows import Rectangle
 
     # the "table set" argument carries the predicted mean; sd 1
     def fake(tset, window, n, stat):
@@ -60,7 +60,7 @@ def test_score_cell_flags_a_biased_prediction(monkeypatch):
 def test_extreme_sample_inverts_a_gumbel_exceedance_model():
     # F(x) = exp(-(n a(x))) with a(x) = exp(-x) / n0: the maximum of n/n0
     # standard Gumbel variables, location log(n / n0) (Gumbel max-stability)
-    from nullatlas.lookup.nullmoments import extreme_sample
+    from nullatlas.lookup.inference.nullmoments import extreme_sample
 
     x = np.linspace(-2, 8, 200)
     n0 = 100.0

@@ -11,9 +11,16 @@ import shapely.affinity
 from scipy.spatial import ConvexHull
 
 from nullatlas.lookup.errors import NullAtlasError, WindowError
-from nullatlas.lookup.windows import (
-    Ball, Box, ConvexPolytope, Disk, EstimatedWindowWarning, PolygonWindow,
-    Rectangle, Window, parse_window,
+from nullatlas.lookup.patterns.windows import (
+    Ball,
+    Box,
+    ConvexPolytope,
+    Disk,
+    EstimatedWindowWarning,
+    PolygonWindow,
+    Rectangle,
+    Window,
+    parse_window,
 )
 
 # An outer 10 x 10 square with two rectangular holes.
@@ -208,7 +215,8 @@ def test_geojson_feature_collection_of_two_is_rejected(tmp_path):
 
 
 def test_multipolygon_window(tmp_path):
-    wkt = "MULTIPOLYGON (((0 0, 1 0, 1 1, 0 1, 0 0)), ((3 0, 5 0, 5 2, 3 2, 3 0), (3.5 0.5, 4 0.5, 4 1, 3.5 1, 3.5 0.5)))"
+    wkt = ("MULTIPOLYGON (((0 0, 1 0, 1 1, 0 1, 0 0)), "
+           "((3 0, 5 0, 5 2, 3 2, 3 0), (3.5 0.5, 4 0.5, 4 1, 3.5 1, 3.5 0.5)))")
     w = parse_window(_write(tmp_path / "m.wkt", wkt))
     assert w.measure == pytest.approx(1 + 4 - 0.25)
     assert w.boundary_measure == pytest.approx(4 + 8 + 2)

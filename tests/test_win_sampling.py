@@ -11,8 +11,13 @@ import pytest
 import shapely
 from scipy import stats
 
-from nullatlas.lookup.windows import (
-    Ball, Box, ConvexPolytope, Disk, PolygonWindow, Rectangle,
+from nullatlas.lookup.patterns.windows import (
+    Ball,
+    Box,
+    ConvexPolytope,
+    Disk,
+    PolygonWindow,
+    Rectangle,
 )
 
 P_OK = 1e-4       # the library sampler must not be rejected at this level

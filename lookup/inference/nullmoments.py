@@ -3,7 +3,7 @@
 Three routes, tried in this order (the result says which one was used):
 
 ``cell``
-    The table has a cell of this window's shape (``lookup.shapes.normalise``)
+    The table has a cell of this window's shape (``lookup.patterns.shapes.normalise``)
     and this n: its moments as stored.
 ``interpolated``
     The shape is calibrated and n lies between two of its cells n1 < n < n2:
@@ -14,7 +14,7 @@ Three routes, tried in this order (the result says which one was used):
     Any other window (any polygon, with holes or not; masks; boxes, balls and
     cylinders of any aspect; periodic boxes), or n beyond the shape's
     largest cell: the geometric finite-window model (``calibrate.model``,
-    covariates of ``lookup.boundary``: boundary measure, the shortfall of the
+    covariates of ``lookup.patterns.boundary``: boundary measure, the shortfall of the
     boundary band, 1/n) for the mean and n Var, with the correlation matrix
     and usable grid points of the nearest calibrated cell (closest kappa,
     then closest n^(-1/d)).  Extremes: the exceedance model
@@ -36,9 +36,9 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .errors import TableError
-from .shapes import normalise
-from .statistics import STATISTICS
+from ..errors import TableError
+from ..patterns.shapes import normalise
+from ..summaries.statistics import STATISTICS
 from .tablereader import open_table, read_m2, shipped_tables
 
 __all__ = ["NullMoments", "TableSet", "null_moments", "default_tables"]
@@ -77,6 +77,16 @@ class NullMoments:
     approximate : str
         Non-empty when the route is an approximation beyond the model
         (extremes of an uncalibrated shape).
+
+    Examples
+    --------
+    >>> import nullatlas
+    >>> from nullatlas.lookup.inference.nullmoments import default_tables, null_moments
+    >>> nm = null_moments(default_tables(), nullatlas.Disk(0, 0, 150), 500, "euler")
+    >>> nm.kind, nm.mean.shape, nm.cov.shape, nm.sd.shape
+    ('curve', (60,), (60, 60), (60,))
+    >>> bool(nm.usable.any()), nm.replicates >= 2000
+    (True, True)
     """
 
     stat: str
@@ -182,7 +192,27 @@ class _Table:
 
 
 class TableSet:
-    """The tables consulted by the runtime: user tables first, then the shipped ones."""
+    """The tables consulted by the runtime: user tables first, then the shipped ones.
+
+    Parameters
+    ----------
+    paths : sequence of str
+        Your own tables (``nullatlas-calibrate build``), consulted first.
+    use_shipped : bool
+        Also consult the shipped tables (after ``paths``).
+
+    Examples
+    --------
+    >>> import os
+    >>> from nullatlas.lookup.inference.nullmoments import TableSet
+    >>> tables = TableSet()
+    >>> [os.path.basename(t.path) for t in tables.tables]
+    ['null2d.h5', 'null3d.h5']
+    >>> [os.path.basename(t.path) for t in tables.for_dimension(3)]
+    ['null3d.h5']
+    >>> TableSet(use_shipped=False).tables
+    []
+    """
 
     def __init__(self, paths=(), use_shipped: bool = True):
         self.tables = [_Table(p) for p in paths]
@@ -198,13 +228,20 @@ class TableSet:
 
 @functools.lru_cache(maxsize=1)
 def default_tables() -> TableSet:
-    """The shipped tables (opened once per process)."""
+    """The shipped tables (opened once per process).
+
+    Examples
+    --------
+    >>> from nullatlas.lookup.inference.nullmoments import default_tables
+    >>> default_tables() is default_tables()
+    True
+    """
     return TableSet()
 
 
 @functools.lru_cache(maxsize=256)
 def _shape_by_spec(spec: str):
-    from .windows import parse_window
+    from ..patterns.windows import parse_window
 
     return normalise(parse_window(spec))[0]
 
@@ -326,7 +363,7 @@ def extreme_sample(x: np.ndarray, coef: np.ndarray, n: int, b1: float,
 def _geo_moments(t: _Table, stat: str, n: int, window, d: int, near: list):
     """Geometric-model moments at (window, n); correlation and usable grid
     points of the nearest calibrated cell(s) ``near``."""
-    from .boundary import covariates
+    from ..patterns.boundary import covariates
 
     g = t.geomodel(stat)
     if g is None:
@@ -368,10 +405,54 @@ def _nearest_cells(t: _Table, stat: str, kap: float, n: int, prefer: str | None 
 
 
 def null_moments(tables: TableSet, window, n: int, stat: str) -> NullMoments | None:
-    """Null moments of ``stat`` for ``n`` points in ``window``; None when no
-    table of the window's dimension has the statistic.
+    """Null moments of ``stat`` for ``n`` points in ``window``.
 
-    Raises TableError only for damaged tables."""
+    Parameters
+    ----------
+    tables : TableSet
+        The tables to consult, in order (e.g. :func:`default_tables`).
+    window : Window
+        The observation window; its shape decides the route (module doc).
+    n : int
+        Number of points.
+    stat : str
+        A statistic name of ``lookup.summaries.statistics.STATISTICS``.
+
+    Returns
+    -------
+    NullMoments or None
+        None when no table of the window's dimension has the statistic.
+
+    Raises
+    ------
+    TableError
+        Only for damaged tables.
+
+    Examples
+    --------
+    A calibrated shape (every disk) at a tabulated n reads one cell; between
+    two cells the moments are interpolated in n^(-1/d):
+
+    >>> import numpy as np
+    >>> import nullatlas
+    >>> from nullatlas.lookup.inference.nullmoments import default_tables, null_moments
+    >>> wafer = nullatlas.Disk(0, 0, 150)
+    >>> nm = null_moments(default_tables(), wafer, 500, "nnmean")
+    >>> nm.route, nm.shape, nm.cells
+    ('cell', 'disk', ['disk-n00000500'])
+    >>> np.round(nm.mean, 2), np.round(nm.sd, 2)
+    (array([0.51]), array([0.01]))
+    >>> nm = null_moments(default_tables(), wafer, 700, "nnmean")
+    >>> nm.route, nm.cells
+    ('interpolated', ['disk-n00000500', 'disk-n00001000'])
+
+    A rectangle of aspect 3 is not a calibrated shape: the finite-window
+    model in (n, kappa) gives the moments:
+
+    >>> nm = null_moments(default_tables(), nullatlas.Rectangle(0, 0, 3, 1), 700, "nnmean")
+    >>> nm.route, nm.shape
+    ('model', None)
+    """
     st = STATISTICS[stat]
     d = window.dim
     periodic = bool(getattr(window, "periodic", False))

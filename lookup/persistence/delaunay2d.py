@@ -59,159 +59,27 @@ All per-point work runs inside ``numba.njit(cache=True)`` functions.
 """
 from __future__ import annotations
 
-import math
-
 import numpy as np
 from numba import njit
+
+from .expansions import (
+    _EPS,
+    _fast_expansion_sum_zeroelim,
+    _scale_expansion_zeroelim,
+    scale_for_predicates,
+)
 
 __all__ = [
     "delaunay_mesh", "delaunay_triangles", "delaunay_triangles_qhull", "orient2d", "incircle"]
 
 # --------------------------------------------------------------------------------------
-# Floating-point expansion arithmetic (Shewchuk 1997, section 2).
-#
-# The error-free transformations are written out inline (rather than as tiny helper
-# functions) to keep the number of separately compiled numba functions -- and so the
-# cold compile time and the cache-load time -- small:
-#   Two-Sum (Knuth):     x = a + b;  bv = x - a;  av = x - bv;  y = (a - av) + (b - bv)
-#   Fast-Two-Sum (Dekker, |a| >= |b|):  x = a + b;  y = b - (x - a)
-#   Two-Diff:            x = a - b;  bv = a - x;  av = x + bv;  y = (a - av) + (bv - b)
-#   Split (Dekker):      c = (2^27 + 1) a;  hi = c - (c - a);  lo = a - hi
-#   Two-Product:         x = a b;  y = lo_a lo_b - (((x - hi_a hi_b) - lo_a hi_b) - hi_a lo_b)
-# each giving x + y == exact result.  An "expansion" is an array of components of
-# increasing magnitude, strongly nonoverlapping, whose exact sum is the value; its
-# sign is the sign of its last (largest) component.  Numba does not contract
-# a*b + c into FMA instructions (no fast-math), which these identities require.
+# Floating-point expansion arithmetic (Shewchuk 1997, section 2).  The error-free
+# transformations are written out inline below (their formulas, and why inline:
+# ``expansions.py``); Scale-Expansion-Zeroelim and Fast-Expansion-Sum-Zeroelim are
+# shared with the 3D kernel.
 # --------------------------------------------------------------------------------------
-_EPS = 2.0 ** -53                      # Shewchuk's "epsilon": half an ulp of 1.0
-_SPLITTER = 2.0 ** 27 + 1.0            # Dekker split constant for 53-bit mantissas
 _CCW_ERRBOUND_A = (3.0 + 16.0 * _EPS) * _EPS
 _ICC_ERRBOUND_A = (10.0 + 96.0 * _EPS) * _EPS
-
-
-
-@njit(cache=True)
-def _scale_expansion_zeroelim(elen, e, b, h):
-    """h <- b * e (Shewchuk's Scale-Expansion-Zeroelim); returns len(h) >= 1."""
-    c = _SPLITTER * b
-    bhi = c - (c - b)
-    blo = b - bhi
-    a = e[0]
-    q = a * b
-    c = _SPLITTER * a
-    ahi = c - (c - a)
-    alo = a - ahi
-    hh = alo * blo - (((q - ahi * bhi) - alo * bhi) - ahi * blo)
-    hindex = 0
-    if hh != 0.0:
-        h[hindex] = hh
-        hindex += 1
-    for i in range(1, elen):
-        a = e[i]
-        p1 = a * b
-        c = _SPLITTER * a
-        ahi = c - (c - a)
-        alo = a - ahi
-        p0 = alo * blo - (((p1 - ahi * bhi) - alo * bhi) - ahi * blo)
-        s = q + p0                      # Two-Sum(q, p0) -> s + hh
-        bv = s - q
-        av = s - bv
-        hh = (q - av) + (p0 - bv)
-        if hh != 0.0:
-            h[hindex] = hh
-            hindex += 1
-        q = p1 + s                      # Fast-Two-Sum(p1, s) -> q + hh
-        hh = s - (q - p1)
-        if hh != 0.0:
-            h[hindex] = hh
-            hindex += 1
-    if q != 0.0 or hindex == 0:
-        h[hindex] = q
-        hindex += 1
-    return hindex
-
-
-@njit(cache=True)
-def _fast_expansion_sum_zeroelim(elen, e, flen, f, h):
-    """h <- e + f (Shewchuk's Fast-Expansion-Sum-Zeroelim); returns len(h) >= 1.
-
-    The components of e and f are merged by increasing magnitude and accumulated
-    with (Fast-)Two-Sum; strongly nonoverlapping inputs give a strongly
-    nonoverlapping exact sum (Shewchuk 1997, Theorem 13)."""
-    enow = e[0]
-    fnow = f[0]
-    ei = 0
-    fi = 0
-    if (fnow > enow) == (fnow > -enow):
-        q = enow
-        ei += 1
-        if ei < elen:
-            enow = e[ei]
-    else:
-        q = fnow
-        fi += 1
-        if fi < flen:
-            fnow = f[fi]
-    hi = 0
-    if ei < elen and fi < flen:
-        if (fnow > enow) == (fnow > -enow):
-            g = enow
-            ei += 1
-            if ei < elen:
-                enow = e[ei]
-        else:
-            g = fnow
-            fi += 1
-            if fi < flen:
-                fnow = f[fi]
-        qn = g + q                      # Fast-Two-Sum(g, q)
-        hh = q - (qn - g)
-        q = qn
-        if hh != 0.0:
-            h[hi] = hh
-            hi += 1
-        while ei < elen and fi < flen:
-            if (fnow > enow) == (fnow > -enow):
-                g = enow
-                ei += 1
-                if ei < elen:
-                    enow = e[ei]
-            else:
-                g = fnow
-                fi += 1
-                if fi < flen:
-                    fnow = f[fi]
-            qn = q + g                  # Two-Sum(q, g)
-            bv = qn - q
-            av = qn - bv
-            hh = (q - av) + (g - bv)
-            q = qn
-            if hh != 0.0:
-                h[hi] = hh
-                hi += 1
-    while ei < elen or fi < flen:       # at most one of e, f has components left
-        if ei < elen:
-            g = enow
-            ei += 1
-            if ei < elen:
-                enow = e[ei]
-        else:
-            g = fnow
-            fi += 1
-            if fi < flen:
-                fnow = f[fi]
-        qn = q + g                      # Two-Sum(q, g)
-        bv = qn - q
-        av = qn - bv
-        hh = (q - av) + (g - bv)
-        q = qn
-        if hh != 0.0:
-            h[hi] = hh
-            hi += 1
-    if q != 0.0 or hi == 0:
-        h[hi] = q
-        hi += 1
-    return hi
 
 
 @njit(cache=True)
@@ -861,14 +729,7 @@ def delaunay_triangles(points: np.ndarray) -> np.ndarray:
     """
     pts = _as_points(points)
     n = pts.shape[0]
-    # Predicates are homogeneous: an exact power-of-two rescaling of all
-    # coordinates changes no sign, and keeps the degree-4 incircle products of
-    # very large (or very small) coordinates clear of overflow (underflow).
-    big = float(np.abs(pts).max())
-    if big > 0.0:
-        e = math.frexp(big)[1]
-        if e > 64 or e < -64:
-            pts = pts * math.ldexp(1.0, -e)
+    pts, _ = scale_for_predicates(pts)
     if n >= 2 ** 30:
         raise ValueError("too many points (int32 triangle indices)")
     rank = np.random.default_rng(_BRIO_SEED).permutation(n)
@@ -901,13 +762,7 @@ def delaunay_mesh(points: np.ndarray):
     """
     pts = _as_points(points)
     n = pts.shape[0]
-    scaled = False
-    big = float(np.abs(pts).max())
-    if big > 0.0:
-        e = math.frexp(big)[1]
-        if e > 64 or e < -64:
-            pts = pts * math.ldexp(1.0, -e)
-            scaled = True
+    pts, scaled = scale_for_predicates(pts)
     if n >= 2 ** 30:
         raise ValueError("too many points (int32 triangle indices)")
     rank = np.random.default_rng(_BRIO_SEED).permutation(n)

@@ -25,8 +25,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from ..persistence.diagram import Diagram
 from . import grids
-from .diagram import Diagram
 
 __all__ = [
     "betti_curve", "euler_curve", "persistent_betti", "apf", "total_persistence",

@@ -1,9 +1,9 @@
 """Point-process models with parameters in normalised units, conditioned on n.
 
 A model specification ``NAME[:key=value,...]`` names a process of
-``lookup.alternatives`` (or ``lookup.nulls``) whose lengths are multiples of
-the pattern's mean spacing unit (|W| / n)^(1/d), so that it means the same
-at any n and window size:
+``lookup.processes.alternatives`` (or ``lookup.processes.csr``) whose lengths
+are multiples of the pattern's mean spacing unit (|W| / n)^(1/d), so that it
+means the same at any n and window size:
 
 * ``csr`` — complete spatial randomness (the default null);
 * ``thomas:parents=0.05,sigma=0.25`` — Thomas clusters, parents per point
@@ -30,9 +30,9 @@ import math
 
 import numpy as np
 
+from ..errors import OptionError
 from . import alternatives as alt
-from . import nulls
-from .errors import OptionError
+from .csr import csr
 
 __all__ = ["FAMILIES", "parse_model", "simulate", "describe"]
 
@@ -79,7 +79,7 @@ def _raw(window, name, p, n, rng, unit_n=None):
     lam = n / window.measure
     unit = (window.measure / (unit_n or n)) ** (1.0 / d)
     if name == "thomas":
-        return nulls.thomas(window, p["parents"] * lam, 1.3 / p["parents"], p["sigma"] * unit, rng)
+        return alt.thomas(window, p["parents"] * lam, 1.3 / p["parents"], p["sigma"] * unit, rng)
     if name == "matern":
         return alt.matern_cluster(window, p["parents"] * lam, 1.3 / p["parents"],
                                   p["radius"] * unit, rng)
@@ -96,7 +96,7 @@ def _raw(window, name, p, n, rng, unit_n=None):
     if name == "strauss":
         return alt.strauss(window, 1.5 * lam, p["gamma"], p["r"] * unit, rng)
     if name == "lattice":
-        return nulls.perturbed_lattice(window, int(1.3 * n) + 1, p["jitter"], rng)
+        return alt.perturbed_lattice(window, int(1.3 * n) + 1, p["jitter"], rng)
     if name == "voids":
         if not 0 <= p["fraction"] < 0.95:
             raise OptionError("voids: fraction must lie in [0, 0.95)")
@@ -118,7 +118,7 @@ def simulate(window, name: str, params: dict, k: int, rng, n: int | None = None)
     if k == 0:
         return np.zeros((0, window.dim))
     if name == "csr":
-        return nulls.csr(window, k, rng)
+        return csr(window, k, rng)
     for t in range(6):
         # ask for more points on every retry (inhibition lowers the count)
         x = _raw(window, name, params, int(math.ceil(k * 1.5 ** t)), rng, unit_n=n or k)

@@ -23,7 +23,7 @@ import warnings
 
 import numpy as np
 
-from .errors import WindowError
+from ..errors import WindowError
 
 __all__ = [
     "Ball",
@@ -65,6 +65,26 @@ class Window(metaclass=_Checked):
         Short name of the window type (``"rect"``, ``"disk"``, ...).
     estimated : bool
         True when the window was derived from the data (``bbox``/``hull``).
+
+    Examples
+    --------
+    Every window answers the same questions; here a disk of radius 2:
+
+    >>> import numpy as np
+    >>> from nullatlas import Disk
+    >>> w = Disk(0, 0, 2)
+    >>> w.dim, round(float(w.measure), 4), round(float(w.boundary_measure), 4)
+    (2, 12.5664, 12.5664)
+    >>> round(float(w.kappa), 4)          # 2 sqrt(pi) for every disk
+    3.5449
+    >>> w.contains(np.array([[0.0, 1.9], [2.0, 1.0]]))
+    array([ True, False])
+    >>> w.boundary_distance(np.array([[0.5, 0.0]]))
+    array([1.5])
+    >>> w.sample(1000, np.random.default_rng(0)).shape
+    (1000, 2)
+    >>> w.spec()
+    'disk:0,0,2'
     """
 
     dim: int = 0
@@ -253,7 +273,19 @@ def _finite(values, what):
 
 
 class Rectangle(Window):
-    """Axis-aligned rectangle [xmin, xmax] x [ymin, ymax]."""
+    """Axis-aligned rectangle [xmin, xmax] x [ymin, ymax].
+
+    Examples
+    --------
+    >>> from nullatlas import Rectangle
+    >>> r = Rectangle(0, 0, 4, 2)
+    >>> r.measure, r.boundary_measure, round(r.kappa, 4)
+    (8.0, 12.0, 4.2426)
+    >>> Rectangle(10, 10, 11, 11).kappa   # every square: 4
+    4.0
+    >>> r.describe()["spec"]
+    'rect:0,0,4,2'
+    """
 
     dim = 2
     kind = "rect"
@@ -311,7 +343,17 @@ class Rectangle(Window):
 
 
 class Box(Rectangle):
-    """Axis-aligned box in 3D."""
+    """Axis-aligned box in 3D.
+
+    Examples
+    --------
+    >>> from nullatlas import Box
+    >>> cube = Box(0, 0, 0, 1, 1, 1)
+    >>> cube.dim, cube.measure, cube.boundary_measure, cube.kappa
+    (3, 1.0, 6.0, 6.0)
+    >>> round(Box(0, 0, 0, 1, 1, 4).kappa, 4)
+    7.1433
+    """
 
     dim = 3
     kind = "box"
@@ -334,7 +376,17 @@ class Box(Rectangle):
 
 
 class Disk(Window):
-    """Disk of centre (cx, cy) and radius r."""
+    """Disk of centre (cx, cy) and radius r.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from nullatlas import Disk
+    >>> wafer = Disk(0, 0, 150)
+    >>> pts = wafer.sample(500, np.random.default_rng(1))
+    >>> bool(wafer.contains(pts).all()), bool(np.hypot(*pts.T).max() <= 150)
+    (True, True)
+    """
 
     dim = 2
     kind = "disk"
@@ -382,7 +434,18 @@ class Disk(Window):
 
 
 class Ball(Window):
-    """Ball of centre (cx, cy, cz) and radius r."""
+    """Ball of centre (cx, cy, cz) and radius r.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from nullatlas import Ball
+    >>> b = Ball(0, 0, 0, 1)
+    >>> round(float(b.measure), 4), round(float(b.kappa), 4)   # 4 pi / 3, 6^(2/3) pi^(1/3)
+    (4.1888, 4.836)
+    >>> b.sample(3, np.random.default_rng(0)).shape
+    (3, 3)
+    """
 
     dim = 3
     kind = "ball"
@@ -530,6 +593,21 @@ class PolygonWindow(Window):
         A valid polygonal geometry of positive area.
     source : str, optional
         Where the geometry came from (a file path), for ``spec``.
+
+    Examples
+    --------
+    A square plate with a square hole:
+
+    >>> import numpy as np
+    >>> import shapely
+    >>> from nullatlas import PolygonWindow
+    >>> plate = shapely.Polygon([(0, 0), (4, 0), (4, 4), (0, 4)],
+    ...                         holes=[[(1, 1), (2, 1), (2, 2), (1, 2)]])
+    >>> w = PolygonWindow(plate)
+    >>> w.measure, w.boundary_measure, w.holes, w.convex
+    (15.0, 20.0, 1, False)
+    >>> w.contains(np.array([[1.5, 1.5], [3.0, 3.0]]))
+    array([False,  True])
     """
 
     dim = 2
@@ -664,7 +742,19 @@ class PolygonWindow(Window):
 
 
 class ConvexPolytope(Window):
-    """Convex polyhedron in 3D given by the convex hull of some points."""
+    """Convex polyhedron in 3D given by the convex hull of some points.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from nullatlas import ConvexPolytope
+    >>> corners = np.array([[x, y, z] for x in (0, 1) for y in (0, 1) for z in (0, 1)])
+    >>> w = ConvexPolytope(corners)
+    >>> round(w.measure, 12), round(w.boundary_measure, 12)
+    (1.0, 6.0)
+    >>> w.contains(np.array([[0.5, 0.5, 0.5], [1.5, 0.0, 0.0]]))
+    array([ True, False])
+    """
 
     dim = 3
     kind = "hull"
@@ -676,7 +766,8 @@ class ConvexPolytope(Window):
         try:
             self._hull = ConvexHull(v)
         except (QhullError, ValueError) as exc:
-            raise WindowError(f"cannot build a 3D convex hull: points are flat or too few ({exc.__class__.__name__})") from None
+            raise WindowError("cannot build a 3D convex hull: points are flat or too few "
+                              f"({exc.__class__.__name__})") from None
         # Facet equations n.x + b <= 0 inside, |n| = 1.
         self._eq = self._hull.equations
         self.vertices = v[self._hull.vertices]
@@ -1301,7 +1392,7 @@ def _parse_mask(spec: str, key: str, rest: str) -> Window:
 _NUMERIC = {"rect": (Rectangle, 4), "disk": (Disk, 3), "box": (Box, 6), "ball": (Ball, 4),
             "cylinder": (Cylinder, 5)}
 
-from .windowspec import SPEC_HELP
+from .windowspec import SPEC_HELP  # noqa: E402  (re-exported)
 
 
 def _parse_errors():
@@ -1376,6 +1467,29 @@ def parse_window(spec: str, points: np.ndarray | None = None) -> Window:
     ------
     WindowError
         On any malformed specification.
+
+    Examples
+    --------
+    >>> import warnings
+    >>> import numpy as np
+    >>> from nullatlas import parse_window
+    >>> parse_window("disk:0,0,150").kind
+    'disk'
+    >>> parse_window("rect:0,0,10,5").measure
+    50.0
+    >>> parse_window("polygon:POLYGON ((0 0, 3 0, 0 4, 0 0))").measure
+    6.0
+    >>> parse_window("ball:0,0,0,1").dim
+    3
+
+    A window estimated from the points warns that it biases the test:
+
+    >>> pts = np.array([[0.0, 0.0], [2.0, 1.0], [1.0, 3.0]])
+    >>> with warnings.catch_warnings(record=True) as caught:
+    ...     warnings.simplefilter("always")
+    ...     w = parse_window("bbox", pts)
+    >>> w.spec(), w.estimated, caught[0].category.__name__
+    ('rect:0,0,2,3', True, 'EstimatedWindowWarning')
     """
     if not isinstance(spec, str) or not spec.strip():
         raise WindowError(f"empty window specification; expected {SPEC_HELP}")

@@ -15,8 +15,8 @@ nothing to any summary computed here.
 Two engines compute the same diagram:
 
 ``fast`` (default)
-    Our exact kernels: ``lookup.alpha2d`` (all of H0 and H1 in 2D) and
-    ``lookup.alpha3d`` (H0, H2, Betti and Euler curves and total H1
+    Our exact kernels: ``lookup.persistence.alpha2d`` (all of H0 and H1 in 2D) and
+    ``lookup.persistence.alpha3d`` (H0, H2, Betti and Euler curves and total H1
     persistence in 3D; the H1 pairs themselves, needed only by pair-level
     summaries of loops in 3D, are computed by gudhi on first use).  Values are
     exactly rounded, so ties in lattices stay ties.
@@ -60,6 +60,17 @@ class Diagram:
         Dimension of the ambient space.
     scale : float
         (n / |W|)^(1/d); radii are ``pairs / scale``.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from nullatlas.lookup import Diagram
+    >>> dg = Diagram(pairs=[np.array([[0.0, np.inf], [0.0, 1.0]]), np.array([[1.0, 1.5]])],
+    ...              n=2, dim=2)
+    >>> dg.finite(0), dg.total_lifetime(1), dg.max_dim
+    (array([[0., 1.]]), 0.5, 1)
+    >>> dg.betti_counts(1, np.array([0.5, 1.2, 1.5]))
+    array([0, 1, 0])
     """
 
     pairs: list
@@ -81,7 +92,7 @@ class Diagram:
     def homology_dims(self) -> range:
         """Dimensions q that can hold classes: 0..d-1 in Euclidean space (the
         union of balls never has a d-dimensional class); 0..d on a torus
-        (``lookup.periodic.PeriodicDiagram``)."""
+        (``lookup.persistence.periodic.PeriodicDiagram``)."""
         return range(self.dim)
 
     @property
@@ -103,7 +114,7 @@ class Diagram:
 
 
 class FastDiagram3D(Diagram):
-    """3D diagram from ``lookup.alpha3d``: H0 and H2 pairs, the Betti-1 curve
+    """3D diagram from ``lookup.persistence.alpha3d``: H0 and H2 pairs, the Betti-1 curve
     from chi = b0 - b1 + b2 and the total H1 persistence from the filtration;
     the H1 pairs are computed (by gudhi) only when asked for."""
 
@@ -169,6 +180,32 @@ def alpha_diagram(points: np.ndarray, measure: float | None = None,
     -------
     Diagram
         H0..H(d-1), radius units scaled to normalised radius.
+
+    Examples
+    --------
+    The four corners of a square of side 2: three components merge at
+    radius 1 (half a side), and the loop they close is filled at sqrt(2),
+    the circumradius of the triangles:
+
+    >>> import numpy as np
+    >>> from nullatlas.lookup import alpha_diagram
+    >>> square = np.array([[0.0, 0.0], [2.0, 0.0], [2.0, 2.0], [0.0, 2.0]])
+    >>> dg = alpha_diagram(square)
+    >>> dg.pairs[0]
+    array([[ 0.,  1.],
+           [ 0.,  1.],
+           [ 0.,  1.],
+           [ 0., inf]])
+    >>> dg.pairs[1]
+    array([[1.        , 1.41421356]])
+    >>> alpha_diagram(square, engine="gudhi").pairs[1]
+    array([[1.        , 1.41421356]])
+
+    With the window's area the radii are normalised, rho = r (n / |W|)^(1/d):
+
+    >>> dg = alpha_diagram(square, measure=16.0)
+    >>> dg.scale, dg.pairs[1]
+    (0.5, array([[0.5       , 0.70710678]]))
     """
     if engine not in ENGINES:
         raise ValueError(f"engine must be one of {ENGINES}")

@@ -5,7 +5,7 @@ exact orientation predicate, points it misses are inserted, and Lawson's edge
 flips with the exact in-circle predicate turn it into a Delaunay triangulation
 (co-circular ties are left alone: every triangulation of a co-circular polygon
 gives the same alpha diagram).  Also the facet adjacency of 2D and 3D meshes.
-This is the slow, general path; ``lookup.delaunay2d`` gives an exact Delaunay
+This is the slow, general path; ``lookup.persistence.delaunay2d`` gives an exact Delaunay
 triangulation with its adjacency directly.
 """
 from __future__ import annotations

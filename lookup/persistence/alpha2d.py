@@ -6,10 +6,10 @@ gets its squared circumradius; an edge is *attached* by a triangle whose third
 vertex lies strictly inside the edge's diametral circle (an obtuse angle
 opposite it) and then gets that triangle's value, otherwise its squared half
 length (a *Gabriel* edge); vertices get 0.  Values are exactly rounded the way
-gudhi's exact mode rounds them (``lookup.exactvalues``), so lattices and other
+gudhi's exact mode rounds them (``lookup.persistence.exactvalues``), so lattices and other
 co-circular inputs give exactly gudhi's pairs, with no spurious tiny ones.
 
-Persistence in one sweep of union-find (``lookup.pairing``):
+Persistence in one sweep of union-find (``lookup.persistence.pairing``):
 
 * A triangle attaches at most one edge (two obtuse angles opposite one edge
   would violate the Delaunay property), and an attached edge e enters the
@@ -26,10 +26,10 @@ Persistence in one sweep of union-find (``lookup.pairing``):
   (edge value, value of that component's oldest triangle).
 
 Pairs of zero length are dropped, as gudhi does.  The triangulation comes from
-``lookup.delaunay2d.delaunay_mesh`` (exact, with adjacency, in Hilbert order
+``lookup.persistence.delaunay2d.delaunay_mesh`` (exact, with adjacency, in Hilbert order
 for memory locality).  When it cannot be used, any triangulation (scipy's Qhull
 on centred coordinates by default) is checked and repaired into an exact
-Delaunay one (``lookup.meshrepair``), and the full filtration of every edge is
+Delaunay one (``lookup.persistence.meshrepair``), and the full filtration of every edge is
 computed (:func:`alpha_filtration_2d`).
 """
 from __future__ import annotations
@@ -39,9 +39,19 @@ from dataclasses import dataclass
 import numpy as np
 from numba import njit
 
-from .exactvalues import (_edge2_dd, _edge_exact, _edge_value, _new_regs, _obtuse,
-                          _obtuse2_filter, _obtuse_exact, _orient2d, _tri2_dd,
-                          _tri2_exact, _tri2_value)
+from .exactvalues import (
+    _edge2_dd,
+    _edge_exact,
+    _edge_value,
+    _new_regs,
+    _obtuse,
+    _obtuse2_filter,
+    _obtuse_exact,
+    _orient2d,
+    _tri2_dd,
+    _tri2_exact,
+    _tri2_value,
+)
 from .meshrepair import _facet_adjacency, _insert_missing, _legalize, _orient_all
 from .pairing import _dual_pairs, _kruskal, radix_argsort
 from .pointsets import check_points, distinct_morton, power_of_two_scale

@@ -18,7 +18,7 @@ Besag's L function from Ripley's K, border corrected (Ripley, JRSS B 39,
     L(rho) = (lambda K / pi)^(1/2) (2D),  (3 lambda K / (4 pi))^(1/3) (3D);
     CSR: L(rho) = rho.
 Grid points with no interior point (#{i : b_i >= r} = 0) are NaN.
-On a periodic window (a torus, ``lookup.periodic``) the k-d tree is periodic,
+On a periodic window (a torus, ``lookup.patterns.periodic``) the k-d tree is periodic,
 distances are minimum-image distances and b_i = inf: G and K then use every
 point and every pair, with no edge correction needed (no boundary).
 """

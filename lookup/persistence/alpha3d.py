@@ -1,12 +1,12 @@
 """Exact persistence of the 3D alpha (Čech) filtration: H0, H2, Euler and Betti curves.
 
-Filtration values as in ``lookup.alpha2d`` (gudhi's convention, exactly
-rounded by ``lookup.exactvalues``): tetrahedra get their squared circumradius,
+Filtration values as in ``lookup.persistence.alpha2d`` (gudhi's convention, exactly
+rounded by ``lookup.persistence.exactvalues``): tetrahedra get their squared circumradius,
 a triangle attached by a tetrahedron (the opposite vertex strictly inside its
 smallest circumsphere) the smallest value of its cofaces, otherwise its own
 squared circumradius; edges likewise with their diametral sphere.
 
-* H0: Kruskal over the edges (``lookup.pairing``).
+* H0: Kruskal over the edges (``lookup.persistence.pairing``).
 * H2: the elder-rule sweep of the dual graph (tetrahedra plus the outer cell)
   over the triangles in decreasing order (Alexander duality).
 * H1 is not paired here.  Its Betti curve follows from the Euler
@@ -30,8 +30,16 @@ import numpy as np
 from numba import njit
 
 from .alpha2d import _gudhi_top_simplices, _prepare, _remap, sort_rows
-from .exactvalues import (_edge_value, _insphere, _new_regs, _obtuse, _tet_value,
-                          _tri3_value, _tri_attach, _tri_attach_filter)
+from .exactvalues import (
+    _edge_value,
+    _insphere,
+    _new_regs,
+    _obtuse,
+    _tet_value,
+    _tri3_value,
+    _tri_attach,
+    _tri_attach_filter,
+)
 from .meshrepair import _facet_adjacency
 from .pairing import _dual_pairs, _kruskal, radix_argsort, radix_argsort_keys
 
@@ -48,7 +56,7 @@ def scipy_tetrahedra_3d(points: np.ndarray) -> np.ndarray:
 
 
 def _exact_mesh_3d(Ps):
-    """(local points, tets, neighbours) from ``lookup.delaunay3d``, or None."""
+    """(local points, tets, neighbours) from ``lookup.persistence.delaunay3d``, or None."""
     try:
         from .delaunay3d import delaunay_mesh_3d
     except ImportError:

@@ -14,9 +14,9 @@ from typing import Callable
 import numpy as np
 from scipy.spatial import cKDTree
 
-from . import classical, grids, summaries
-from .diagram import Diagram, alpha_diagram, intensity_scale
-from .errors import OptionError
+from ..errors import OptionError
+from ..persistence.diagram import Diagram, alpha_diagram, intensity_scale
+from . import classical, grids, topological
 
 __all__ = ["Statistic", "STATISTICS", "resolve_stats", "PatternSummary", "compute",
            "default_stats", "evaluate"]
@@ -72,32 +72,32 @@ def _mk():
         dims = (2, 3) if q < 2 else (3,)
         add(f"betti{q}", "curve", dims, None, grids.RHO, True,
             f"Betti-{q} curve beta_{q}(rho)/n",
-            lambda ps, q=q: summaries.betti_curve(ps.diagram, q))
+            lambda ps, q=q: topological.betti_curve(ps.diagram, q))
         add(f"pbetti{q}", "curve", dims, None, grids.PBETTI_PAIRS, True,
             f"persistent Betti-{q} numbers beta_{q}(s,t)/n",
-            lambda ps, q=q: summaries.persistent_betti(ps.diagram, q))
+            lambda ps, q=q: topological.persistent_betti(ps.diagram, q))
         add(f"apf{q}", "curve", dims, None, grids.APF_AGE, True,
             f"accumulated persistence function of H{q}",
-            lambda ps, q=q: summaries.apf(ps.diagram, q))
+            lambda ps, q=q: topological.apf(ps.diagram, q))
         # H0 total persistence is half the MST length per point: clustering
         # shortens it.  Higher dimensions: direction depends on the alternative.
         add(f"total{q}", "scalar", dims, -1 if q == 0 else None, None, True,
             f"total persistence of H{q} per point",
-            lambda ps, q=q: summaries.total_persistence(ps.diagram, q))
+            lambda ps, q=q: topological.total_persistence(ps.diagram, q))
         if q >= 1:
             # Large empty regions between clusters make long-lived holes.
             add(f"maxpers{q}", "extreme", dims, +1, None, True,
                 f"largest H{q} lifetime (normalised radius)",
-                lambda ps, q=q: summaries.max_lifetime(ps.diagram, q))
+                lambda ps, q=q: topological.max_lifetime(ps.diagram, q))
             add(f"maxratio{q}", "extreme", dims, +1, None, True,
                 f"largest H{q} death/birth ratio",
-                lambda ps, q=q: summaries.max_ratio(ps.diagram, q))
+                lambda ps, q=q: topological.max_ratio(ps.diagram, q))
             add(f"silhouette{q}", "curve", dims, None, grids.SILHOUETTE_T, True,
                 f"power-weighted silhouette of H{q}",
-                lambda ps, q=q: summaries.silhouette(ps.diagram, q))
+                lambda ps, q=q: topological.silhouette(ps.diagram, q))
     add("euler", "curve", (2, 3), None, grids.RHO, True,
         "Euler characteristic curve chi(rho)/n",
-        lambda ps: summaries.euler_curve(ps.diagram))
+        lambda ps: topological.euler_curve(ps.diagram))
     add("nnmean", "scalar", (2, 3), -1, None, False,
         "Clark-Evans mean nearest-neighbour distance (normalised)",
         lambda ps: classical.nn_mean(ps.nn, ps.scale))
@@ -163,13 +163,13 @@ class PatternSummary:
 
     @property
     def periodic(self) -> bool:
-        """True on a torus (``lookup.periodic``): periodic images everywhere."""
+        """True on a torus (``lookup.patterns.periodic``): periodic images everywhere."""
         return bool(getattr(self.window, "periodic", False))
 
     @property
     def diagram(self) -> Diagram:
         if self.periodic:
-            from .periodic import periodic_diagram
+            from ..persistence.periodic import periodic_diagram
             return self._get("diagram", lambda: periodic_diagram(self.points, self.window,
                                                                  self.engine))
         engine = self.engine
@@ -205,7 +205,7 @@ class PatternSummary:
 def compute(points, window, stats: list[Statistic], engine: str = "fast") -> dict:
     """Values of ``stats`` for one pattern: name -> float or ndarray.
 
-    ``engine`` selects the diagram engine (see :func:`lookup.diagram.alpha_diagram`)."""
+    ``engine`` selects the diagram engine (see :func:`lookup.persistence.diagram.alpha_diagram`)."""
     return evaluate(PatternSummary(points, window, engine), stats)
 
 

@@ -5,7 +5,11 @@ Generator, are vectorised (or compiled), and return the points inside the
 window.  They serve as alternatives in power studies and as nulls of the
 Monte Carlo route.
 
-* Thomas cluster process: ``nulls.thomas``.
+* Thomas cluster process (Thomas 1949; Diggle 2013): Poisson parents of
+  intensity ``kappa`` and a Poisson(``mu``) number of offspring per parent,
+  displaced by N(0, sigma^2 I); parents are simulated in the window's
+  bounding box dilated by 4 sigma so that clusters centred outside W still
+  contribute.  K(r) = pi r^2 + (1 - exp(-r^2 / (4 sigma^2))) / kappa in 2D.
 * Matérn cluster process (Matérn 1960; Illian, Penttinen, Stoyan & Stoyan,
   *Statistical Analysis and Modelling of Spatial Point Patterns*, 2008):
   Poisson parents of intensity kappa, Poisson(mu) offspring uniform in the
@@ -22,7 +26,9 @@ Monte Carlo route.
   birth–death Metropolis–Hastings chain (Geyer & Møller, Scand. J. Statist.
   21, 1994) started from a binomial pattern, ``steps`` proposals (default
   200 per expected point); gamma = 1 is a Poisson process.
-* Perturbed (jittered) lattice: ``nulls.perturbed_lattice``.
+* Perturbed lattice (a regular alternative): a triangular (2D) or cubic
+  (3D) lattice of the window's intensity, randomly shifted, each site moved
+  by a uniform offset of relative size ``jitter``.
 * Poisson points with Poisson voids ("Swiss cheese"): a Poisson process of
   intensity lambda restricted to the complement of a Boolean model of balls
   of radius R whose centres have intensity lambda_h (centres in the window
@@ -43,8 +49,8 @@ import operator
 import numba
 import numpy as np
 
-from .errors import OptionError
-from .nulls import _bounds, perturbed_lattice, thomas
+from ..errors import OptionError
+from .csr import _bounds
 
 __all__ = ["matern_cluster", "matern_hardcore", "strauss", "inhomogeneous_poisson", "voids",
            "intensity_function", "ball_volume", "thomas", "perturbed_lattice"]
@@ -59,6 +65,49 @@ def _uniform_ball(k: int, d: int, rng) -> np.ndarray:
     g = rng.standard_normal((k, d))
     g /= np.linalg.norm(g, axis=1, keepdims=True)
     return g * rng.random((k, 1)) ** (1.0 / d)
+
+
+def thomas(window, kappa: float, mu: float, sigma: float, rng: np.random.Generator) -> np.ndarray:
+    """A Thomas cluster process observed in ``window``.
+
+    Parameters
+    ----------
+    kappa : float
+        Parent intensity (parents per unit area/volume).
+    mu : float
+        Mean number of offspring per parent.
+    sigma : float
+        Standard deviation of the Gaussian displacement, per coordinate.
+    """
+    if kappa <= 0 or mu <= 0 or sigma <= 0:
+        raise OptionError("Thomas process needs positive kappa, mu and sigma")
+    lo, hi = _bounds(window)
+    lo, hi = lo - 4 * sigma, hi + 4 * sigma
+    vol = float(np.prod(hi - lo))
+    npar = rng.poisson(kappa * vol)
+    parents = lo + (hi - lo) * rng.random((npar, window.dim))
+    counts = rng.poisson(mu, npar)
+    kids = np.repeat(parents, counts, axis=0) + sigma * rng.standard_normal((counts.sum(), window.dim))
+    return kids[window.contains(kids)] if len(kids) else kids
+
+
+def perturbed_lattice(window, n_target: int, jitter: float, rng: np.random.Generator) -> np.ndarray:
+    """A randomly shifted, jittered lattice of about ``n_target`` points in W."""
+    d = window.dim
+    lam = n_target / window.measure
+    lo, hi = _bounds(window)
+    if d == 2:
+        a = np.sqrt(2.0 / (np.sqrt(3.0) * lam))  # triangular lattice spacing
+        basis = np.array([[a, 0.0], [a / 2, a * np.sqrt(3) / 2]])
+    else:
+        a = lam ** (-1.0 / 3.0)
+        basis = np.eye(3) * a
+    span = (hi - lo).max() * 2
+    k = int(np.ceil(span / a)) + 2
+    idx = np.stack(np.meshgrid(*[np.arange(-k, k + 1)] * d, indexing="ij"), -1).reshape(-1, d)
+    pts = idx @ basis + (lo + hi) / 2 + rng.random(d) @ basis
+    pts = pts + jitter * a * (rng.random(pts.shape) - 0.5)
+    return pts[window.contains(pts)]
 
 
 def matern_cluster(window, kappa: float, mu: float, radius: float, rng) -> np.ndarray:

@@ -18,7 +18,7 @@ import re
 
 import numpy as np
 
-from .errors import PointsError
+from ..errors import PointsError
 
 __all__ = ["read_points", "parse_columns"]
 
@@ -26,7 +26,14 @@ _H5_SUFFIX = re.compile(r"^(.*\.(?:h5|hdf5|hdf))(?::(.*))?$", re.IGNORECASE)
 
 
 def parse_columns(text: str | None):
-    """Parse a ``--columns`` value (``"x,y"`` or ``"0,1,2"``) into a list."""
+    """Parse a ``--columns`` value (``"x,y"`` or ``"0,1,2"``) into a list.
+
+    Examples
+    --------
+    >>> from nullatlas.lookup.patterns.readers import parse_columns
+    >>> parse_columns("x,y"), parse_columns("0,2,1"), parse_columns(None)
+    (['x', 'y'], [0, 2, 1], None)
+    """
     if text is None:
         return None
     items = [s.strip() for s in str(text).split(",")]
@@ -116,7 +123,8 @@ def _read_text(path: str, columns) -> np.ndarray:
         for (lineno, _), toks in zip(lines, rows):
             for j, t in enumerate(toks):
                 if not _is_number(t):
-                    raise PointsError(f"{path}, line {lineno}, column {j + 1}: '{t[:40]}' is not a number") from None
+                    raise PointsError(f"{path}, line {lineno}, column {j + 1}: "
+                                      f"'{t[:40]}' is not a number") from None
         raise PointsError(f"{path}: cannot parse numbers") from None
     arr = arr.reshape(len(rows), ncol)
     out = _select(arr, names, columns, path)
@@ -164,6 +172,44 @@ def read_points(source, columns=None) -> np.ndarray:
     ------
     PointsError
         When the file is missing, unreadable, malformed or holds NaN/inf.
+
+    Examples
+    --------
+    A CSV file with a header: the ``x`` and ``y`` columns are found by name.
+
+    >>> import os
+    >>> import tempfile
+    >>> import numpy as np
+    >>> from nullatlas import read_points
+    >>> tmp = tempfile.TemporaryDirectory()
+    >>> path = os.path.join(tmp.name, "pores.csv")
+    >>> with open(path, "w") as fh:
+    ...     _ = fh.write("id,x,y\\n1,0.5,2.0\\n2,1.5,0.25\\n3,3.0,1.0\\n")
+    >>> read_points(path)
+    array([[0.5 , 2.  ],
+           [1.5 , 0.25],
+           [3.  , 1.  ]])
+    >>> read_points(path, columns="y,x")[0]
+    array([2. , 0.5])
+
+    A ``.npy`` array and an HDF5 dataset:
+
+    >>> np.save(os.path.join(tmp.name, "pts.npy"), np.arange(12.0).reshape(4, 3))
+    >>> read_points(os.path.join(tmp.name, "pts.npy")).shape
+    (4, 3)
+    >>> import h5py
+    >>> with h5py.File(os.path.join(tmp.name, "scan.h5"), "w") as fh:
+    ...     fh["/scan/pores"] = np.ones((5, 3))
+    >>> read_points(os.path.join(tmp.name, "scan.h5") + ":/scan/pores").shape
+    (5, 3)
+
+    Bad input raises one ``PointsError`` (a ``ValueError``):
+
+    >>> read_points(os.path.join(tmp.name, "missing.csv"))
+    Traceback (most recent call last):
+    ...
+    nullatlas.lookup.errors.PointsError: points file not found: ...missing.csv
+    >>> tmp.cleanup()
     """
     if isinstance(columns, str):
         columns = parse_columns(columns)
@@ -181,7 +227,8 @@ def read_points(source, columns=None) -> np.ndarray:
         try:
             arr = np.load(path, allow_pickle=False)
         except Exception as exc:
-            raise PointsError(f"{path}: not a readable .npy array ({str(exc).splitlines()[0][:80]})") from None
+            raise PointsError(f"{path}: not a readable .npy array "
+                              f"({str(exc).splitlines()[0][:80]})") from None
         return _read_array(arr, path, columns)
     return _read_text(path, columns)
 

@@ -31,8 +31,8 @@ from __future__ import annotations
 import numpy as np
 from scipy import stats as _st
 
-__all__ = ["SKEW_MAX", "MIN_COUNT", "skewness", "usable_coordinates", "valid_coordinates", "correlation", "maxabs_null", "maxabs_pvalue",
-           "Spectral", "spectral", "mahalanobis_pvalue"]
+__all__ = ["SKEW_MAX", "MIN_COUNT", "skewness", "usable_coordinates", "valid_coordinates", "correlation",
+           "maxabs_null", "maxabs_pvalue", "Spectral", "spectral", "mahalanobis_pvalue"]
 
 
 def valid_coordinates(sd: np.ndarray, mean: np.ndarray) -> np.ndarray:

@@ -12,8 +12,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .errors import PointsError, WindowError
-from .pointsets import duplicate_groups
+from ..errors import PointsError, WindowError
+from ..persistence.pointsets import duplicate_groups
 
 __all__ = ["validate_pattern", "ValidationReport", "MIN_POINTS", "DUPLICATE_POLICIES"]
 
@@ -57,12 +57,35 @@ def validate_pattern(points, window, on_duplicates="error", rng=None):
         Used by ``jitter`` (default: a generator seeded with 0, so the
         result is reproducible).
 
+    Returns
+    -------
+    points : ndarray, shape (m, d)
+        The points to test (duplicates dropped or jittered as asked).
+    report : ValidationReport
+        What was done.
+
     Raises
     ------
     PointsError, WindowError
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from nullatlas import Rectangle, validate_pattern
+    >>> w = Rectangle(0, 0, 10, 10)
+    >>> pts = w.sample(50, np.random.default_rng(0))
+    >>> twice = np.vstack([pts, pts[:2]])
+    >>> kept, report = validate_pattern(twice, w, on_duplicates="drop")
+    >>> kept.shape, report.n_duplicates
+    ((50, 2), 2)
+    >>> validate_pattern(pts + 20, w)
+    Traceback (most recent call last):
+    ...
+    nullatlas.lookup.errors.PointsError: 50 of 50 points lie outside the window; first is point 0 at (...)
     """
     if on_duplicates not in DUPLICATE_POLICIES:
-        raise PointsError(f"--on-duplicates must be one of {', '.join(DUPLICATE_POLICIES)}, got '{on_duplicates}'")
+        raise PointsError(f"--on-duplicates must be one of {', '.join(DUPLICATE_POLICIES)}, "
+                          f"got '{on_duplicates}'")
     try:
         p = np.asarray(points, dtype=float)
     except (ValueError, TypeError):
@@ -82,7 +105,8 @@ def validate_pattern(points, window, on_duplicates="error", rng=None):
     if not inside.all():
         bad = np.flatnonzero(~inside)
         first = ", ".join(f"{v:.6g}" for v in p[bad[0]])
-        raise PointsError(f"{len(bad)} of {n} points lie outside the window; first is point {bad[0]} at ({first})")
+        raise PointsError(f"{len(bad)} of {n} points lie outside the window; "
+                          f"first is point {bad[0]} at ({first})")
     first_idx, counts = duplicate_groups(p)
     ndup = int(n - len(first_idx))
     report.n_duplicates = ndup
@@ -99,7 +123,8 @@ def validate_pattern(points, window, on_duplicates="error", rng=None):
         else:
             p = _jitter(p, ~keep, window, rng or np.random.default_rng(0))
         if len(p) < MIN_POINTS[d]:
-            raise PointsError(f"too few distinct points: {len(duplicate_groups(p)[0])} (need at least {MIN_POINTS[d]} in {d}D)")
+            raise PointsError(f"too few distinct points: {len(duplicate_groups(p)[0])} "
+                              f"(need at least {MIN_POINTS[d]} in {d}D)")
     centred = p - p.mean(axis=0)
     sv = np.linalg.svd(centred, compute_uv=False)
     if sv[-1] <= 1e-12 * max(sv[0], 1e-300):

@@ -1,13 +1,13 @@
 """Instant tests from the null tables, and the trust verdict.
 
 For an observed summary S with tabled null mean m and covariance C
-(``lookup.nullmoments``):
+(``lookup.inference.nullmoments``):
 
 * additive scalars: z = (S - m) / sd, p from N(0, 1) (``scipy.stats.norm``):
   two-sided 2 P(Z > |z|), or one-sided towards the direction the statistic
   moves under the chosen alternative;
 * extremes: the tabled empirical null with a Gumbel tail
-  (``lookup.extremes``), never a normal approximation; the lower tail is the
+  (``lookup.inference.extremes``), never a normal approximation; the lower tail is the
   empirical rank p-value, two-sided is twice the smaller tail;
 * curves: z_j over the usable grid points; the primary p-value is that of
   max_j |z_j| under the Gaussian limit N(0, R), R the tabled correlation,
@@ -16,7 +16,7 @@ For an observed summary S with tabled null mean m and covariance C
   p-value is a function of the data and the table alone (not of ``--seed``),
   and the simulated null is cached per process; the regularised
   Mahalanobis chi-square p-value is reported beside it
-  (``lookup.globaltests``).
+  (``lookup.inference.globaltests``).
 
 Trust verdict (:func:`verdict`): a result is untrusted when there is no
 table for the dimension or statistic, n is below the audited n_min of the
@@ -30,14 +30,14 @@ or jittered.
 """
 from __future__ import annotations
 
+import zlib
+
 import numpy as np
 
+from ..results import StatResult
 from . import globaltests as gt
 from .extremes import GumbelTail
 from .nullmoments import NullMoments
-from .results import StatResult
-
-import zlib
 
 __all__ = ["N_GAUSS", "DUPLICATE_LIMIT", "test_key", "verdict", "asymptotic_result"]
 
@@ -60,7 +60,7 @@ def _model_trust(nm: NullMoments, stat, n: int, window, key: str) -> list:
     """Reasons against a model-route answer: the window at this n must lie
     inside the range where the table's validation on held-out windows
     measured the model to hold (``calibrate.validate``)."""
-    from .boundary import NARROW_WIDTH, trust_measures
+    from ..patterns.boundary import NARROW_WIDTH, trust_measures
 
     if nm.route == "nearest-shape":
         return [nm.approximate or f"no model for '{stat.name}' in this table"]
@@ -115,7 +115,7 @@ def verdict(nm: NullMoments | None, stat, n: int, window, alternative: str,
     windows measured the model to hold: n within the validated range, and
     the window's share within one mean spacing of its boundary and its
     share in narrow parts no larger than on the held-out windows where the
-    size held (``lookup.boundary.trust_measures``)."""
+    size held (``lookup.patterns.boundary.trust_measures``)."""
     reasons = []
     if nm is None:
         return False, [f"no null table covers '{stat.name}' in {window.dim}D"]

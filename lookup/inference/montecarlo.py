@@ -9,17 +9,18 @@ from __future__ import annotations
 
 import numpy as np
 
-from . import nulls, ranks
-from .results import StatResult
-from .statistics import Statistic, compute
+from ..processes.csr import csr
+from ..results import StatResult
+from ..summaries.statistics import Statistic, compute
+from . import ranks
 
 __all__ = ["simulate_null", "mc_results", "untested_result"]
 
 
 def _draw(window, n, model, rng):
     if model is None or model[0] == "csr":
-        return nulls.csr(window, n, rng)
-    from .models import simulate
+        return csr(window, n, rng)
+    from ..processes.registry import simulate
     return simulate(window, model[0], model[1], n, rng, n)
 
 
@@ -32,18 +33,18 @@ def _chunk(window, n, stats, seeds, engine="fast", model=None):
 def simulate_null(window, n: int, stats: list[Statistic], seeds, jobs: int = 1,
                   progress: bool | None = False, engine: str = "fast", model=None) -> dict:
     """Statistics of ``len(seeds)`` null patterns of ``n`` points in ``window``
-    (CSR, or ``model`` = (name, params) of ``lookup.models``).
+    (CSR, or ``model`` = (name, params) of ``lookup.processes.registry``).
 
     Parameters
     ----------
     seeds : list of numpy.random.SeedSequence
-        One per replicate (see :func:`nulls.replicate_seeds`).
+        One per replicate (see :func:`nullatlas.lookup.processes.csr.replicate_seeds`).
     jobs : int
         Worker processes (1 = in this process).
     progress : bool or None
         Show a progress bar on standard error (None: only on a terminal).
     engine : {"fast", "gudhi"}
-        Diagram engine (see :func:`lookup.diagram.alpha_diagram`).
+        Diagram engine (see :func:`lookup.persistence.diagram.alpha_diagram`).
 
     Returns
     -------
@@ -54,7 +55,8 @@ def simulate_null(window, n: int, stats: list[Statistic], seeds, jobs: int = 1,
     m = len(seeds)
     size = max(1, min(64, int(np.ceil(m / (max(jobs, 1) * 8)))))
     chunks = [seeds[i:i + size] for i in range(0, m, size)]
-    bar = tqdm(total=m, desc="null simulations", unit="sim", disable=None if progress is None else not progress, leave=False)
+    bar = tqdm(total=m, desc="null simulations", unit="sim",
+               disable=None if progress is None else not progress, leave=False)
     parts = []
     try:
         if jobs <= 1:

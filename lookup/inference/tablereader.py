@@ -27,7 +27,7 @@ read -- its model route is then never trusted, see ``lookup.asymptotic``):
     /holdout/<shape>/<stat>/*            the model refitted without that shape, with
                                          the held-out cells' prediction errors
     /geomodel/<stat>/*                   geometric finite-window model (``calibrate.model``,
-                                         covariates of ``lookup.boundary``): mean_coef,
+                                         covariates of ``lookup.patterns.boundary``): mean_coef,
                                          var_coef (k, 4); extremes: x, coef (len(x), 3)
     /validation                          attrs rows: JSON list of the scores of the
                                          held-out windows (``calibrate.validate``)
@@ -48,10 +48,10 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .errors import TableError
+from ..errors import TableError
 
-__all__ = ["SCHEMA", "SCHEMA_VERSION", "READABLE_VERSIONS", "TableInfo", "CellInfo", "open_table", "load_cell",
-           "load_model", "load_holdout", "shipped_tables", "read_m2",
+__all__ = ["SCHEMA", "SCHEMA_VERSION", "READABLE_VERSIONS", "TableInfo", "CellInfo", "open_table",
+           "load_cell", "load_model", "load_holdout", "shipped_tables", "read_m2",
            "unpack_symmetric"]
 
 SCHEMA = "nullatlas-null-table"

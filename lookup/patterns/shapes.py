@@ -47,8 +47,8 @@ import math
 
 import numpy as np
 
+from ..errors import OptionError, WindowError
 from . import windows as W
-from .errors import OptionError, WindowError
 
 __all__ = ["SHAPES", "SHIPPED", "normalise", "shape_dimension", "shape_window"]
 
