@@ -425,13 +425,16 @@ def _print_validate(s, out=None):
         out.write(f"{r['window']:14s} {r['n']:6d} {r['statistic']:10s} {r['route']:6s} "
                   f"{r['mean_err_sd']:+8.3f} {f('size')} {f('lower')} {f('upper')}  "
                   f"{'yes' if r['passed'] else 'NO'}\n")
-    out.write("validated range of the model route (trusted inside):\n")
+    out.write("validated range of the model route (trusted inside): upper bounds on the share "
+              "within one spacing of the boundary, the second-order term, the share in narrow "
+              "parts, the number of holes, the hull deficit and the kappa excess\n")
     for stat, per in s["trust"].items():
         for test, r in per.items():
-            out.write(f"  {stat:10s} {test:10s} boundary share <= {r['boundary_share_max']:.3f}, "
-                      f"second order <= {r['second_order_max']:.3f}, narrow share <= "
-                      f"{r['narrow_share_max']:.3f}, n {r['n_lo']}..{r['n_hi']} "
-                      f"({r['passed']} of {r['cells']} cells inside)\n")
+            b = ", ".join(f"{r[k + '_max']:.3g}" for k in
+                          ("boundary_share", "second_order", "narrow_share", "holes",
+                           "hull_deficit", "kappa_excess"))
+            out.write(f"  {stat:10s} {test:10s} {b}; n {r['n_lo']}..{r['n_hi']} "
+                      f"({r['passed']} of {r['cells']} held-out cells inside)\n")
 
 
 def _clean(v):

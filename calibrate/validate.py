@@ -26,7 +26,8 @@ upper bounds on the boundary share (share of the window within one mean
 spacing of the boundary), the second-order share (|B2| sqrt(n): corners,
 tips, curvature), the narrow share (share in parts narrower than
 ``lookup.patterns.boundary.NARROW_WIDTH`` mean spacings), the number of holes and
-the hull deficit (concavities), such that no failing cell lies inside,
+the hull deficit (concavities) and the kappa excess (outside the training
+shapes' kappa range), such that no failing cell lies inside,
 chosen greedily to hold as many passing cells as possible, and the n range
 of the held-out cells.  The runtime trusts the model route only
 inside it (``lookup.asymptotic.verdict``).
@@ -66,7 +67,6 @@ def score_cell(tset, window, n: int, raw: dict, stats) -> list[dict]:
     """Scores of each statistic in ``stats`` on one held-out cell (see the
     module doc); ``raw`` maps statistic names to the (m,) or (m, k) values."""
     rows = []
-    meas = trust_measures(window, n)
     for name in stats:
         if name not in raw:
             continue
@@ -76,6 +76,7 @@ def score_cell(tset, window, n: int, raw: dict, stats) -> list[dict]:
             continue
         v = np.asarray(raw[name], float)
         row = {"statistic": name, "kind": st.kind, "n": int(n), "route": nm.route}
+        meas = trust_measures(window, n, nm.kappa_range)
         row.update({k: meas[k] for k in MEASURES})
         if st.kind == "curve":
             sd = nm.sd

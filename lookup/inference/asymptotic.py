@@ -75,7 +75,7 @@ def _model_trust(nm: NullMoments, stat, n: int, window, key: str) -> list:
     if not per.get("passed"):
         return [f"the model route of '{stat.name}' ({key} test) did not hold its size on any "
                 "held-out window"]
-    m = trust_measures(window, n)
+    m = trust_measures(window, n, nm.kappa_range)
     nm.extra["measures"] = m
     out = []
     lo, hi = int(per["n_lo"]), int(per["n_hi"])
@@ -98,6 +98,11 @@ def _model_trust(nm: NullMoments, stat, n: int, window, key: str) -> list:
         out.append(f"the window's concavities ({m['hull_deficit']:.0%} of its convex hull) are "
                    f"deeper than on the held-out windows where the model of '{stat.name}' held "
                    f"({max(per['hull_deficit_max'], 0):.0%})")
+    if m["kappa_excess"] > per.get("kappa_excess_max", np.inf) + 1e-12:
+        lo, hi = nm.kappa_range
+        out.append(f"the window's kappa {float(window.kappa):.3g} (boundary measure per content, "
+                   f"scale-free) is outside the training shapes' range [{lo:.3g}, {hi:.3g}] by "
+                   f"more than the model of '{stat.name}' was validated for")
     if m["boundary_share"] > per["boundary_share_max"] + 1e-12:
         out.append(f"{m['boundary_share']:.1%} of the window lies within one mean spacing of its "
                    f"boundary (the model of '{stat.name}' was validated up to "

@@ -461,7 +461,8 @@ def null_moments(tables: TableSet, window, n: int, stat: str) -> NullMoments | N
             continue
         shape = _shape_name(window)
         kap = float(window.kappa)
-        krange = (min(t.kappas.values()), max(t.kappas.values()))
+        kaps = [k for k in t.kappas.values() if k > 0]         # periodic shapes: no boundary
+        krange = (min(kaps), max(kaps)) if kaps else (0.0, 0.0)
         approx = ""
         route = None
         if shape in t.by_shape:

@@ -43,7 +43,10 @@ Trust measures (``lookup.asymptotic``):
     holes = number of holes of the window (a hole is a loop of the union of
         balls in every pattern, no local boundary term);
     hull_deficit = 1 - |W| / |convex hull of W|
-        concavities whose mouths close before they fill make loops too.
+        concavities whose mouths close before they fill make loops too;
+    kappa_excess = how far the window's kappa lies outside the range of the
+        table's training shapes, relative (max(0, kappa_lo / kappa - 1,
+        kappa / kappa_hi - 1)): the model extrapolates there.
 """
 from __future__ import annotations
 
@@ -52,7 +55,8 @@ import numpy as np
 __all__ = ["DEPTH", "NARROW_WIDTH", "MEASURES", "covariates", "grid_depths", "trust_measures", "COVARIATES"]
 
 #: The trust measures, in the order of the validated range.
-MEASURES = ("boundary_share", "second_order", "narrow_share", "holes", "hull_deficit")
+MEASURES = ("boundary_share", "second_order", "narrow_share", "holes", "hull_deficit",
+            "kappa_excess")
 
 #: Depth h (mean spacings) of the band behind the second-order term B2.
 DEPTH = 1.0
@@ -104,15 +108,24 @@ def covariates(window, n: int, depth=DEPTH) -> np.ndarray:
     return out[0] if scalar else out
 
 
-def trust_measures(window, n: int) -> dict:
+def kappa_excess(kappa: float, kappa_range) -> float:
+    """Relative distance of ``kappa`` outside ``kappa_range`` (0 inside)."""
+    lo, hi = kappa_range
+    if kappa <= 0 or lo <= 0:
+        return 0.0
+    return float(max(0.0, lo / kappa - 1.0, kappa / hi - 1.0))
+
+
+def trust_measures(window, n: int, kappa_range=None) -> dict:
     """Geometric measures that the trust verdict compares with the validated
-    range: ``boundary_share``, ``second_order``, ``narrow_share`` (see the
-    module doc), ``B1`` and ``B2``."""
+    range (``MEASURES``, see the module doc; ``kappa_excess`` relative to
+    ``kappa_range``, the table's training shapes, 0 when not given), ``B1``
+    and ``B2``."""
     s = _scale(window, int(n))
     cov = covariates(window, n)
     if getattr(window, "periodic", False) or float(window.boundary_measure) == 0.0:
         return {"boundary_share": 0.0, "second_order": 0.0, "narrow_share": 0.0, "holes": 0.0,
-                "hull_deficit": 0.0, "B1": 0.0, "B2": 0.0}
+                "hull_deficit": 0.0, "kappa_excess": 0.0, "B1": 0.0, "B2": 0.0}
     share = 1.0 - float(_inner_fraction(window, 1.0 / s)[0])
     narrow = 0.0
     fn = getattr(window, "narrow_share", None)
@@ -120,7 +133,9 @@ def trust_measures(window, n: int) -> dict:
         narrow = float(fn(NARROW_WIDTH / s))
     return {"boundary_share": float(share), "second_order": float(abs(cov[2]) * np.sqrt(n)),
             "narrow_share": float(max(narrow, 0.0)), "holes": float(getattr(window, "holes", 0)),
-            "hull_deficit": hull_deficit(window), "B1": float(cov[1]), "B2": float(cov[2])}
+            "hull_deficit": hull_deficit(window),
+            "kappa_excess": kappa_excess(float(window.kappa), kappa_range) if kappa_range else 0.0,
+            "B1": float(cov[1]), "B2": float(cov[2])}
 
 
 def hull_deficit(window) -> float:

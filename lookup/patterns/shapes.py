@@ -21,7 +21,7 @@ triangle   2    equilateral, side 2 / 3^(1/4)                6 / 3^(1/4) = 4.559
 cross      2    plus sign of 5 squares of side 5^(-1/2)      12 / sqrt(5) = 5.3666
 holed      2    square of side 2/sqrt(3), centred square     6 / sqrt(3) * 2 = 6.9282
                 hole of side 1/sqrt(3)
-box122     3    sides a, 2a, 2a with a = 4^(-1/3)            16 / 4^(2/3) = 6.3496
+box133     3    sides a, 3a, 3a with a = 9^(-1/3)            30 / 9^(2/3) = 6.9336
 cyl1       3    cylinder, height = diameter = 2 (2 pi)^(-1/3) 6 pi / (2 pi)^(2/3) = 5.5358
 =========  ===  ==========================================  ==============
 
@@ -115,15 +115,15 @@ SHAPES = {
     "triangle": (2, _triangle, "equilateral triangle"),
     "cross": (2, _cross, "plus-shaped cross of 5 equal squares (4 reflex corners)"),
     "holed": (2, _holed, "square with a centred square hole of half its side"),
-    "box122": (3, lambda: _box(np.array([1.0, 2.0, 2.0]) / 4.0 ** (1.0 / 3.0)),
-               "box with sides 1:2:2"),
+    "box133": (3, lambda: _box(np.array([1.0, 3.0, 3.0]) / 9.0 ** (1.0 / 3.0)),
+               "box with sides 1:3:3"),
     "cyl1": (3, lambda: _cylinder(1.0), "cylinder with height = diameter"),
     "torus2": (2, lambda: _torus(2), "periodic square (a flat torus: no boundary)"),
     "torus3": (3, lambda: _torus(3), "periodic cube (a flat 3-torus: no boundary)"),
 }
 
 #: Names of the rectangle and box shapes (matched by the sorted aspect of the sides).
-_BOXES = ("square", "rect2", "rect4", "cube", "box114", "box122")
+_BOXES = ("square", "rect2", "rect4", "cube", "box114", "box133")
 
 #: Shapes of the shipped tables, per dimension.
 SHIPPED = {2: ["square", "rect2", "rect4", "disk"], 3: ["cube", "box114"]}
