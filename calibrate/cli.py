@@ -427,12 +427,13 @@ def _print_validate(s, out=None):
                   f"{'yes' if r['passed'] else 'NO'}\n")
     out.write("validated range of the model route (trusted inside): upper bounds on the share "
               "within one spacing of the boundary, the second-order term, the share in narrow "
-              "parts, the number of holes, the hull deficit and the kappa excess\n")
+              "parts, the number of holes, the hull deficit, the kappa excess, the curved share "
+              "and periodic\n")
     for stat, per in s["trust"].items():
         for test, r in per.items():
             b = ", ".join(f"{r[k + '_max']:.3g}" for k in
                           ("boundary_share", "second_order", "narrow_share", "holes",
-                           "hull_deficit", "kappa_excess"))
+                           "hull_deficit", "kappa_excess", "curved_share", "periodic"))
             out.write(f"  {stat:10s} {test:10s} {b}; n {r['n_lo']}..{r['n_hi']} "
                       f"({r['passed']} of {r['cells']} held-out cells inside)\n")
 

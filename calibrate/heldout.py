@@ -34,7 +34,7 @@ HELDOUT_SEED = 7_160_016
 HELDOUT_N = {2: [100, 500, 2000, 20000], 3: [100, 500, 2000, 5000]}
 #: Periodic windows: exact periodic persistence costs more than the bounded
 #: windows' (the 3D torus needs about 200 points to fold into a complex).
-HELDOUT_N_PERIODIC = {2: [100, 500, 2000], 3: [500, 2000]}
+HELDOUT_N_PERIODIC = {2: [100, 500, 2000, 20000], 3: [500, 2000, 5000]}
 
 
 def heldout_ns(name: str) -> list:
@@ -116,7 +116,7 @@ def blob_mask(size: int = 96) -> np.ndarray:
 
 
 def _blob():
-    from nullatlas.lookup import windows as W
+    from nullatlas.lookup.patterns import windows as W
     maker = getattr(W, "mask_window", None)
     if maker is None:
         maker = W.MaskWindow.from_array

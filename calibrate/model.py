@@ -94,6 +94,8 @@ class Fit:
     var_resid: np.ndarray
     n_fit: int
     excluded: list = field(default_factory=list)
+    model: str = ""
+    loso: dict = field(default_factory=dict)
 
     @property
     def dof(self) -> int:
@@ -206,7 +208,7 @@ def _window_of(spec: str):
     return w
 
 
-def fit_geomodel(cells: list[dict], d: int, n_fit: int = 100) -> Fit:
+def fit_geomodel(cells: list[dict], d: int, n_fit: int = 100, columns=None) -> Fit:
     """Fit E[S] = mu + c1 B1 + c2 B2 + c3 B3 and the same form for n Var[S]
     per grid point (weighted least squares as :func:`fit_model`), over the
     cells with n >= ``n_fit``.  Each cell dict needs ``cov`` (the covariates
@@ -217,6 +219,8 @@ def fit_geomodel(cells: list[dict], d: int, n_fit: int = 100) -> Fit:
                          f"got {len(use)}")
     n = np.array([c["n"] for c in use], float)
     X = np.array([np.atleast_2d(c["cov"]) for c in use], float)      # cells x (1 or k) x 4
+    if columns is not None:          # a sub-model: the other coefficients are 0
+        X[:, :, [j for j in range(X.shape[2]) if j not in columns]] = 0.0
     R = np.array([c["count"] for c in use], float)
     mean = np.array([np.atleast_1d(c["mean"]) for c in use])
     var = np.array([np.atleast_1d(c["var"]) for c in use])
@@ -247,6 +251,36 @@ EXCLUDE_FACTOR = 4.0
 EXCLUDE_CHI2 = 3.0
 
 
+#: Candidate models: the covariates they use (``lookup.patterns.boundary``):
+#: the full geometric model, and the boundary term with a 1/n term only
+#: (the two-term kappa model's form, c2 = 0).
+CANDIDATES = {"geometric": (0, 1, 2, 3), "boundary-only": (0, 1, 3)}
+
+
+def loso_error(cells: list[dict], d: int, n_fit: int, columns) -> float:
+    """Leave-one-shape-out prediction error of a (sub-)model: for each shape,
+    fit on the others and predict its cells; the RMS over those cells and
+    grid points of (mean - prediction) / sd of one pattern."""
+    shapes = sorted({c["shape"] for c in cells if c["n"] >= n_fit})
+    errs = []
+    for sh in shapes:
+        train = [c for c in cells if c["shape"] != sh]
+        test = [c for c in cells if c["shape"] == sh and c["n"] >= n_fit]
+        try:
+            fit = fit_geomodel(train, d, n_fit, columns)
+        except ValueError:
+            continue
+        for c in test:
+            x = np.broadcast_to(np.atleast_2d(c["cov"]), fit.mean_coef.shape)
+            pred = np.einsum("kc,kc->k", np.nan_to_num(fit.mean_coef), x)
+            sd = np.sqrt(np.asarray(c["var"], float))
+            ok = sd > 1e-6 * max(float(sd.max()), 1e-300)     # grid points that vary
+            errs.append(((np.asarray(c["mean"], float)[ok] - pred[ok]) / sd[ok]) ** 2)
+    if not errs:
+        return float("inf")
+    return float(np.sqrt(np.mean(np.concatenate(errs))))
+
+
 def fit_geomodel_robust(cells: list[dict], d: int, n_fit: int = 100, min_shapes: int = 4):
     """:func:`fit_geomodel`, leaving out whole shapes for which the local
     (additive) model does not hold for this statistic -- for example a
@@ -255,18 +289,22 @@ def fit_geomodel_robust(cells: list[dict], d: int, n_fit: int = 100, min_shapes:
     term.  Shapes are dropped one at a time, worst first, while the fit's
     median chi2/dof exceeds EXCLUDE_CHI2 and the worst shape's mean squared
     standardised residual exceeds EXCLUDE_FACTOR times the median of the
-    other shapes'.  Returns (fit, list of excluded shapes)."""
+    other shapes'.  Then the candidate model (:data:`CANDIDATES`) with the
+    smaller leave-one-shape-out error (:func:`loso_error`) is chosen: a
+    second-order term that fits the training cells better but predicts a
+    left-out shape worse is not used.  Returns (fit, excluded shapes); the
+    fit carries ``model`` (the candidate's name) and ``loso`` (errors)."""
     excluded = []
     while True:
         use = [c for c in cells if c.get("shape") not in excluded]
         fit = fit_geomodel(use, d, n_fit)
         dof = max(len(fit.cells) - fit.mean_coef.shape[1], 1)
         if np.nanmedian(fit.mean_chi2 / dof) <= EXCLUDE_CHI2:
-            return fit, excluded
+            break
         shape_of = {c["name"]: c.get("shape") for c in use}
         shapes = sorted({shape_of[nm] for nm in fit.cells})
         if len(shapes) <= min_shapes:
-            return fit, excluded
+            break
         msr = {}
         for sh in shapes:
             rows = [i for i, nm in enumerate(fit.cells) if shape_of[nm] == sh]
@@ -274,8 +312,15 @@ def fit_geomodel_robust(cells: list[dict], d: int, n_fit: int = 100, min_shapes:
         worst = max(msr, key=msr.get)
         others = [v for k, v in msr.items() if k != worst]
         if msr[worst] <= EXCLUDE_FACTOR * float(np.median(others)):
-            return fit, excluded
+            break
         excluded.append(worst)
+    use = [c for c in cells if c.get("shape") not in excluded]
+    loso = {name: loso_error(use, d, n_fit, cols) for name, cols in CANDIDATES.items()}
+    best = min(loso, key=loso.get)
+    fit = fit_geomodel(use, d, n_fit, CANDIDATES[best])
+    fit.model = best
+    fit.loso = loso
+    return fit, excluded
 
 
 def predict_geo(coef: np.ndarray, cov: np.ndarray) -> np.ndarray:

@@ -113,6 +113,8 @@ def write_geomodels(fh, geomodels: dict) -> None:
             _write_fit(g, fit)
             g.attrs["kind"] = "additive"
             g.attrs["excluded_shapes"] = json.dumps(list(getattr(fit, "excluded", [])))
+            g.attrs["model"] = str(getattr(fit, "model", ""))
+            g.attrs["loso_error_sd"] = json.dumps(getattr(fit, "loso", {}))
             if getattr(fit, "depth", None) is not None:
                 _put(g, "depth", np.asarray(fit.depth, float))
 

@@ -29,7 +29,7 @@ HERE = os.path.dirname(os.path.abspath(__file__))
 TABLES = os.path.join(os.path.dirname(HERE), "tables")
 
 _FIRST = {2: ["square", "rect2", "rect4", "disk"], 3: ["cube", "box114"]}
-_MORE = {2: ["triangle", "cross", "holed"], 3: ["box133", "cyl1"]}
+_MORE = {2: ["triangle", "cross", "holed"], 3: ["box133", "cyl1", "cyl8"]}
 
 #: (dimension, shapes, n values, replicates) per step, in order.  The first
 #: shapes carry most replicates; the training shapes added for the

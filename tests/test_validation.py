@@ -71,3 +71,42 @@ def test_extreme_sample_inverts_a_gumbel_exceedance_model():
         assert np.median(v) == pytest.approx(loc - np.log(np.log(2)), abs=0.02)
         assert np.mean(v) == pytest.approx(loc + 0.5772, abs=0.03)    # Euler-Mascheroni
         assert np.all(np.diff(v) >= 0)
+
+
+def _nm_model(trust):
+    from nullatlas.lookup.inference.nullmoments import NullMoments
+    nm = NullMoments("total0", "scalar", np.array([0.3]), np.array([[1e-4]]), None, None,
+                     "model", [], None, {"two_sided": 50, "lower": 50, "upper": 50},
+                     (3.5, 7.0), (50, 100000))
+    nm.extra["trust"] = trust
+    return nm
+
+
+def test_verdict_trusts_the_model_only_inside_the_validated_range():
+    import shapely
+
+    from nullatlas.lookup.inference.asymptotic import verdict
+    from nullatlas.lookup.patterns.windows import PolygonWindow, Rectangle
+    from nullatlas.lookup.summaries.statistics import STATISTICS
+
+    st = STATISTICS["total0"]
+    rng = {"boundary_share_max": 0.3, "second_order_max": 0.5, "narrow_share_max": 0.05,
+           "holes_max": 0.0, "hull_deficit_max": 0.3, "kappa_excess_max": 0.1,
+           "n_lo": 100, "n_hi": 20000, "cells": 20, "passed": 12, "failed": 3}
+    nm = _nm_model({"two_sided": rng})
+    sq = Rectangle(0, 0, 2, 1)
+    ok, why = verdict(nm, st, 2000, sq, "two-sided")
+    assert ok and not why
+    ok, why = verdict(nm, st, 60, sq, "two-sided")              # below the validated n
+    assert not ok and any("validated" in w and "100..20000" in w for w in why)
+    ok, why = verdict(nm, st, 50000, sq, "two-sided")           # beyond it: not measured
+    assert not ok and any("100..20000" in w for w in why)
+    holed = PolygonWindow(shapely.box(0, 0, 4, 4).difference(shapely.box(1, 1, 2, 2)))
+    ok, why = verdict(nm, st, 5000, holed, "two-sided")
+    assert not ok and any("hole" in w for w in why)
+    thin = Rectangle(0, 0, 40, 1)                                # kappa 6.6 but a thin strip
+    ok, why = verdict(nm, st, 200, thin, "two-sided")
+    assert not ok and any("narrower" in w or "boundary" in w for w in why)
+    nm_none = _nm_model(None)
+    ok, why = verdict(nm_none, st, 2000, sq, "two-sided")
+    assert not ok and any("not validated" in w for w in why)

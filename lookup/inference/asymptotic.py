@@ -103,6 +103,13 @@ def _model_trust(nm: NullMoments, stat, n: int, window, key: str) -> list:
         out.append(f"the window's kappa {float(window.kappa):.3g} (boundary measure per content, "
                    f"scale-free) is outside the training shapes' range [{lo:.3g}, {hi:.3g}] by "
                    f"more than the model of '{stat.name}' was validated for")
+    if m["curved_share"] > per.get("curved_share_max", np.inf) + 1e-12:
+        out.append(f"{m['curved_share']:.0%} of the window's boundary is curved; the model of "
+                   f"'{stat.name}' was validated for windows with up to "
+                   f"{max(per['curved_share_max'], 0):.0%}")
+    if m["periodic"] > per.get("periodic_max", np.inf) + 1e-12:
+        out.append(f"n = {n} is beyond the periodic cells of '{stat.name}' and their "
+                   "extrapolation did not hold on the held-out periodic window")
     if m["boundary_share"] > per["boundary_share_max"] + 1e-12:
         out.append(f"{m['boundary_share']:.1%} of the window lies within one mean spacing of its "
                    f"boundary (the model of '{stat.name}' was validated up to "

@@ -372,6 +372,10 @@ def _geo_moments(t: _Table, stat: str, n: int, window, d: int, near: list):
     base = _from_cells(t, stat, near, n if len(near) == 2 else near[0].n, d)
     if g["kind"] == "extreme":
         vals = extreme_sample(g["x"], g["coef"], n, float(cov[0, 1]))
+        if len(np.unique(vals)) < len(vals) // 4:
+            # the exceedance model puts most of the null below its fitted
+            # grid (far outside the training windows): no valid null here
+            return None
         return {"mean": np.array([vals.mean()]), "cov": np.atleast_2d(np.var(vals, ddof=1)),
                 "usable": None, "values": vals, "replicates": base["replicates"],
                 "covariates": cov}
@@ -386,6 +390,49 @@ def _geo_moments(t: _Table, stat: str, n: int, window, d: int, near: list):
     np.fill_diagonal(c, sd ** 2)
     return {"mean": mean, "cov": c, "usable": base["usable"], "values": None,
             "replicates": base["replicates"], "covariates": cov}
+
+
+def _periodic_moments(t: _Table, stat: str, n: int, cells: list, kind: str):
+    """Moments of a periodic window beyond its shape's cells.  A torus has no
+    boundary, so the mean per point is mu + b/n and n Var = v + w/n exactly
+    to that order (DESIGN.md, "Periodic windows"): both are fitted by weighted
+    least squares over the periodic cells with n >= 500 (all if fewer than
+    two), the correlation is the largest cell's.  Extremes: the two largest
+    cells' quantile functions extrapolated linearly in log n (the location
+    of a largest lifetime grows like a power of log n; Bobrowski, Kahle &
+    Skraba 2017)."""
+    use = [c for c in cells if c.n >= 500]
+    use = use if len(use) >= 2 else cells[-2:]
+    stats = [t.stat(c.name, stat) for c in use]
+    last = stats[-1]
+    if kind == "extreme":
+        c1, c2 = use[-2], use[-1]
+        w = (np.log(n) - np.log(c2.n)) / (np.log(c1.n) - np.log(c2.n))
+        vals = _interp_values(stats[-2]["values"], last["values"], w)
+        return {"mean": np.array([vals.mean()]), "cov": np.atleast_2d(np.var(vals, ddof=1)),
+                "usable": None, "values": vals, "replicates": min(s["count"] for s in stats)}
+    ns = np.array([c.n for c in use], float)
+    X = np.column_stack([np.ones_like(ns), 1.0 / ns])
+    mean = np.empty_like(last["mean"])
+    nvar = np.empty_like(last["mean"])
+    for j in range(len(mean)):
+        m = np.array([s["mean"][j] for s in stats])
+        v = np.array([s["cov"][j, j] for s in stats])
+        R = np.array([s["count"] for s in stats], float)
+        wts = np.sqrt(R / np.maximum(v, 1e-300))
+        mean[j] = np.linalg.lstsq(X * wts[:, None], m * wts, rcond=None)[0] @ [1.0, 1.0 / n] \
+            if np.all(v > 0) else m[-1]
+        nv = ns * v
+        nvar[j] = np.linalg.lstsq(X, nv, rcond=None)[0] @ [1.0, 1.0 / n]
+    sd_b = np.sqrt(np.clip(np.diag(last["cov"]), 0, None))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        corr = last["cov"] / np.outer(sd_b, sd_b)
+    corr = np.where(np.isfinite(corr), corr, 0.0)
+    sd = np.sqrt(np.clip(nvar / n, 0, None))
+    c = corr * np.outer(sd, sd)
+    np.fill_diagonal(c, sd ** 2)
+    return {"mean": mean, "cov": c, "usable": last.get("usable"), "values": None,
+            "replicates": min(s["count"] for s in stats)}
 
 
 def _nearest_cells(t: _Table, stat: str, kap: float, n: int, prefer: str | None = None):
@@ -480,15 +527,20 @@ def null_moments(tables: TableSet, window, n: int, stat: str) -> NullMoments | N
             near_shape, br = _nearest_cells(t, stat, kap, n, prefer)
             if not br:
                 continue
-            mom = _geo_moments(t, stat, n, window, d, br)
+            if periodic and shape in t.by_shape and n > br[-1].n:
+                pcells = [c for c in t.by_shape[shape] if stat in c.stats]
+                mom = _periodic_moments(t, stat, n, pcells, st.kind) if len(pcells) >= 2 \
+                    else _geo_moments(t, stat, n, window, d, br)
+            else:
+                mom = _geo_moments(t, stat, n, window, d, br)
             route = "model"
             if mom is None:
                 # schema 1: the two-term kappa model; extremes from the nearest shape
                 if st.kind == "extreme":
                     nn = n if len(br) == 2 else br[0].n
                     mom = _from_cells(t, stat, br, nn, d)
-                    approx = (f"no finite-window model for the extreme '{stat}' in this table: "
-                              f"null of the calibrated shape with the nearest kappa ({near_shape})")
+                    approx = (f"no valid finite-window model for the extreme '{stat}' here: null "
+                              f"of the calibrated shape with the nearest kappa ({near_shape})")
                     route = "nearest-shape"
                 else:
                     mom = _model_moments(t, stat, n, kap, d, br)

@@ -46,7 +46,12 @@ Trust measures (``lookup.asymptotic``):
         concavities whose mouths close before they fill make loops too;
     kappa_excess = how far the window's kappa lies outside the range of the
         table's training shapes, relative (max(0, kappa_lo / kappa - 1,
-        kappa / kappa_hi - 1)): the model extrapolates there.
+        kappa / kappa_hi - 1)): the model extrapolates there;
+    curved_share = the share of the boundary that is curved (disks, balls,
+        a cylinder's mantle; ``Window.curved_share``): in 3D the model was
+        trained mostly on flat faces;
+    periodic = 1 for a periodic window (its own limit route, validated on
+        its own), 0 otherwise.
 """
 from __future__ import annotations
 
@@ -56,7 +61,7 @@ __all__ = ["DEPTH", "NARROW_WIDTH", "MEASURES", "covariates", "grid_depths", "tr
 
 #: The trust measures, in the order of the validated range.
 MEASURES = ("boundary_share", "second_order", "narrow_share", "holes", "hull_deficit",
-            "kappa_excess")
+            "kappa_excess", "curved_share", "periodic")
 
 #: Depth h (mean spacings) of the band behind the second-order term B2.
 DEPTH = 1.0
@@ -125,7 +130,9 @@ def trust_measures(window, n: int, kappa_range=None) -> dict:
     cov = covariates(window, n)
     if getattr(window, "periodic", False) or float(window.boundary_measure) == 0.0:
         return {"boundary_share": 0.0, "second_order": 0.0, "narrow_share": 0.0, "holes": 0.0,
-                "hull_deficit": 0.0, "kappa_excess": 0.0, "B1": 0.0, "B2": 0.0}
+                "hull_deficit": 0.0, "kappa_excess": 0.0, "curved_share": 0.0,
+                "periodic": float(bool(getattr(window, "periodic", False))), "B1": 0.0,
+                "B2": 0.0}
     share = 1.0 - float(_inner_fraction(window, 1.0 / s)[0])
     narrow = 0.0
     fn = getattr(window, "narrow_share", None)
@@ -135,7 +142,8 @@ def trust_measures(window, n: int, kappa_range=None) -> dict:
             "narrow_share": float(max(narrow, 0.0)), "holes": float(getattr(window, "holes", 0)),
             "hull_deficit": hull_deficit(window),
             "kappa_excess": kappa_excess(float(window.kappa), kappa_range) if kappa_range else 0.0,
-            "B1": float(cov[1]), "B2": float(cov[2])}
+            "curved_share": float(getattr(window, "curved_share", 0.0)),
+            "periodic": 0.0, "B1": float(cov[1]), "B2": float(cov[2])}
 
 
 def hull_deficit(window) -> float:

@@ -6,7 +6,8 @@ the dimension, n and the *shape* of the window up to similarity (DESIGN.md,
 in one representative of each shape: centred at the origin, scaled to unit
 content and, for rectangles and boxes, with sides sorted ascending.
 
-Named shapes (the first six are those of the shipped tables):
+Named shapes (all in the shipped tables; the last ones are the training
+shapes of the geometric finite-window model and the periodic cells):
 
 =========  ===  ==========================================  ==============
 name       d    representative                               kappa
@@ -23,6 +24,9 @@ holed      2    square of side 2/sqrt(3), centred square     6 / sqrt(3) * 2 = 6
                 hole of side 1/sqrt(3)
 box133     3    sides a, 3a, 3a with a = 9^(-1/3)            30 / 9^(2/3) = 6.9336
 cyl1       3    cylinder, height = diameter = 2 (2 pi)^(-1/3) 6 pi / (2 pi)^(2/3) = 5.5358
+cyl8       3    cylinder, height = 8 diameters                34 pi / (16 pi)^(2/3) = 7.8424
+torus2     2    periodic unit square                         0 (no boundary)
+torus3     3    periodic unit cube                           0 (no boundary)
 =========  ===  ==========================================  ==============
 
 A user's own window (``--window SPEC``) is normalised the same way
@@ -118,6 +122,7 @@ SHAPES = {
     "box133": (3, lambda: _box(np.array([1.0, 3.0, 3.0]) / 9.0 ** (1.0 / 3.0)),
                "box with sides 1:3:3"),
     "cyl1": (3, lambda: _cylinder(1.0), "cylinder with height = diameter"),
+    "cyl8": (3, lambda: _cylinder(8.0), "cylinder with height = 8 diameters"),
     "torus2": (2, lambda: _torus(2), "periodic square (a flat torus: no boundary)"),
     "torus3": (3, lambda: _torus(3), "periodic cube (a flat 3-torus: no boundary)"),
 }
@@ -126,7 +131,8 @@ SHAPES = {
 _BOXES = ("square", "rect2", "rect4", "cube", "box114", "box133")
 
 #: Shapes of the shipped tables, per dimension.
-SHIPPED = {2: ["square", "rect2", "rect4", "disk"], 3: ["cube", "box114"]}
+SHIPPED = {2: ["square", "rect2", "rect4", "disk", "triangle", "cross", "holed", "torus2"],
+           3: ["cube", "box114", "box133", "cyl1", "cyl8", "torus3"]}
 
 
 def shape_dimension(name: str) -> int:

@@ -92,6 +92,9 @@ class Window(metaclass=_Checked):
     estimated: bool = False
     convex: bool = True
     holes: int = 0
+    #: Share of the boundary measure that is curved (not on flat faces or
+    #: straight edges): 1 for disks and balls, the lateral share for cylinders.
+    curved_share: float = 0.0
 
     @property
     def measure(self) -> float:
@@ -391,6 +394,8 @@ class Disk(Window):
     dim = 2
     kind = "disk"
 
+    curved_share = 1.0
+
     def __init__(self, cx, cy, r):
         cx, cy, r = _finite([cx, cy, r], "disk")
         if r <= 0:
@@ -449,6 +454,8 @@ class Ball(Window):
 
     dim = 3
     kind = "ball"
+
+    curved_share = 1.0
 
     def __init__(self, cx, cy, cz, r):
         cx, cy, cz, r = _finite([cx, cy, cz, r], "ball")
@@ -521,6 +528,11 @@ class Cylinder(Window):
         self.centre = np.array([cx, cy])
         self.z0, self.z1, self.r = z0, z1, r
         self.height = z1 - z0
+
+    @property
+    def curved_share(self) -> float:
+        """Lateral surface / whole surface = h / (h + r)."""
+        return float(self.height / (self.height + self.r))
 
     @property
     def measure(self):
