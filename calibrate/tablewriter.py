@@ -139,13 +139,19 @@ def update_table(path, geomodels: dict | None = None, validation: dict | None = 
     """Replace the geometric model and/or validation groups of a table,
     atomically (a copy is changed and renamed over the original); the schema
     version becomes the current one."""
-    import shutil
-
     import h5py
 
     with atomic_path(path) as tmp:
-        shutil.copyfile(path, tmp)
-        with h5py.File(tmp, "a") as fh:
+        # copy object by object into a fresh file (HDF5 does not reclaim the
+        # space of deleted groups), replacing the groups being updated
+        replace = ({"geomodel"} if geomodels is not None else set()) | \
+            ({"validation", "trust"} if validation is not None else set())
+        with h5py.File(path, "r") as src, h5py.File(tmp, "w", libver=("v110", "latest")) as fh:
+            for k, v in src.attrs.items():
+                fh.attrs[k] = v
+            for name in src:
+                if name not in replace:
+                    src.copy(src[name], fh, name)
             fh.attrs["schema_version"] = SCHEMA_VERSION
             if geomodels is not None:
                 write_geomodels(fh, geomodels)

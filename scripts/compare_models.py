@@ -99,8 +99,15 @@ def main(argv=None) -> int:
             pk = kfit.mean_coef @ xk
             cg = np.broadcast_to(covariates(w, n, depth), gfit.mean_coef.shape)
             pg = np.einsum("kc,kc->k", gfit.mean_coef, cg)
-            ek.append(float(np.max(np.abs((mean - pk) / sd)[use])))
-            eg.append(float(np.max(np.abs((mean - pg) / sd)[use])))
+            m = int(ok.sum())
+
+            def bias(pred):
+                # RMS over the grid less the simulation noise of the means
+                e2 = float(np.mean(((mean - pred) / sd)[use] ** 2))
+                return float(np.sqrt(max(0.0, e2 - 1.0 / m)))
+
+            ek.append(bias(pk))
+            eg.append(bias(pg))
         out.append({"statistic": stat, "training_chi2_dof": {"kappa": chi_k, "geometric": chi_g},
                     "heldout_cells": len(ek),
                     "heldout_err_sd_median": {"kappa": float(np.median(ek)) if ek else None,
