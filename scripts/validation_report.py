@@ -78,6 +78,11 @@ def main(argv=None) -> int:
               for r in trusted]
         tails = [r[k] for r in trusted if r["kind"] == "scalar" for k in ("lower", "upper")]
         bias = [abs(r["mean_err_sd"]) for r in trusted]
+        imp = [r[k] for r in trusted if r["kind"] == "scalar"
+               for k in ("implied_lower", "implied_upper") if k in r]
+        if imp:
+            print(f"trusted scalars, tails at 0.025 implied by the measured bias and sd ratio: "
+                  f"{min(imp):.3f}-{max(imp):.3f}")
         print(f"trusted results: {len(trusted)} of {len(rows)} held-out cells x statistics; "
               f"sizes at 0.05 {min(sz):.3f}-{max(sz):.3f}"
               + (f"; tails at 0.025 {min(tails):.3f}-{max(tails):.3f}" if tails else "")
