@@ -202,7 +202,9 @@ def _finish(out, dimension, root_seed, stat_names, records, n_fit, holdout, extr
                             for s, (t, v) in per.items()} for shape, per in nmin.items()}
     return {"table": os.fspath(out), "dimension": dimension, "root_seed": int(root_seed),
             "cells": len(records), "replicates": int(sum(r["replicates"] for r in records)),
-            "n_min": nmin_summary, "model": model_summary}
+            "n_min": nmin_summary, "model": model_summary,
+            "note": ("the model route of this table is not validated (never trusted) until "
+                     f"'nullatlas-calibrate validate {os.fspath(out)}' has run")}
 
 
 #: Smallest n of the cells the geometric model is fitted on.

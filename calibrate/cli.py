@@ -235,6 +235,8 @@ def _print_summary(s, out=None):
         for stat, tests in per.items():
             items.append(stat + " " + "/".join("-" if v is None else str(v) for v in tests.values()))
         out.write(f"  {shape}: " + "; ".join(items) + "\n")
+    if s.get("note"):
+        out.write(f"note: {s['note']}\n")
 
 
 def _cmd_build(a):

@@ -320,7 +320,8 @@ def _table_summary(path) -> dict:
     return {"path": info.path, "dimension": info.dimension, "schema_version": info.schema_version,
             "created": info.created, "root_seed": info.root_seed,
             "statistics": sorted({s for c in info.cells for s in c.stats}),
-            "model": list(info.models), "shapes": shapes}
+            "model": list(info.models), "geometric_model": list(info.geomodels),
+            "validated_model_route": info.trust, "shapes": shapes}
 
 
 def _cmd_tables(a) -> int:
@@ -346,8 +347,23 @@ def _cmd_tables(a) -> int:
             for stat, tests in sh["n_min"].items():
                 txt = ", ".join(f"{k} {'-' if v is None else v}" for k, v in tests.items())
                 w(f"      n_min {stat:<10} {txt}\n")
+        if t["validated_model_route"]:
+            w("  model route (any other window) validated on held-out windows: trusted for n in "
+              "this range and window measures up to these:\n")
+            for stat, per in t["validated_model_route"].items():
+                for test, r in per.items():
+                    if r.get("passed", 0) <= 0:
+                        w(f"      {stat:<10} {test:<11} never (no held-out window passed)\n")
+                        continue
+                    w(f"      {stat:<10} {test:<11} n {r['n_lo']}..{r['n_hi']}; boundary "
+                      f"{r['boundary_share_max']:.0%}, narrow {r['narrow_share_max']:.1%}, holes "
+                      f"{max(int(r['holes_max']), 0)}, 2nd order {r['second_order_max']:.2g}, "
+                      f"curved {max(r.get('curved_share_max', 0), 0):.0%}\n")
+        elif t["geometric_model"] or t["model"]:
+            w("  model route: not validated on held-out windows (never trusted); run "
+              "'nullatlas-calibrate validate FILE'\n")
     w("n_min: smallest calibrated n from which the audited size of the asymptotic test stays "
-      "within tolerance ('-': none).\n")
+      "within tolerance ('-': none). Model route: see README, 'Windows of any shape'.\n")
     return 0
 
 
