@@ -918,10 +918,11 @@ class VoxelWindow(Window):
       only voxels near reflex edges and corners of the union are integrated
       numerically (a seeded stratified rule, unbiased; in the tests within
       the binomial error of 200,000 uniform points).
-    * ``opened_content(r)`` is digital: voxels whose centre is within r of
-      the centre of a voxel whose centre is farther than r from the boundary
-      (distance transforms); the width at which a part is lost is right to
-      about one voxel.
+    * ``opened_content(r)`` is digital: the voxels whose centre lies in a
+      ball B(c, D(c)) around a voxel centre c farther than r from the
+      boundary (distance transforms); exact where the opening follows the
+      window's faces, right to about one voxel along its rounded parts and
+      in the width at which a part is lost.
 
     Parameters
     ----------
@@ -1158,19 +1159,55 @@ class VoxelWindow(Window):
             out[i] = cache[ti]
         return out
 
+    def _centre_depth(self, band: tuple[float, float]) -> np.ndarray:
+        """Distances of the inside voxel centres to the boundary (voxel units).
+
+        ``e - 1/2`` from the distance transform (exact when a face is
+        nearest, else too large by at most (sqrt(3) - 1)/2), replaced by the
+        exact distance for the centres whose value lies in ``band``.
+        """
+        if "depth" not in self._cache:
+            self._cache["depth"] = self._centre_edt() - 0.5
+            self._cache["exact"] = np.zeros(self.mask.shape, dtype=bool)
+        depth, exact = self._cache["depth"], self._cache["exact"]
+        todo = self.mask & ~exact & (depth > band[0]) & (depth < band[1])
+        if todo.any():
+            ijk = np.argwhere(todo)
+            depth[todo] = self._nearest(ijk + 1.5, outer=True)
+            exact[todo] = True
+        return depth
+
     def _opened(self, r):
+        # The opening is the union of the balls B(y, D(y)) over the points y
+        # with D(y) > r (D the distance to the boundary): each such ball lies
+        # in W and is a union of radius-r balls, and every radius-r ball in W
+        # lies in one.  The centres y are sampled at the voxel centres and
+        # grouped by D(y) - r in bins of 1/4 voxel (the last one: >= 2); each
+        # group is dilated by its smallest D (a distance transform), and a
+        # voxel counts when its centre is covered.  Where the
+        # opening follows the window's faces this is exact; along the rounded
+        # parts it is right to about one voxel.
         from scipy import ndimage
 
-        depth = self._centre_edt() - 0.5          # centre-to-boundary, voxel units
         out = np.empty(len(r))
         for i, ri in enumerate(r.tolist()):
             tau = ri / self.voxel
+            if tau == 0:
+                out[i] = self.measure
+                continue
+            depth = self._centre_depth((tau - 1.0, tau + 2.0))
             core = self.mask & (depth > tau)
             if not core.any():
                 out[i] = 0.0
                 continue
-            reach = ndimage.distance_transform_edt(~core)
-            out[i] = float(np.count_nonzero(self.mask & (reach <= tau))) * self.voxel ** 3
+            covered = np.zeros(self.mask.shape, dtype=bool)
+            level = np.minimum(np.floor((depth - tau) * 4.0), 8.0)   # bins of 1/4 voxel
+            for k in range(9):
+                centres = core & (level == k)
+                if centres.any():
+                    reach = ndimage.distance_transform_edt(~centres)
+                    covered |= reach <= depth[centres].min()
+            out[i] = float(np.count_nonzero(covered & self.mask)) * self.voxel ** 3
         return out
 
 
