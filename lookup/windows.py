@@ -1091,10 +1091,11 @@ class VoxelWindow(Window):
         volume is exact.  Cubes offset along two or three axes exclude a
         rounded region (a quarter cylinder around a reflex edge or a ball
         around a reflex corner); they are dropped when a face cube on one of
-        their axes already excludes it, and otherwise the voxel is integrated
-        with one point in each of its m^3 sub-cubes (a lattice shifted by a
-        seeded random offset per voxel: unbiased, with errors that average
-        out over voxels instead of adding up).
+        their axes already excludes it, and otherwise the share of the box
+        outside them is integrated with one point in each of the box's m^3
+        sub-boxes (a lattice shifted by a seeded random offset per voxel:
+        unbiased, with errors that average out over voxels instead of adding
+        up).
         """
         shell, tree = self._shell(True)
         out = 0.0
@@ -1132,21 +1133,23 @@ class VoxelWindow(Window):
             g = np.arange(m) / m
             grid = np.stack(np.meshgrid(g, g, g, indexing="ij"), -1).reshape(-1, 3)
             rows = np.flatnonzero(rough)
-            # one point per sub-cube, the lattice shifted by a random offset
-            # per voxel (fixed seed): unbiased, and the errors of different
+            # one point per sub-cube of the box left by the face cubes, the
+            # lattice shifted by a random offset per voxel (fixed seed):
+            # unbiased, exact for the faces, and the errors of different
             # voxels do not add up the way a fixed midpoint lattice's do
+            blo = np.clip(lo[rows], 0.0, 1.0)[:, None, :]
+            bsz = np.clip(hi[rows] - lo[rows], 0.0, 1.0)[:, None, :]
             shift = np.random.default_rng(len(rows)).random((len(rows), 1, 3)) / m
-            keep = np.all((grid[None] + shift > lo[rows, None])
-                          & (grid[None] + shift < hi[rows, None]), axis=2)
+            keep = np.ones((len(rows), len(grid)), dtype=bool)
             slot = np.full(k, -1)
             slot[rows] = np.arange(len(rows))
             for p in range(0, len(idx), 4096):
                 sl = slot[ow[p:p + 4096]]
-                pts = grid[None] + shift[sl]
+                pts = blo[sl] + bsz[sl] * (grid[None] + shift[sl])
                 gap = np.maximum(np.abs(pts - 0.5 - oc[p:p + 4096, None]) - 0.5, 0.0)
                 near = np.einsum("ijk,ijk->ij", gap, gap) <= tau * tau
                 np.logical_and.at(keep, sl, ~near)
-            out += float(keep.sum()) / m ** 3
+            out += float(np.sum(box[rows] * keep.mean(axis=1)))
         return out
 
     def _inner(self, t):
