@@ -1080,7 +1080,7 @@ class VoxelWindow(Window):
             count += self._crossing_share(cross, tau)
         return count
 
-    def _crossing_share(self, centres: np.ndarray, tau: float, m: int = 8) -> float:
+    def _crossing_share(self, centres: np.ndarray, tau: float, m: int = 6) -> float:
         """Summed share of each voxel (by centre) farther than ``tau`` from the outside.
 
         In local coordinates x in [0, 1]^3 of a voxel, an outside cube at
