@@ -46,6 +46,20 @@ def test_pixel_block_is_exactly_the_rectangle():
     assert w.kind == "mask" and isinstance(w, PolygonWindow) and w.convex
 
 
+def test_mask_parallel_sets_agree_with_polygon_buffers():
+    # masks use the pixel grid; the same outline as a plain polygon uses
+    # negative buffers: two independent routes to the same numbers
+    y, x = np.mgrid[0:60, 0:80]
+    m = ((x - 40) / 34.0) ** 2 + ((y - 30) / 24.0) ** 2 + 0.15 * np.sin(x / 5.0) <= 1
+    m &= ~(((x - 30) ** 2 + (y - 28) ** 2) <= 36)
+    w = MaskWindow.from_array(m, 0.1, (2.0, -1.0))
+    poly = PolygonWindow(w.geometry)
+    assert w._grid.measure == pytest.approx(w.measure, rel=1e-12)
+    assert w._grid.boundary_measure == pytest.approx(w.boundary_measure, rel=1e-12)
+    ts = np.array([0.0, 0.02, 0.1, 0.35, 1.0])
+    np.testing.assert_allclose(w.inner_content(ts), poly.inner_content(ts), rtol=3e-4)
+
+
 def test_row_zero_is_the_top():
     m = np.zeros((4, 3), bool)
     m[0, 1] = True
