@@ -853,9 +853,12 @@ class MaskWindow(PolygonWindow):
 
     The window is exactly the union of the closed squares of the nonzero
     pixels, held as a shapely (multi)polygon, so containment, sampling,
-    boundary distances and parallel sets are those of
-    :class:`PolygonWindow`.  Pixels touching only at a corner are separate
-    parts touching at a point.
+    boundary distances and openings are those of :class:`PolygonWindow`.
+    ``inner_content`` works on the pixel grid instead (the method of
+    :class:`VoxelWindow` in 2D: exact along edges, stratified points in the
+    pixels near reflex corners; within about 1e-4 of converged negative
+    buffers, and much faster for outlines with many steps).  Pixels
+    touching only at a corner are separate parts touching at a point.
 
     Parameters
     ----------
