@@ -31,10 +31,10 @@ __all__ = ["HELDOUT", "heldout_window", "HELDOUT_SEED", "HELDOUT_N", "HELDOUT_N_
 HELDOUT_SEED = 7_160_016
 
 #: n simulated per dimension (periodic windows: see HELDOUT_N_PERIODIC).
-HELDOUT_N = {2: [100, 500, 2000, 20000], 3: [100, 500, 2000, 5000]}
+HELDOUT_N = {2: [100, 500, 1000, 2000, 5000, 20000], 3: [100, 300, 500, 1000, 2000, 5000]}
 #: Periodic windows: exact periodic persistence costs more than the bounded
 #: windows' (the 3D torus needs about 200 points to fold into a complex).
-HELDOUT_N_PERIODIC = {2: [100, 500, 2000, 20000], 3: [500, 2000, 5000]}
+HELDOUT_N_PERIODIC = {2: [100, 500, 1000, 2000, 5000, 20000], 3: [300, 500, 1000, 2000, 5000]}
 
 
 def heldout_ns(name: str) -> list:
