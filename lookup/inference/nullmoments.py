@@ -309,6 +309,19 @@ def _bracket(cells: list, n: int):
     return [cells[j - 1], cells[j]]
 
 
+def _scaled_cov(base_cov: np.ndarray, nvar: np.ndarray, n: int) -> np.ndarray:
+    """Covariance with the correlation of ``base_cov`` and the variances
+    ``nvar / n`` (model variances of the per-point statistic)."""
+    sd_b = np.sqrt(np.clip(np.diag(base_cov), 0, None))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        corr = base_cov / np.outer(sd_b, sd_b)
+    corr = np.where(np.isfinite(corr), corr, 0.0)
+    sd = np.sqrt(np.clip(nvar / n, 0, None))
+    cov = corr * np.outer(sd, sd)
+    np.fill_diagonal(cov, sd ** 2)
+    return cov
+
+
 def _model_moments(t: _Table, stat: str, n: int, kappa: float, d: int, near: list):
     """Model mean and covariance at (n, kappa); correlation of the nearest cell."""
     m = t.model(stat)
@@ -318,15 +331,8 @@ def _model_moments(t: _Table, stat: str, n: int, kappa: float, d: int, near: lis
     mean = np.asarray(m["mean_coef"], float) @ x
     nvar = np.asarray(m["var_coef"], float) @ x
     base = _from_cells(t, stat, near, n, d)
-    sd_b = np.sqrt(np.clip(np.diag(base["cov"]), 0, None))
-    with np.errstate(divide="ignore", invalid="ignore"):
-        corr = base["cov"] / np.outer(sd_b, sd_b)
-    corr = np.where(np.isfinite(corr), corr, 0.0)
-    sd = np.sqrt(np.clip(nvar / n, 0, None))
-    cov = corr * np.outer(sd, sd)
-    np.fill_diagonal(cov, sd ** 2)
-    return {"mean": mean, "cov": cov, "usable": base["usable"], "values": base["values"],
-            "replicates": base["replicates"]}
+    return {"mean": mean, "cov": _scaled_cov(base["cov"], nvar, n), "usable": base["usable"],
+            "values": base["values"], "replicates": base["replicates"]}
 
 
 #: Size of the null sample drawn from the extremes' exceedance model.
@@ -381,14 +387,7 @@ def _geo_moments(t: _Table, stat: str, n: int, window, d: int, near: list):
                 "covariates": cov}
     mean = np.einsum("kc,kc->k", g["mean_coef"], np.broadcast_to(cov, g["mean_coef"].shape))
     nvar = np.einsum("kc,kc->k", g["var_coef"], np.broadcast_to(cov, g["var_coef"].shape))
-    sd_b = np.sqrt(np.clip(np.diag(base["cov"]), 0, None))
-    with np.errstate(divide="ignore", invalid="ignore"):
-        corr = base["cov"] / np.outer(sd_b, sd_b)
-    corr = np.where(np.isfinite(corr), corr, 0.0)
-    sd = np.sqrt(np.clip(nvar / n, 0, None))
-    c = corr * np.outer(sd, sd)
-    np.fill_diagonal(c, sd ** 2)
-    return {"mean": mean, "cov": c, "usable": base["usable"], "values": None,
+    return {"mean": mean, "cov": _scaled_cov(base["cov"], nvar, n), "usable": base["usable"], "values": None,
             "replicates": base["replicates"], "covariates": cov}
 
 
@@ -424,15 +423,8 @@ def _periodic_moments(t: _Table, stat: str, n: int, cells: list, kind: str):
             if np.all(v > 0) else m[-1]
         nv = ns * v
         nvar[j] = np.linalg.lstsq(X, nv, rcond=None)[0] @ [1.0, 1.0 / n]
-    sd_b = np.sqrt(np.clip(np.diag(last["cov"]), 0, None))
-    with np.errstate(divide="ignore", invalid="ignore"):
-        corr = last["cov"] / np.outer(sd_b, sd_b)
-    corr = np.where(np.isfinite(corr), corr, 0.0)
-    sd = np.sqrt(np.clip(nvar / n, 0, None))
-    c = corr * np.outer(sd, sd)
-    np.fill_diagonal(c, sd ** 2)
-    return {"mean": mean, "cov": c, "usable": last.get("usable"), "values": None,
-            "replicates": min(s["count"] for s in stats)}
+    return {"mean": mean, "cov": _scaled_cov(last["cov"], nvar, n), "usable": last.get("usable"),
+            "values": None, "replicates": min(s["count"] for s in stats)}
 
 
 def _nearest_cells(t: _Table, stat: str, kap: float, n: int, prefer: str | None = None):
