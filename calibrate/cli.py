@@ -181,6 +181,9 @@ def build_parser() -> argparse.ArgumentParser:
                    help="only these held-out windows (default: all of the table's dimension)")
     v.add_argument("--no-refit", action="store_true",
                    help="keep the stored geometric model (default: refit it first)")
+    v.add_argument("--plot", metavar="FILE",
+                   help="figure: size at 0.05 against n on every held-out window, trusted or not, "
+                   "for the default statistics")
     _add_run_options(v)
     return p
 
@@ -387,6 +390,9 @@ def _cmd_validate(a):
     from .validate import validate_tables
 
     info = open_table(a.table)
+    if a.plot:
+        from nullatlas.lookup.plots import check_plot_path
+        check_plot_path(a.plot)
     folder = a.heldout or os.path.join(os.path.dirname(os.path.abspath(a.table)),
                                        "heldout.parts")
     names = None
@@ -411,8 +417,16 @@ def _cmd_validate(a):
         raise OptionError(f"no held-out simulations of {info.dimension}D windows in {folder}; "
                           "run with --simulate R or scripts/make_heldout.py")
     update_table(a.table, validation=res)
-    return {"_kind": "validate", "table": a.table, "heldout": folder, "rows": res["rows"],
-            "trust": res["trust"]}
+    out = {"_kind": "validate", "table": a.table, "heldout": folder, "rows": res["rows"],
+           "trust": res["trust"]}
+    if a.plot:
+        from nullatlas.lookup.summaries.statistics import default_stats
+
+        from .validate import plot_validation
+        out["plot"] = plot_validation(res["rows"], res["trust"], default_stats(info.dimension),
+                                      a.plot, f"instant test on held-out {info.dimension}D windows "
+                                      "(band: 0.05 +- 0.01)")
+    return out
 
 
 def _print_validate(s, out=None):

@@ -238,3 +238,67 @@ def validate_tables(tset, folder: str, dimension: int, names=None, ns=None) -> d
         if per:
             trust[stat] = per
     return {"rows": rows, "trust": trust}
+
+
+def plot_validation(rows: list[dict], trust: dict, stats: list[str], path: str,
+                    title: str = "") -> str:
+    """Size at 0.05 of the instant test against n on every held-out window,
+    one panel per statistic: filled markers where the window at that n lies
+    inside the validated range (trusted), open markers outside it, a cross
+    where the cell failed its check; the grey band is 0.05 +- 0.01."""
+    import matplotlib
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    from nullatlas.lookup.patterns.boundary import MEASURES
+    from nullatlas.lookup.plots import save_figure
+
+    def inside(r, rng):
+        if not rng or not rng.get("passed") or not rng["n_lo"] <= r["n"] <= rng["n_hi"]:
+            return False
+        return all(r[k] <= rng[f"{k}_max"] + 1e-12 for k in MEASURES)
+
+    rows = [r for r in rows if r["route"] == "model" and r["statistic"] in stats]
+    windows = list(dict.fromkeys(r["window"] for r in rows))
+    cmap = plt.get_cmap("tab10")
+    colour = {w: cmap(i % 10) for i, w in enumerate(windows)}
+    ncol = min(3, len(stats))
+    nrow = -(-len(stats) // ncol)
+    fig, axes = plt.subplots(nrow, ncol, figsize=(4.3 * ncol, 3.3 * nrow + 0.9), squeeze=False)
+    for ax, s in zip(axes.ravel(), stats):
+        ax.axhspan(0.04, 0.06, color="0.88", zorder=0)
+        ax.axhline(0.05, color="k", lw=0.7, zorder=1)
+        top = 0.12
+        for w in windows:
+            mine = sorted((r for r in rows if r["window"] == w and r["statistic"] == s),
+                          key=lambda r: r["n"])
+            if not mine:
+                continue
+            test = "two_sided" if mine[0]["kind"] == "scalar" else next(iter(mine[0]["tests"]))
+            rng = trust.get(s, {}).get(test)
+            xs = [r["n"] for r in mine]
+            ys = [min(r.get("upper_05", r["size"]) if r["kind"] == "extreme" else r["size"], top)
+                  for r in mine]
+            ax.plot(xs, ys, "-", color=colour[w], lw=0.8, alpha=0.6)
+            for r, x, y in zip(mine, xs, ys):
+                ok = r["tests"].get(test, False)
+                face = colour[w] if inside(r, rng) else "white"
+                ax.plot([x], [y], "o" if ok else "X", ms=6 if ok else 7, mfc=face,
+                        mec=colour[w], mew=1.2, zorder=3)
+        ax.set_xscale("log")
+        ax.set_ylim(0.0, top + 0.005)
+        ax.set_title(s, fontsize=10)
+        ax.set_xlabel("n")
+        ax.set_ylabel("size at 0.05 (capped at 0.12)")
+    for ax in axes.ravel()[len(stats):]:
+        ax.set_visible(False)
+    from matplotlib.lines import Line2D
+    handles = [Line2D([], [], color=colour[w], marker="o", lw=0.8, label=w) for w in windows]
+    handles += [Line2D([], [], color="0.3", marker="o", lw=0, mfc="0.3", label="trusted"),
+                Line2D([], [], color="0.3", marker="o", lw=0, mfc="white", label="not trusted"),
+                Line2D([], [], color="0.3", marker="X", lw=0, label="failed its check")]
+    fig.legend(handles=handles, loc="lower center", ncol=min(6, len(handles)), fontsize=8,
+               frameon=False)
+    fig.suptitle(title or "instant test on held-out windows (band: 0.05 +- 0.01)", fontsize=11)
+    fig.tight_layout(rect=(0, 0.04 + 0.025 * (len(handles) // 6), 1, 0.97))
+    return save_figure(fig, path)

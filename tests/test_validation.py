@@ -110,3 +110,35 @@ def test_verdict_trusts_the_model_only_inside_the_validated_range():
     nm_none = _nm_model(None)
     ok, why = verdict(nm_none, st, 2000, sq, "two-sided")
     assert not ok and any("not validated" in w for w in why)
+
+
+def test_validate_command_scores_a_table_and_draws_it(tmp_path, capsys):
+    """End to end on a copy of the shipped 2D table: held-out patterns of the
+    L-shaped window (few, to be quick), scores and validated range written
+    into the table, JSON and figure; a bad window name is one line, status 2."""
+    import json
+    import shutil
+
+    from nullatlas.calibrate.cli import main
+    from nullatlas.calibrate.heldout import simulate_heldout
+    from nullatlas.lookup.inference.tablereader import open_table, shipped_tables
+
+    table = tmp_path / "t.h5"
+    shutil.copyfile(shipped_tables()[2], table)
+    folder = tmp_path / "held"
+    for n in (100, 500):
+        simulate_heldout(str(folder), "L", n, 120, stats=["euler", "total0"])
+    fig = tmp_path / "v.png"
+    assert main(["validate", str(table), "--heldout", str(folder), "--window", "L",
+                 "--no-refit", "--plot", str(fig), "--json"]) == 0
+    out = json.loads(capsys.readouterr().out)
+    rows = out["rows"]
+    assert {(r["n"], r["statistic"]) for r in rows} == {(100, "euler"), (100, "total0"),
+                                                        (500, "euler"), (500, "total0")}
+    assert all(r["route"] == "model" and r["m"] == 120 for r in rows)
+    assert fig.exists() and fig.stat().st_size > 10_000
+    info = open_table(str(table))
+    assert set(info.trust) == {"euler", "total0"}
+    assert info.trust["euler"]["maxabs"]["n_lo"] == 100
+    assert main(["validate", str(table), "--heldout", str(folder), "--window", "nosuch"]) == 2
+    assert "unknown held-out window" in capsys.readouterr().err
