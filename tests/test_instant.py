@@ -197,3 +197,19 @@ def test_interpolation_between_cells_is_between_them():
     assert lo <= c.mean[0] <= hi
     # n Var interpolates: the sd of total0 per point scales like n^(-1/2)
     assert a.sd[0] > c.sd[0] > b.sd[0]
+
+
+def test_a_p_value_is_never_zero():
+    """A strongly clustered pattern (z about -80 for total0) underflows the
+    normal tail: the p-value is the smallest positive double, flagged."""
+    from nullatlas.lookup.inference.asymptotic import P_FLOOR
+
+    rng = np.random.default_rng(3)
+    w = windows.Rectangle(0, 0, 1, 1)
+    parents = rng.random((20, 2))
+    pts = np.clip(parents[rng.integers(0, 20, 4000)] + 0.002 * rng.standard_normal((4000, 2)),
+                  0, 1)
+    r = csr_test(pts, w, ["total0"], method="asymptotic", seed=1)
+    assert r.primary.z < -38                      # beyond what the normal tail resolves
+    assert r.primary.pvalue == P_FLOOR > 0
+    assert r.primary.details["p_value_floor"] == P_FLOOR

@@ -142,3 +142,4 @@ def test_validate_command_scores_a_table_and_draws_it(tmp_path, capsys):
     assert info.trust["euler"]["maxabs"]["n_lo"] == 100
     assert main(["validate", str(table), "--heldout", str(folder), "--window", "nosuch"]) == 2
     assert "unknown held-out window" in capsys.readouterr().err
+

@@ -39,8 +39,11 @@ from . import globaltests as gt
 from .extremes import GumbelTail
 from .nullmoments import NullMoments
 
-__all__ = ["N_GAUSS", "DUPLICATE_LIMIT", "test_key", "verdict", "asymptotic_result"]
+__all__ = ["P_FLOOR", "N_GAUSS", "DUPLICATE_LIMIT", "test_key", "verdict", "asymptotic_result"]
 
+#: Smallest p-value reported: below it a normal or Gumbel tail underflows in
+#: double precision, and the p-value is reported as this upper bound.
+P_FLOOR = float(np.finfo(float).tiny)
 #: Gaussian vectors simulated for the max |z| p-value of a curve.
 N_GAUSS = 10_000
 #: Fraction of handled duplicate points above which no asymptotic answer is trusted.
@@ -250,6 +253,11 @@ def asymptotic_result(stat, observed, nm: NullMoments, alternative: str, n: int,
         zz = (x - mu_s) / sd_s if sd_s > 0 else float("nan")
         p = _scalar_p(zz, alternative) if np.isfinite(zz) else float("nan")
         statistic, method, alt = x, "asymptotic-normal", alternative
+    if np.isfinite(p) and p < P_FLOOR:
+        # the tail probability underflowed: a p-value is never 0; report the
+        # smallest positive normal double, an upper bound of the true value
+        details["p_value_floor"] = P_FLOOR
+        p = P_FLOOR
     reason = "; ".join(([note] if note else []) + reasons) if not trusted else \
         (note or f"instant test from the null table ({nm.route}: {', '.join(nm.cells)})")
     return StatResult(name=stat.name, kind=stat.kind, statistic=statistic, pvalue=p,
