@@ -37,7 +37,7 @@ tips, curvature), the narrow share (share in parts narrower than
 ``lookup.patterns.boundary.NARROW_WIDTH`` mean spacings), the number of holes and
 the hull deficit (concavities) and the kappa excess (outside the training
 shapes' kappa range), such that no failing cell lies inside,
-chosen greedily to hold as many passing cells as possible, and the n range
+chosen by a beam search to hold as many passing cells as possible, and the n range
 of the held-out cells.  The runtime trusts the model route only
 inside it (``lookup.asymptotic.verdict``).
 """
@@ -163,39 +163,58 @@ def score_cell(tset, window, n: int, raw: dict, stats) -> list[dict]:
     return rows
 
 
+#: Boxes kept at each step of the search of :func:`_search_box`.
+BEAM = 24
+
+
+def _search_box(X: np.ndarray, ok: np.ndarray):
+    """The box {x <= b} holding the most passing rows of ``X`` and no failing
+    one (beam search): start from the box of all passing rows; while a
+    failing row lies inside, lower one bound to the largest passing value
+    below that row's, keeping the BEAM boxes that hold the most passing rows
+    at each step.  Returns (bounds, number of passing rows inside); bounds
+    of -1 where no passing row can be kept."""
+    if not ok.any():
+        return np.full(X.shape[1], -1.0), 0
+
+    def kept(b):
+        return int(np.sum(np.all(X[ok] <= b + 1e-12, axis=1)))
+
+    beam = [X[ok].max(axis=0)]
+    best = (-1, None)
+    while beam:
+        nxt = {}
+        for box in beam:
+            inside = np.all(X <= box + 1e-12, axis=1)
+            bad = np.flatnonzero(inside & ~ok)
+            if bad.size == 0:
+                k = kept(box)
+                if k > best[0]:
+                    best = (k, box)
+                continue
+            f = bad[0]
+            for j in range(X.shape[1]):
+                below = X[ok & inside & (X[:, j] < X[f, j] - 1e-12), j]
+                cand = box.copy()
+                cand[j] = below.max() if below.size else -1.0
+                nxt[tuple(np.round(cand, 12))] = cand
+        ranked = sorted(nxt.values(), key=kept, reverse=True)
+        beam = [b for b in ranked[:BEAM] if kept(b) > best[0]]
+    return best[1], best[0]
+
+
 def validated_range(rows: list[dict], test: str) -> dict:
     """The validated range of one statistic's ``test`` from its scored
     held-out cells: upper bounds on the trust measures
-    (``lookup.patterns.boundary.MEASURES``) such that no failing cell lies inside the
-    box they span.  Greedy: start from the box of all passing cells; while a
-    failing cell lies inside, lower one bound to just below that cell (the
-    largest passing value under it), choosing the cut that keeps the most
-    passing cells.  Also the n range of the held-out cells."""
+    (``lookup.patterns.boundary.MEASURES``) such that no failing cell lies
+    inside the box they span, holding as many passing cells as the search of
+    :func:`_search_box` finds.  Also the n range of the held-out cells."""
     pts = [r for r in rows if test in r.get("tests", {})]
     if not pts:
         return {}
     X = np.array([[r[k] for k in MEASURES] for r in pts], float)
     ok = np.array([bool(r["tests"][test]) for r in pts])
-    if ok.any():
-        box = X[ok].max(axis=0)
-        while True:
-            inside = np.all(X <= box + 1e-12, axis=1)
-            bad = np.flatnonzero(inside & ~ok)
-            if bad.size == 0:
-                break
-            best = None
-            for f in bad:
-                for j in range(X.shape[1]):
-                    below = X[ok & inside & (X[:, j] < X[f, j] - 1e-12), j]
-                    cand = box.copy()
-                    cand[j] = below.max() if below.size else -1.0
-                    keep = int(np.sum(np.all(X[ok] <= cand + 1e-12, axis=1)))
-                    if best is None or keep > best[0]:
-                        best = (keep, cand)
-            box = best[1]
-        passed = int(np.sum(np.all(X[ok] <= box + 1e-12, axis=1)))
-    else:
-        box, passed = np.full(X.shape[1], -1.0), 0
+    box, passed = _search_box(X, ok)
     ns = [r["n"] for r in pts]
     out = {f"{k}_max": float(v) for k, v in zip(MEASURES, box)}
     out.update({"n_lo": int(min(ns)), "n_hi": int(max(ns)), "cells": len(pts),

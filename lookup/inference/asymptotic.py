@@ -59,6 +59,12 @@ def test_key(kind: str, alternative: str, curve_test: str = "maxabs") -> str:
     return {"two-sided": "two_sided", "greater": "upper", "less": "lower"}[alternative]
 
 
+def _pct(v: float) -> str:
+    """A share in per cent, with enough digits for small ones."""
+    v = max(float(v), 0.0)
+    return f"{v:.1%}" if v == 0.0 or v >= 0.01 else f"{v:.2%}" if v >= 0.0001 else f"{v:.1e}"
+
+
 def _model_trust(nm: NullMoments, stat, n: int, window, key: str) -> list:
     """Reasons against a model-route answer: the window at this n must lie
     inside the range where the table's validation on held-out windows
@@ -86,9 +92,9 @@ def _model_trust(nm: NullMoments, stat, n: int, window, key: str) -> list:
         out.append(f"n = {n} is outside the n where the model of '{stat.name}' was validated on "
                    f"held-out windows ({lo}..{hi})")
     if m["narrow_share"] > per["narrow_share_max"] + 1e-12:
-        out.append(f"{m['narrow_share']:.1%} of the window lies in parts narrower than "
+        out.append(f"{_pct(m['narrow_share'])} of the window lies in parts narrower than "
                    f"{NARROW_WIDTH:g} mean spacings (validated up to "
-                   f"{per['narrow_share_max']:.1%} for '{stat.name}')")
+                   f"{_pct(per['narrow_share_max'])} for '{stat.name}')")
     if m["second_order"] > per.get("second_order_max", np.inf) + 1e-12:
         out.append(f"the window's corners, tips or curvature are too strong for this n "
                    f"(second-order term |B2| sqrt(n) = {m['second_order']:.3g}; the model of "
@@ -98,25 +104,25 @@ def _model_trust(nm: NullMoments, stat, n: int, window, key: str) -> list:
                    f"balls in every pattern, and the model of '{stat.name}' was validated on "
                    f"windows with at most {int(max(per['holes_max'], 0))}")
     if m["hull_deficit"] > per.get("hull_deficit_max", np.inf) + 1e-12:
-        out.append(f"the window's concavities ({m['hull_deficit']:.0%} of its convex hull) are "
-                   f"deeper than on the held-out windows where the model of '{stat.name}' held "
-                   f"({max(per['hull_deficit_max'], 0):.0%})")
+        out.append(f"the window's concavities ({_pct(m['hull_deficit'])} of its convex hull) "
+                   f"are deeper than on the held-out windows where the model of '{stat.name}' "
+                   f"held ({_pct(per['hull_deficit_max'])})")
     if m["kappa_excess"] > per.get("kappa_excess_max", np.inf) + 1e-12:
         lo, hi = nm.kappa_range
         out.append(f"the window's kappa {float(window.kappa):.3g} (boundary measure per content, "
                    f"scale-free) is outside the training shapes' range [{lo:.3g}, {hi:.3g}] by "
                    f"more than the model of '{stat.name}' was validated for")
     if m["curved_share"] > per.get("curved_share_max", np.inf) + 1e-12:
-        out.append(f"{m['curved_share']:.0%} of the window's boundary is curved; the model of "
-                   f"'{stat.name}' was validated for windows with up to "
-                   f"{max(per['curved_share_max'], 0):.0%}")
+        out.append(f"{_pct(m['curved_share'])} of the window's boundary is curved; the model "
+                   f"of '{stat.name}' was validated for windows with up to "
+                   f"{_pct(per['curved_share_max'])}")
     if m["periodic"] > per.get("periodic_max", np.inf) + 1e-12:
         out.append(f"n = {n} is beyond the periodic cells of '{stat.name}' and their "
                    "extrapolation did not hold on the held-out periodic window")
     if m["boundary_share"] > per["boundary_share_max"] + 1e-12:
-        out.append(f"{m['boundary_share']:.1%} of the window lies within one mean spacing of its "
-                   f"boundary (the model of '{stat.name}' was validated up to "
-                   f"{per['boundary_share_max']:.1%})")
+        out.append(f"{_pct(m['boundary_share'])} of the window lies within one mean spacing of "
+                   f"its boundary (the model of '{stat.name}' was validated up to "
+                   f"{_pct(per['boundary_share_max'])})")
     return out
 
 
