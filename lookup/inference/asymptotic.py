@@ -217,6 +217,8 @@ def asymptotic_result(stat, observed, nm: NullMoments, alternative: str, n: int,
     mean, sd = nm.mean, nm.sd
     details = {"route": nm.route, "cells": list(nm.cells), "table": nm.table,
                "shape": nm.shape, "replicates": nm.replicates, "n_min": nm.n_min}
+    if "measures" in nm.extra:      # model route: the window's trust measures at this n
+        details["window_measures"] = {k: float(v) for k, v in nm.extra["measures"].items()}
     curve = None
     if nm.kind == "curve":
         use = np.asarray(nm.usable, bool) if nm.usable is not None else np.zeros(len(mean), bool)
