@@ -323,11 +323,6 @@ def fit_geomodel_robust(cells: list[dict], d: int, n_fit: int = 100, min_shapes:
     return fit, excluded
 
 
-def predict_geo(coef: np.ndarray, cov: np.ndarray) -> np.ndarray:
-    """Model value at covariates ``cov`` (4,): coef (k, 4) @ cov."""
-    return np.asarray(coef, float) @ np.asarray(cov, float)
-
-
 #: Points of the x grid on which the extremes' exceedance model is fitted.
 EXTREME_GRID = 160
 

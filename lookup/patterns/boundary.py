@@ -157,9 +157,3 @@ def hull_deficit(window) -> float:
     if fn is not None:
         return float(max(0.0, 1.0 - float(window.measure) / float(fn())))
     return 0.0
-
-
-def describe_narrow(width_spacings: float = NARROW_WIDTH) -> str:
-    """Plain words for the narrow-part threshold (used in reasons)."""
-    return f"narrower than {width_spacings:g} mean spacings ((|W|/n)^(1/d))"
-
