@@ -147,13 +147,26 @@ def trust_measures(window, n: int, kappa_range=None) -> dict:
 
 
 def hull_deficit(window) -> float:
-    """1 - |W| / |convex hull of W| (0 for convex windows)."""
+    """1 - |W| / |convex hull of W| (0 for convex windows; 1 for a
+    non-convex window whose hull is not known)."""
     if getattr(window, "convex", True) and not getattr(window, "holes", 0):
         return 0.0
     geom = getattr(window, "geometry", None)
     if geom is not None:
         return float(max(0.0, 1.0 - geom.area / geom.convex_hull.area))
-    fn = getattr(window, "hull_measure", None)
-    if fn is not None:
-        return float(max(0.0, 1.0 - float(window.measure) / float(fn())))
-    return 0.0
+    mask = getattr(window, "mask", None)
+    if mask is not None and np.ndim(mask) == 3:
+        # voxel mask: the hull of the corners of its inside voxels
+        from scipy.spatial import ConvexHull, QhullError
+
+        idx = np.argwhere(np.asarray(mask, bool)).astype(float)
+        corners = (idx[:, None, :] + np.array([[i, j, k] for i in (0, 1) for j in (0, 1)
+                                                 for k in (0, 1)], float)).reshape(-1, 3)
+        try:
+            hull = ConvexHull(np.unique(corners, axis=0))
+        except (QhullError, ValueError):
+            return 1.0
+        return float(max(0.0, 1.0 - idx.shape[0] / hull.volume))
+    # a non-convex window whose hull is not known: the worst case, so that
+    # the verdict never trusts it on an unmeasured assumption
+    return 1.0
