@@ -24,9 +24,19 @@ def _draw(window, n, model, rng):
     return simulate(window, model[0], model[1], n, rng, n)
 
 
+def _one(window, n, stats, seed, engine, model):
+    pts = _draw(window, n, model, np.random.default_rng(seed))
+    est = getattr(window, "estimator", None)
+    if est:
+        # the observed window was estimated from the data: estimate it again
+        # from this simulated pattern, so that the null includes the estimation
+        from ..patterns.windows import estimate_window
+        window = estimate_window(est, pts)
+    return compute(pts, window, stats, engine)
+
+
 def _chunk(window, n, stats, seeds, engine="fast", model=None):
-    out = [compute(_draw(window, n, model, np.random.default_rng(s)), window, stats, engine)
-           for s in seeds]
+    out = [_one(window, n, stats, s, engine, model) for s in seeds]
     return {s.name: np.stack([o[s.name] for o in out]) for s in stats}
 
 

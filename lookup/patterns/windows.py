@@ -40,6 +40,7 @@ __all__ = [
     "as_window",
     "mask_window",
     "parse_window",
+    "estimate_window",
 ]
 
 
@@ -1519,6 +1520,44 @@ def _load_polygon_file(path: str) -> PolygonWindow:
     return PolygonWindow(geom, source=path)
 
 
+def estimate_window(key: str, points) -> Window:
+    """The window ``bbox`` or ``hull`` estimated from the points (no warning).
+
+    ``bbox``: per axis the unbiased estimator of the ends of a uniform range,
+    min - R/(n-1) and max + R/(n-1) with R = max - min (the minimum-variance
+    unbiased estimator for uniform samples; common knowledge).  ``hull`` in
+    2D: the Ripley-Rasson estimator, the convex hull dilated about its
+    centroid by 1/sqrt(1 - m/n), m its number of vertices (Ripley & Rasson,
+    J. Appl. Probab. 14, 1977); in 3D the convex hull itself.  The Monte
+    Carlo route estimates the window again from every simulated pattern, so
+    that the null accounts for the estimation."""
+    p = np.asarray(points, float)
+    n = len(p)
+    if key == "bbox":
+        lo, hi = p.min(axis=0), p.max(axis=0)
+        pad = (hi - lo) / max(n - 1, 1)
+        w = (Rectangle if p.shape[1] == 2 else Box)(*(lo - pad), *(hi + pad))
+    elif p.shape[1] == 2:
+        import shapely
+        from shapely import affinity
+
+        hull = shapely.MultiPoint(p).convex_hull
+        if hull.geom_type != "Polygon":
+            raise WindowError("window 'hull': the points are collinear, their hull has no area")
+        m = len(hull.exterior.coords) - 1
+        if n > m:
+            f = 1.0 / math.sqrt(1.0 - m / n)
+            hull = affinity.scale(hull, f, f, origin="centroid")
+        w = PolygonWindow(hull)
+        w.kind = "hull"
+        w.spec = lambda: "hull"
+    else:
+        w = ConvexPolytope(p)
+    w.estimated = True
+    w.estimator = key
+    return w
+
+
 def parse_window(spec: str, points: np.ndarray | None = None) -> Window:
     """Build a window from a command-line specification.
 
@@ -1608,21 +1647,7 @@ def parse_window(spec: str, points: np.ndarray | None = None) -> Window:
             f"window '{key}' is estimated from the data; an estimated window biases the "
             "test towards regularity near the boundary -- give the true window if known",
             EstimatedWindowWarning, stacklevel=2)
-        if key == "bbox":
-            lo, hi = p.min(axis=0), p.max(axis=0)
-            w = (Rectangle if p.shape[1] == 2 else Box)(*lo, *hi)
-        elif p.shape[1] == 2:
-            import shapely
-            hull = shapely.MultiPoint(p).convex_hull
-            if hull.geom_type != "Polygon":
-                raise WindowError("window 'hull': the points are collinear, their hull has no area")
-            w = PolygonWindow(hull)
-            w.kind = "hull"
-            w.spec = lambda: "hull"
-        else:
-            w = ConvexPolytope(p)
-        w.estimated = True
-        return w
+        return estimate_window(key, p)
     if os.path.splitext(spec)[1].lower() in (".geojson", ".json", ".wkt"):
         return _load_polygon_file(spec)
     raise WindowError(f"unknown window specification '{spec}'; expected {SPEC_HELP}")
