@@ -312,8 +312,10 @@ def test_bbox_2d():
     w = _estimated("bbox", pts)
     assert isinstance(w, Rectangle) and w.dim == 2
     assert w.estimated is True
-    np.testing.assert_allclose(w.lo, pts.min(axis=0))
-    np.testing.assert_allclose(w.hi, pts.max(axis=0))
+    # ends of a uniform range: min - R/(n-1), max + R/(n-1) (unbiased)
+    pad = (pts.max(axis=0) - pts.min(axis=0)) / (len(pts) - 1)
+    np.testing.assert_allclose(w.lo, pts.min(axis=0) - pad)
+    np.testing.assert_allclose(w.hi, pts.max(axis=0) + pad)
     assert w.contains(pts).all()
 
 
@@ -322,11 +324,12 @@ def test_bbox_3d():
     pts = rng.random((40, 3))
     w = _estimated("bbox", pts)
     assert isinstance(w, Box) and w.dim == 3 and w.estimated
-    assert w.measure == pytest.approx(np.prod(pts.max(axis=0) - pts.min(axis=0)))
+    r = pts.max(axis=0) - pts.min(axis=0)
+    assert w.measure == pytest.approx(np.prod(r * (1 + 2 / (len(pts) - 1))))
     assert w.contains(pts).all()
 
 
-def test_hull_2d_is_polygon_matching_scipy():
+def test_hull_2d_is_the_ripley_rasson_dilation_of_scipys_hull():
     rng = np.random.default_rng(3)
     pts = rng.random((60, 2))
     w = _estimated("hull", pts)
@@ -334,8 +337,10 @@ def test_hull_2d_is_polygon_matching_scipy():
     assert w.dim == 2 and w.estimated and w.convex and w.holes == 0
     assert w.kind == "hull" and w.spec() == "hull"
     ch = ConvexHull(pts)
-    assert w.measure == pytest.approx(ch.volume, rel=1e-12)   # 2D "volume" is area
-    assert w.boundary_measure == pytest.approx(ch.area, rel=1e-12)  # 2D "area" is perimeter
+    # Ripley & Rasson (1977): the hull dilated by 1/sqrt(1 - m/n), m vertices
+    f2 = 1.0 / (1.0 - len(ch.vertices) / len(pts))
+    assert w.measure == pytest.approx(ch.volume * f2, rel=1e-12)   # 2D "volume" is area
+    assert w.boundary_measure == pytest.approx(ch.area * math.sqrt(f2), rel=1e-12)
     assert w.contains(pts).all()
 
 

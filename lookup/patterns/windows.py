@@ -1600,14 +1600,16 @@ def parse_window(spec: str, points: np.ndarray | None = None) -> Window:
     >>> parse_window("ball:0,0,0,1").dim
     3
 
-    A window estimated from the points warns that it biases the test:
+    A window estimated from the points warns that it biases the test; the
+    box is the unbiased estimate of a uniform range (min - R/(n-1),
+    max + R/(n-1) per axis):
 
     >>> pts = np.array([[0.0, 0.0], [2.0, 1.0], [1.0, 3.0]])
     >>> with warnings.catch_warnings(record=True) as caught:
     ...     warnings.simplefilter("always")
     ...     w = parse_window("bbox", pts)
     >>> w.spec(), w.estimated, caught[0].category.__name__
-    ('rect:0,0,2,3', True, 'EstimatedWindowWarning')
+    ('rect:-1,-1.5,3,4.5', True, 'EstimatedWindowWarning')
     """
     if not isinstance(spec, str) or not spec.strip():
         raise WindowError(f"empty window specification; expected {SPEC_HELP}")
