@@ -67,7 +67,9 @@ def build_parser() -> argparse.ArgumentParser:
                    help="null model: csr (default), or a model such as "
                    "thomas:parents=0.05,sigma=0.3, matern, hardcore, strauss, lattice, voids, "
                    "inhom:EXPR (lengths in units of the mean spacing), simulated on the Monte "
-                   "Carlo route")
+                   "Carlo route; parameters are finite numbers in: parents (0, 1], sigma and "
+                   "radius (0, 1000], r (0, 10], gamma [0, 1], jitter [0, 100], fraction "
+                   "[0, 0.95)")
     t.add_argument("--table", action="append", metavar="FILE",
                    help="your own null table (nullatlas-calibrate build); takes precedence over "
                    "the shipped tables for its window (repeatable)")

@@ -1,6 +1,7 @@
 """Alternative point processes against published facts (the Thomas K
 function is checked in test_ref_nn.py)."""
 import math
+import os
 
 import numpy as np
 import pytest
@@ -135,3 +136,18 @@ def test_monte_carlo_route_with_a_cluster_null(capsys):
         csr_test(pts, W, ["total0"], method="asymptotic", null="thomas")
     x = simulate(W, "strauss", {"gamma": 0.2, "r": 0.7}, 300, rng, 300)
     assert x.shape == (300, 2) and np.all(W.contains(x))
+
+
+@pytest.mark.parametrize("spec", ["thomas:parents=nan,sigma=0.3", "thomas:sigma=inf",
+                                  "thomas:parents=1e9", "matern:parents=nan", "hardcore:r=nan",
+                                  "voids:radius=nan", "thomas:sigma=1_0e-1", "strauss:gamma=2"])
+def test_model_parameters_must_be_finite_and_in_range(spec, capsys):
+    """Issue 13: NaN, infinite, absurd or malformed parameters are one line and
+    exit status 2 on the command line, before anything is simulated."""
+    from nullatlas.lookup.cli import main
+
+    pts = os.path.join(os.path.dirname(__file__), "..", "examples", "wafer_lot_random.csv")
+    assert main(["test", pts, "-w", "disk:0,0,150", "--null", spec, "--method", "mc",
+                 "--sims", "9", "--seed", "1"]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "model" in err[0] and "Traceback" not in err[0]

@@ -27,6 +27,7 @@ the alternatives of ``nullatlas-calibrate power`` and the nulls that
 from __future__ import annotations
 
 import math
+import re
 
 import numpy as np
 
@@ -48,6 +49,20 @@ FAMILIES = {
 }
 
 
+#: Accepted range (low, high, low inclusive, high inclusive) of every
+#: parameter, in the normalised units of the model (lengths in mean
+#: spacings; ``parents`` per point): a simulation outside them is empty,
+#: degenerate or too large to make (a judgement, stated in --help).
+RANGES = {
+    "parents": (0.0, 1.0, False, True), "sigma": (0.0, 1000.0, False, True),
+    "radius": (0.0, 1000.0, False, True), "r": (0.0, 10.0, False, True),
+    "gamma": (0.0, 1.0, True, True), "jitter": (0.0, 100.0, True, True),
+    "fraction": (0.0, 0.95, True, False),
+}
+
+_NUMBER = re.compile(r"^[+-]?(\d+(\.\d*)?|\.\d+)([eE][+-]?\d+)?$")
+
+
 def parse_model(spec: str) -> tuple[str, dict]:
     """``NAME[:key=value,...]`` -> (name, parameters with defaults)."""
     name, _, rest = spec.partition(":")
@@ -64,12 +79,15 @@ def parse_model(spec: str) -> tuple[str, dict]:
         if not eq or k.strip() not in params:
             raise OptionError(f"model {name}: unknown parameter '{item}' "
                               f"(parameters: {', '.join(params)})")
-        try:
-            params[k.strip()] = float(v)
-        except ValueError:
-            raise OptionError(f"model {name}: '{v}' is not a number") from None
-        if params[k.strip()] < 0:
-            raise OptionError(f"model {name}: {k.strip()} must not be negative")
+        key = k.strip()
+        if not _NUMBER.match(v.strip()):
+            raise OptionError(f"model {name}: {key} = '{v.strip()}' is not a finite number")
+        val = float(v)
+        lo, hi, lo_in, hi_in = RANGES.get(key, (0.0, math.inf, True, True))
+        if not ((val > lo or (lo_in and val == lo)) and (val < hi or (hi_in and val == hi))):
+            raise OptionError(f"model {name}: {key} = {v.strip()} is outside "
+                              f"{'[' if lo_in else '('}{lo:g}, {hi:g}{']' if hi_in else ')'}")
+        params[key] = val
     return name, params
 
 
