@@ -445,3 +445,17 @@ def test_reader_does_not_modify_input_file(tmp_path, h5file):
     mtime = os.path.getmtime(h5file)
     read_points(h5file + ":/top")
     assert os.path.getmtime(h5file) == mtime
+
+
+def test_digit_separators_are_not_numbers(tmp_path):
+    """Issue 13: Python's float() reads '1_0e-1' as 1.0; a data file must not."""
+    from nullatlas.lookup.errors import PointsError
+    from nullatlas.lookup.patterns.readers import read_points
+
+    f = tmp_path / "p.csv"
+    f.write_text("x,y\n0.5,0.5\n1_0e-1,0.2\n0.3,0.3\n")
+    with pytest.raises(PointsError, match=r"line 3, column 1: '1_0e-1' is not a number"):
+        read_points(str(f))
+    g = tmp_path / "q.csv"                 # an underscore in the header is fine
+    g.write_text("x_mm,y_mm\n0.5,0.5\n0.1,0.2\n")
+    assert read_points(str(g)).shape == (2, 2)

@@ -45,6 +45,10 @@ def parse_columns(text: str | None):
 
 
 def _is_number(tok: str) -> bool:
+    # Python's float() accepts digit separators ("1_0e-1" is 1.0): not a
+    # number in a data file
+    if "_" in tok:
+        return False
     try:
         float(tok)
         return True
@@ -118,6 +122,8 @@ def _read_text(path: str, columns) -> np.ndarray:
             raise PointsError(f"{path}, line {lineno}: expected {ncol} columns, found {len(toks)}")
         rows.append(toks)
     try:
+        if any("_" in t for toks in rows for t in toks):
+            raise ValueError("digit separator")
         arr = np.array(rows, dtype=float)
     except ValueError:
         for (lineno, _), toks in zip(lines, rows):
