@@ -178,7 +178,8 @@ def csr_test(points, window, stats=None, *, method="auto", n_sims=999, seed=None
         for i, st in enumerate(chosen):
             alt, note = montecarlo._alternative_for(st, alternative)
             nm = null_moments(tset, window, n, st.name)
-            ok, why = verdict(nm, st, n, window, alt, report.n_duplicates)
+            ok, why = verdict(nm, st, n, window, alt, report.n_duplicates,
+                              n_input=report.n_input)
             if nm is None:
                 results[i] = None if method == "auto" else montecarlo.untested_result(st, why, i == 0)
                 continue

@@ -258,3 +258,17 @@ def test_monte_carlo_with_an_estimated_hull_holds_its_size():
             rej[x.name] += x.pvalue <= 0.05
     for name, k in rej.items():
         assert abs(k / 200 - 0.05) <= 0.035, (name, k / 200)
+
+
+def test_duplicates_one_rule_for_drop_and_jitter():
+    """Issue 13: exactly 1% duplicates is within the limit for both policies
+    (the share is of the points read), 1% + 1 is beyond it for both."""
+    w = windows.Rectangle(0, 0, 1, 1)
+    base = w.sample(990, np.random.default_rng(7))
+    for extra, trusted in ((10, True), (11, False)):
+        pts = np.vstack([base, base[:extra]]) if extra == 10 else \
+            np.vstack([base[:989], base[:11]])
+        assert len(pts) == 1000
+        for policy in ("drop", "jitter"):
+            r = csr_test(pts, w, ["total0"], method="asymptotic", on_duplicates=policy, seed=1)
+            assert r.primary.trusted is trusted, (extra, policy, r.primary.reason)

@@ -127,7 +127,8 @@ def _model_trust(nm: NullMoments, stat, n: int, window, key: str) -> list:
 
 
 def verdict(nm: NullMoments | None, stat, n: int, window, alternative: str,
-            n_duplicates: int = 0, curve_test: str = "maxabs") -> tuple[bool, list]:
+            n_duplicates: int = 0, curve_test: str = "maxabs",
+            n_input: int | None = None) -> tuple[bool, list]:
     """(trusted, reasons) of the asymptotic test of ``stat`` (a Statistic).
 
     A calibrated shape within its cells is trusted from the audited n_min of
@@ -160,7 +161,8 @@ def verdict(nm: NullMoments | None, stat, n: int, window, alternative: str,
                        f"for {where}")
     if nm.kind == "curve" and (nm.usable is None or not np.any(nm.usable)):
         reasons.append(f"no grid point of '{stat.name}' has a near-normal null at this n")
-    if n_duplicates > DUPLICATE_LIMIT * max(n, 1):
+    # one rule for 'drop' and 'jitter': the share of the points read
+    if n_duplicates > DUPLICATE_LIMIT * max(n_input or n, 1):
         reasons.append(f"{n_duplicates} duplicate points were dropped or jittered "
                        f"(more than {DUPLICATE_LIMIT:.0%})")
     return (not reasons), reasons
