@@ -20,11 +20,18 @@ PROG = "nullatlas-calibrate"
 
 
 def _int_list(text):
-    try:
-        vals = [int(float(v)) for v in text.replace(";", ",").split(",") if v.strip()]
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"'{text}' is not a comma-separated list of integers") \
-            from None
+    vals = []
+    for v in (t.strip() for t in text.replace(";", ",").split(",")):
+        if not v:
+            continue
+        try:
+            x = float(v)
+        except ValueError:
+            x = float("nan")
+        # a whole number (1e4 is fine; 50.5 is not, and is not rounded silently)
+        if "_" in v or not (x == x and abs(x) < 1e18 and x == int(x)):
+            raise argparse.ArgumentTypeError(f"'{v}' in '{text}' is not a whole number")
+        vals.append(int(x))
     if not vals:
         raise argparse.ArgumentTypeError("empty list of n values")
     return vals
@@ -101,6 +108,8 @@ def build_parser() -> argparse.ArgumentParser:
     g.add_argument("--shape", metavar="NAME[,NAME...]")
     g.add_argument("--window", metavar="SPEC")
     e.add_argument("--n", type=_int_list, metavar="LIST")
+    e.add_argument("--allow-shipped", action="store_true",
+                   help="allow rewriting a table shipped with nullatlas (for regenerating them)")
     _add_run_options(e)
 
     c = sub.add_parser("check", help="check the instant test on fresh CSR patterns",
@@ -163,6 +172,8 @@ def build_parser() -> argparse.ArgumentParser:
                    help="figure: cell means against the model for the mean nearest-neighbour "
                    "distance and the Euler curve")
     f.add_argument("--json", action="store_true")
+    f.add_argument("--allow-shipped", action="store_true",
+                   help="allow rewriting a table shipped with nullatlas (for regenerating them)")
 
     v = sub.add_parser("validate", help="score the model route on held-out windows and store "
                        "where it holds",
@@ -181,6 +192,8 @@ def build_parser() -> argparse.ArgumentParser:
                    help="only these held-out windows (default: all of the table's dimension)")
     v.add_argument("--no-refit", action="store_true",
                    help="keep the stored geometric model (default: refit it first)")
+    v.add_argument("--allow-shipped", action="store_true",
+                   help="allow rewriting a table shipped with nullatlas (for regenerating them)")
     v.add_argument("--plot", metavar="FILE",
                    help="figure: size at 0.05 against n on every held-out window, trusted or not, "
                    "for the default statistics")
@@ -201,12 +214,41 @@ def _targets(a):
     return None
 
 
+#: Workers beyond this many times the cores only add start-up time and memory.
+JOBS_PER_CORE = 4
+
+
 def _jobs(j):
     import os
 
     if j < 0:
         raise OptionError(f"--jobs must be 0 (all cores) or positive, got {j}")
-    return j or os.cpu_count() or 1
+    cores = os.cpu_count() or 1
+    if j > JOBS_PER_CORE * cores:
+        sys.stderr.write(f"warning: --jobs {j} on {cores} cores; using {JOBS_PER_CORE * cores}\n")
+        return JOBS_PER_CORE * cores
+    return j or cores
+
+
+def _check_table_out(path):
+    if not str(path).lower().endswith((".h5", ".hdf5")):
+        raise OptionError(f"--out {path}: a null table is an HDF5 file; name it *.h5")
+
+
+def _check_writable_table(path, allow=False):
+    """Shipped tables are read-only to the tool: extend or refit a copy
+    (``--allow-shipped`` for the project's own regeneration)."""
+    import os
+
+    from nullatlas.lookup.inference.tablereader import shipped_tables
+
+    if allow:
+        return
+    real = os.path.realpath(path)
+    if any(os.path.realpath(p) == real for p in shipped_tables().values()):
+        raise OptionError(f"{path} is a table shipped with nullatlas (read-only to the tool); "
+                          "copy it and extend or refit the copy, then use it with --table "
+                          "(or --allow-shipped to regenerate the shipped tables)")
 
 
 def _print_summary(s, out=None):
@@ -247,6 +289,7 @@ def _cmd_build(a):
 
     if a.n_fit < 10:
         raise OptionError(f"--n-fit must be at least 10, got {a.n_fit}")
+    _check_table_out(a.out)
     seed = build.DEFAULT_SEED if a.seed is None else a.seed
     return build.build_table(a.out, _targets(a), a.n, a.reps, stats=a.stat, root_seed=seed,
                              jobs=_jobs(a.jobs), scheduler=a.dask_scheduler, progress=a.progress,
@@ -256,6 +299,7 @@ def _cmd_build(a):
 def _cmd_extend(a):
     from . import build
 
+    _check_writable_table(a.table, a.allow_shipped)
     targets = _targets(a)
     if a.n and targets is None:
         raise OptionError("--n needs --shape or --window")
@@ -334,6 +378,8 @@ def _cmd_power(a):
         check_plot_path(a.plot)
     if a.sims < 19:
         raise OptionError(f"--sims must be at least 19, got {a.sims}")
+    if a.n < 4:
+        raise OptionError(f"--n must be at least 4 points (as for nullatlas test), got {a.n}")
     w = shapes.shape_window(a.shape) if a.shape else parse_window(a.window)
     res = power.power_study(w, a.n, a.alt, a.strength, a.reps, stats=a.stat, tables=a.table,
                             sims=a.sims, seed=power.POWER_SEED if a.seed is None else a.seed,
@@ -367,9 +413,17 @@ def _print_power(s, out=None):
 def _cmd_fit(a):
     from . import build
 
+    _check_writable_table(a.table, a.allow_shipped)
     if a.plot:
         from nullatlas.lookup.plots import check_plot_path
         check_plot_path(a.plot)
+    if a.n_fit is not None:
+        from nullatlas.lookup.inference.tablereader import open_table
+
+        k = sum(c.n >= a.n_fit for c in open_table(a.table).cells)
+        if k < 4:
+            raise OptionError(f"--n-fit {a.n_fit} leaves {k} cell(s) with n >= {a.n_fit}; the "
+                              "model needs at least 4 (nothing was changed)")
     s = build.refit_table(a.table, n_fit=a.n_fit, holdout=a.holdout)
     if a.plot:
         from .modelplot import plot_model
@@ -389,6 +443,7 @@ def _cmd_validate(a):
     from .tablewriter import update_table
     from .validate import validate_tables
 
+    _check_writable_table(a.table, a.allow_shipped)
     info = open_table(a.table)
     if a.plot:
         from nullatlas.lookup.plots import check_plot_path

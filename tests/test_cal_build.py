@@ -232,23 +232,27 @@ def test_cli_build_fit_and_tables(tmp_path, capsys):
 
 
 @pytest.mark.parametrize("argv,frag", [
-    (["build", "--shape", "hexagon", "--n", "50", "--reps", "30", "--out", "X"], "unknown shape"),
-    (["build", "--shape", "square,cube", "--n", "50", "--reps", "30", "--out", "X"],
+    (["build", "--shape", "hexagon", "--n", "50", "--reps", "30", "--out", "X.h5"], "unknown shape"),
+    (["build", "--shape", "square,cube", "--n", "50", "--reps", "30", "--out", "X.h5"],
      "same dimension"),
-    (["build", "--shape", "square", "--n", "50", "--reps", "5", "--out", "X"], "at least 20"),
-    (["build", "--shape", "square", "--n", "5", "--reps", "30", "--out", "X"], "at least 10"),
-    (["build", "--shape", "square", "--n", "50", "--reps", "30", "--out", "X", "--jobs", "-1"],
+    (["build", "--shape", "square", "--n", "50", "--reps", "5", "--out", "X.h5"], "at least 20"),
+    (["build", "--shape", "square", "--n", "5", "--reps", "30", "--out", "X.h5"], "at least 10"),
+    (["build", "--shape", "square", "--n", "50", "--reps", "30", "--out", "X.h5", "--jobs", "-1"],
      "--jobs"),
-    (["build", "--window", "bbox", "--n", "50", "--reps", "30", "--out", "X"], "window"),
+    (["build", "--window", "bbox", "--n", "50", "--reps", "30", "--out", "X.h5"], "window"),
     (["build", "--shape", "square", "--n", "50", "--reps", "30", "--out", "nofolder/X.h5"],
      "does not exist"),
     (["extend", "missing.h5", "--reps", "30"], "no such table"),
     (["fit", "missing.h5"], "no such table"),
-    (["build", "--shape", "square", "--n", "5x", "--reps", "30", "--out", "X"], "integers"),
+    (["build", "--shape", "square", "--n", "5x", "--reps", "30", "--out", "X.h5"], "whole number"),
+    (["build", "--shape", "square", "--n", "50.5", "--reps", "30", "--out", "X.h5"],
+     "whole number"),
+    (["build", "--shape", "square", "--n", "50", "--reps", "30", "--out", "x.csv"], "HDF5"),
+    (["power", "--shape", "square", "--n", "3", "--alt", "thomas", "--reps", "20"], "at least 4"),
 ])
 def test_cli_bad_input_is_one_line(tmp_path, monkeypatch, capsys, argv, frag):
     monkeypatch.chdir(tmp_path)
-    with pytest.raises(SystemExit) if frag == "integers" else _noraise():
+    with pytest.raises(SystemExit) if frag == "whole number" else _noraise():
         rc = cli.main(argv)
         assert rc == 2
     err = capsys.readouterr().err
@@ -303,3 +307,28 @@ def test_cli_builds_a_users_polygon_and_extends_it(tmp_path, capsys):
     capsys.readouterr()
     reps = {c.n: c.replicates for c in open_table(out).cells}
     assert reps == {40: 44, 80: 24}
+
+
+def test_shipped_tables_are_read_only_and_fit_refuses_an_empty_model(tmp_path, capsys):
+    """Issue 13: extend/fit/validate refuse the installed tables (one line,
+    status 2, file untouched); fit --n-fit beyond every cell says so before
+    writing anything."""
+    import hashlib
+    import shutil
+
+    from nullatlas.lookup.inference.tablereader import shipped_tables
+
+    path = shipped_tables()[2]
+    digest = hashlib.sha1(open(path, "rb").read()).hexdigest()
+    for argv in (["extend", path, "--reps", "20"], ["fit", path], ["validate", path]):
+        assert cli.main(argv) == 2
+        err = capsys.readouterr().err
+        assert "shipped with nullatlas" in err and err.count("\n") == 1
+    assert hashlib.sha1(open(path, "rb").read()).hexdigest() == digest
+    copy = tmp_path / "copy.h5"
+    shutil.copyfile(path, copy)
+    before = copy.read_bytes()
+    assert cli.main(["fit", str(copy), "--n-fit", "1000000"]) == 2
+    assert "leaves 0 cell(s)" in capsys.readouterr().err
+    assert copy.read_bytes() == before
+
