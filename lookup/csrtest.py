@@ -19,6 +19,11 @@ from .summaries.statistics import PatternSummary, evaluate, resolve_stats
 __all__ = ["csr_test", "METHODS", "ALTERNATIVES"]
 
 METHODS = ("auto", "asymptotic", "mc")
+#: Largest number of null simulations accepted (about 3 h at a millisecond
+#: each on one core; the rank p-value's resolution 1/(m+1) is then 1e-7).
+MAX_SIMS = 10_000_000
+#: Workers beyond this many times the cores only add start-up time and memory.
+JOBS_PER_CORE = 4
 ALTERNATIVES = ("two-sided", "clustered", "regular")
 
 
@@ -29,6 +34,10 @@ def _check_options(method, n_sims, jobs, alternative, alpha, engine="fast"):
         raise OptionError(f"method must be one of {', '.join(METHODS)}, got '{method}'")
     if not isinstance(n_sims, (int, np.integer)) or n_sims < 1:
         raise OptionError(f"number of simulations must be a positive integer, got {n_sims}")
+    if n_sims > MAX_SIMS:
+        raise OptionError(f"{n_sims} simulations cannot finish: at even a millisecond each that "
+                          f"is {n_sims / 3.15e10:.3g} years; use at most {MAX_SIMS:,} (999 or "
+                          "9,999 are the usual choices)")
     if not isinstance(jobs, (int, np.integer)) or jobs < 0:
         raise OptionError(f"jobs must be 0 (all cores) or a positive integer, got {jobs}")
     if alternative not in ALTERNATIVES:
@@ -143,11 +152,16 @@ def csr_test(points, window, stats=None, *, method="auto", n_sims=999, seed=None
             raise OptionError("the null tables are for CSR only: use --method mc (or auto) "
                               f"with --null {null}")
         method = "mc"
+    import os
+    cores = os.cpu_count() or 1
+    jobs_note = ""
     if jobs == 0:
-        import os
-        jobs = os.cpu_count() or 1
+        jobs = cores
+    elif jobs > JOBS_PER_CORE * cores:
+        jobs_note = f"--jobs {jobs} on {cores} cores: using {JOBS_PER_CORE * cores} workers"
+        jobs = JOBS_PER_CORE * cores
     pts = points if isinstance(points, np.ndarray) else read_points(points, columns)
-    caught = []
+    caught = [jobs_note] if jobs_note else []
     if not isinstance(window, Window):
         with warnings.catch_warnings(record=True) as w:
             warnings.simplefilter("always")

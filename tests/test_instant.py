@@ -1,6 +1,7 @@
 """The instant (table) test: size on fresh null patterns, agreement with Monte
 Carlo, the trust verdict and its fallback, user tables."""
 import json
+import os
 
 import numpy as np
 import pytest
@@ -272,3 +273,35 @@ def test_duplicates_one_rule_for_drop_and_jitter():
         for policy in ("drop", "jitter"):
             r = csr_test(pts, w, ["total0"], method="asymptotic", on_duplicates=policy, seed=1)
             assert r.primary.trusted is trusted, (extra, policy, r.primary.reason)
+
+
+def test_requests_that_cannot_finish_are_refused_or_capped(capsys):
+    """Issue 13: an absurd number of simulations is one line and status 2
+    (saying how long it would take); absurd --jobs is capped with a warning."""
+    from nullatlas.lookup.cli import main
+
+    f = os.path.join(os.path.dirname(__file__), "..", "examples", "wafer_lot_random.csv")
+    assert main(["test", f, "-w", "disk:0,0,150", "--method", "mc",
+                 "--sims", "100000000000000"]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "years" in err[0]
+    r = csr_test(f, windows.Disk(0, 0, 150), ["total0"], method="mc", n_sims=9, jobs=10_000,
+                 seed=1)
+    assert any("workers" in w for w in r.warnings) and np.isfinite(r.primary.pvalue)
+
+
+def test_monte_carlo_z_is_not_made_of_rounding():
+    """Issue 13: simulated values equal up to the last bits (a 3D pattern of
+    5 points has a constant Euler characteristic at many radii) have a sd of
+    order 1e-17; no z may be made of it (it was 3.5e15)."""
+    from nullatlas.lookup.inference.montecarlo import mc_results
+
+    rng = np.random.default_rng(0)
+    flat = 0.2 + np.ldexp(rng.integers(-2, 3, 39), -55)        # 0.2 up to rounding
+    res = mc_results({"total0": 0.4}, {"total0": flat}, [STATISTICS["total0"]])[0]
+    assert np.isnan(res.z) and res.pvalue > 0
+    w = windows.Box(0, 0, 0, 1, 1, 1)
+    r = csr_test(w.sample(5, np.random.default_rng(2)), w, ["euler"], method="mc", n_sims=39,
+                 seed=3)
+    z = np.asarray(r.primary.curve["z"], float)
+    assert np.all(~np.isfinite(z) | (np.abs(z) < 1e6))

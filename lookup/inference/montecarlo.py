@@ -17,6 +17,10 @@ from . import ranks
 __all__ = ["simulate_null", "mc_results", "untested_result"]
 
 
+#: Relative sd below which simulated values are taken as constant (rounding).
+_SD_FLOOR = 1e-9
+
+
 def _draw(window, n, model, rng):
     if model is None or model[0] == "csr":
         return csr(window, n, rng)
@@ -111,9 +115,12 @@ def mc_results(observed: dict, null: dict, stats: list[Statistic], alternative: 
             mask = env["mask"]
             mean = np.nanmean(sims, axis=0) if m else np.full(obs.shape, np.nan)
             sd = np.nanstd(sims, axis=0, ddof=1) if m > 1 else np.full(obs.shape, np.nan)
+            # a sd at rounding level (all simulations equal up to the last
+            # bits) standardises nothing: those grid points are left out
+            live = mask & (sd > _SD_FLOOR * np.maximum(1.0, np.abs(mean)))
             with np.errstate(invalid="ignore", divide="ignore"):
-                zc = np.where(mask & (sd > 0), (obs - mean) / sd, np.nan)
-                zs = np.where((mask & (sd > 0))[None, :], (sims - mean) / sd, np.nan)
+                zc = np.where(live, (obs - mean) / sd, np.nan)
+                zs = np.where(live[None, :], (sims - mean) / sd, np.nan)
             t_obs = float(np.nanmax(np.abs(zc))) if np.isfinite(zc).any() else 0.0
             t_sims = np.nanmax(np.abs(zs), axis=1) if np.isfinite(zs).any() else np.zeros(m)
             lo_pw = np.nanquantile(sims, alpha / 2, axis=0)
@@ -134,7 +141,8 @@ def mc_results(observed: dict, null: dict, stats: list[Statistic], alternative: 
             reason = note or f"Monte Carlo rank test, {m} simulations"
         mu = float(np.mean(t_sims)) if m else float("nan")
         sdv = float(np.std(t_sims, ddof=1)) if m > 1 else float("nan")
-        z = (t_obs - mu) / sdv if sdv and np.isfinite(sdv) and sdv > 0 else float("nan")
+        z = (t_obs - mu) / sdv if sdv and np.isfinite(sdv) and \
+            sdv > _SD_FLOOR * max(1.0, abs(mu)) else float("nan")
         out.append(StatResult(name=st.name, kind=st.kind, statistic=t_obs, pvalue=p,
                               observed=t_obs, null_mean=mu, null_sd=sdv, z=z, method=method,
                               alternative=alt if not note else "two-sided", trusted=True,
