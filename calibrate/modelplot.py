@@ -47,7 +47,7 @@ def plot_model(path, out: str) -> str:
             ax.plot([], [], "o", color=col, label=s)
         ax.set_xlabel(f"kappa n^(-1/{d})")
         ax.set_ylabel("mean nearest-neighbour distance (normalised)")
-        ax.legend(fontsize=7)
+        ax.legend(fontsize=7, loc="lower right")
     ax.set_title("boundary term of the mean NN distance")
 
     ax = axes[1]
@@ -92,6 +92,8 @@ def plot_model(path, out: str) -> str:
     ax.set_xlabel("standard errors")
     ax.set_title("model residuals (all statistics, grid points)")
     ax.legend(fontsize=7)
-    fig.suptitle(f"finite-window model of {info.path} ({d}D, {len(info.cells)} cells)", fontsize=10)
+    fig.suptitle(f"two-term finite-window model (kappa n^(-1/d)) of {info.path} ({d}D, "
+                 f"{len(info.cells)} cells); the runtime uses the geometric model, see "
+                 "'nullatlas-calibrate validate --plot'", fontsize=10)
     fig.tight_layout()
     return save_figure(fig, out)
