@@ -25,8 +25,12 @@ def test_check_agrees_in_a_shipped_cell_and_not_far_below_n_min():
         assert r["trusted"] and r["agrees"], r
         assert 0.3 < r["z_sd"] ** 2 * 3 < 3.3 and abs(r["z_mean"]) < 0.2
     bad = check.check_window(w, [12], 1500, stats=["euler", "maxpers1"], jobs=2, progress=False)
-    for r in bad["results"]:
-        assert not r["trusted"] and r["agrees"] is False, r     # far below n_min: disagreement
+    by = {r["statistic"]: r for r in bad["results"]}
+    # far below the validated n nothing is trusted, whether or not the model happens to fit there
+    assert not any(r["trusted"] for r in bad["results"]), bad["results"]
+    assert "outside the n where" in by["euler"]["reason"] or "below" in by["euler"]["reason"]
+    # the largest loop at n = 12 is far from its n >= 50 null: the check must see the disagreement
+    assert by["maxpers1"]["agrees"] is False and by["maxpers1"]["size"][1] > 0.2, by["maxpers1"]
 
 
 def test_check_cli_json_and_plot(tmp_path, capsys):
