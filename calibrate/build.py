@@ -29,8 +29,11 @@ from nullatlas.lookup.summaries.statistics import STATISTICS, resolve_stats
 from . import assemble as asm
 from .model import (
     MODEL_TOL_SD,
+    TRAIN_SHARE_MAX,
+    cell_boundary_share,
     cell_covariates,
-    fit_extreme_geomodel_robust,
+    cell_is_periodic,
+    fit_extreme_quantiles_robust,
     fit_geomodel_robust,
     fit_model,
     holdout_errors,
@@ -225,6 +228,10 @@ def fit_geomodels(records: list, stat_names, dimension: int, n_fit: int = GEO_N_
         for r in records:
             if r.get("spec") and r["spec"] != "hull" and stat in r["stats"]:
                 try:
+                    if cell_boundary_share(r["spec"], r["n"]) > TRAIN_SHARE_MAX:
+                        continue        # almost no interior: not fitted (calibrate.model)
+                    if cell_is_periodic(r["spec"]):
+                        continue        # periodic cells have their own route (nullmoments)
                     covs[r["name"]] = cell_covariates(r["spec"], r["n"], depth)
                 except ValueError:      # a window this version cannot parse
                     continue
@@ -241,7 +248,8 @@ def fit_geomodels(records: list, stat_names, dimension: int, n_fit: int = GEO_N_
                          "var": np.diag(m.cov), "count": m.count, "values": it.get("values")})
         try:
             if STATISTICS[stat].kind == "extreme":
-                out[stat] = fit_extreme_geomodel_robust(rows, n_fit)
+                out[stat] = fit_extreme_quantiles_robust(rows, dimension, n_fit)
+                out[stat]["depth"] = depth
             else:
                 out[stat], excl = fit_geomodel_robust(rows, dimension, n_fit)
                 out[stat].excluded = list(excl)

@@ -184,17 +184,26 @@ def simulate_heldout(folder: str, name: str, n: int, reps: int, jobs: int = 1,
 
     os.makedirs(folder, exist_ok=True)
     path = _cell_path(folder, name, n)
-    if os.path.exists(path):
-        with h5py.File(path, "r") as fh:
-            if int(fh.attrs.get("reps", 0)) >= reps:
-                return path
     d, make, desc = HELDOUT[name]
-    w = make()
     names = stats or DEFAULT_STATS[d]
     chosen = resolve_stats(names, d)
+    have = {}
+    if os.path.exists(path):
+        with h5py.File(path, "r") as fh:
+            done = int(fh.attrs.get("reps", 0))
+            if done >= reps:
+                return path
+            if {st.name for st in chosen} <= set(fh):
+                have = {st.name: fh[st.name][()] for st in chosen}
+    w = make()
     idx = list(HELDOUT).index(name)
     ss = np.random.SeedSequence([HELDOUT_SEED, idx, int(n)])
-    vals = simulate_null(w, n, chosen, ss.spawn(reps), jobs=jobs, progress=progress)
+    # pattern i has seed child i whatever the number of patterns asked for,
+    # so a cell is extended by simulating only the patterns it lacks
+    start = len(next(iter(have.values()))) if have else 0
+    vals = simulate_null(w, n, chosen, ss.spawn(reps)[start:], jobs=jobs, progress=progress)
+    if start:
+        vals = {k: np.concatenate([have[k], np.asarray(v)], axis=0) for k, v in vals.items()}
     with atomic_path(path) as tmp:
         with h5py.File(tmp, "w") as fh:
             fh.attrs.update({"window": name, "n": int(n), "reps": int(reps),

@@ -196,6 +196,30 @@ def cell_covariates(spec: str, n: int, depth=1.0) -> np.ndarray:
     return covariates(_window_of(spec), int(n), depth)
 
 
+#: Training cells with more than this share of the window within one mean
+#: spacing of its boundary are not fitted: they have almost no interior, the
+#: local model's expansion in boundary terms does not hold there (a long
+#: thin cylinder at n = 100 is all boundary), and one such shape pulls the
+#: fit for all the others.  Whether the model may be trusted there is for
+#: the held-out validation to say, as everywhere.
+TRAIN_SHARE_MAX = 0.8
+
+
+def cell_boundary_share(spec: str, n: int) -> float:
+    """Share of a cell's window within one mean spacing of its boundary
+    (``lookup.patterns.boundary.trust_measures``)."""
+    from nullatlas.lookup.patterns.boundary import trust_measures
+
+    return float(trust_measures(_window_of(spec), int(n))["boundary_share"])
+
+
+def cell_is_periodic(spec: str) -> bool:
+    """Whether a cell's window is periodic (fitted by its own route,
+    ``lookup.inference.nullmoments._periodic_moments``, not by the
+    geometric model)."""
+    return bool(getattr(_window_of(spec), "periodic", False))
+
+
 _WINDOWS: dict = {}
 
 
@@ -219,8 +243,10 @@ def fit_geomodel(cells: list[dict], d: int, n_fit: int = 100, columns=None) -> F
                          f"got {len(use)}")
     n = np.array([c["n"] for c in use], float)
     X = np.array([np.atleast_2d(c["cov"]) for c in use], float)      # cells x (1 or k) x 4
-    if columns is not None:          # a sub-model: the other coefficients are 0
-        X[:, :, [j for j in range(X.shape[2]) if j not in columns]] = 0.0
+    if columns is None:              # the widest candidate of the dimension
+        columns = sorted({j for cols in CANDIDATES[d].values() for j in cols})
+    # a sub-model: the other coefficients are 0
+    X[:, :, [j for j in range(X.shape[2]) if j not in columns]] = 0.0
     R = np.array([c["count"] for c in use], float)
     mean = np.array([np.atleast_1d(c["mean"]) for c in use])
     var = np.array([np.atleast_1d(c["var"]) for c in use])
@@ -251,17 +277,48 @@ EXCLUDE_FACTOR = 4.0
 EXCLUDE_CHI2 = 3.0
 
 
-#: Candidate models: the covariates they use (``lookup.patterns.boundary``):
-#: the full geometric model, and the boundary term with a 1/n term only
-#: (the two-term kappa model's form, c2 = 0).
-CANDIDATES = {"geometric": (0, 1, 2, 3), "boundary-only": (0, 1, 3)}
+#: Candidate models per dimension: the covariates they use
+#: (``lookup.patterns.boundary.COVARIATES``): the geometric model, the
+#: boundary term with a 1/n term only (the two-term kappa model's form,
+#: c2 = 0) and, in 3D, the geometric model with the smooth-curvature term BC
+#: (cylinders and balls against boxes' edges).  In 2D a disk's curvature
+#: term 2 pi / n is of the order of B3 and is not fitted.
+CANDIDATES = {2: {"geometric": (0, 1, 2, 3), "boundary-only": (0, 1, 3)},
+              3: {"geometric": (0, 1, 2, 3), "boundary-only": (0, 1, 3),
+                  "curved": (0, 1, 2, 3, 4)}}
 
 
-def loso_error(cells: list[dict], d: int, n_fit: int, columns) -> float:
-    """Leave-one-shape-out prediction error of a (sub-)model: for each shape,
-    fit on the others and predict its cells; the RMS over those cells and
-    grid points of (mean - prediction) / sd of one pattern."""
-    shapes = sorted({c["shape"] for c in cells if c["n"] >= n_fit})
+def comparable_shapes(cells: list[dict], n_fit: int, columns) -> list:
+    """The shapes that every covariate in ``columns`` can be predicted for
+    when the shape is left out: a shape is dropped from the comparison when
+    one of its covariates is non-zero but zero in all the other shapes (the
+    only curved shape, say: without it no model can learn the curvature
+    term, and holding that against the model with the term would compare
+    the candidates on a question none of them can answer)."""
+    use = [c for c in cells if c["n"] >= n_fit]
+    shapes = sorted({c["shape"] for c in use})
+    nz = {sh: np.zeros(len(columns), bool) for sh in shapes}
+    for c in use:
+        x = np.atleast_2d(np.asarray(c["cov"], float))[:, list(columns)]
+        nz[c["shape"]] |= np.any(np.abs(x) > 0, axis=0)
+    out = []
+    for sh in shapes:
+        others = np.zeros(len(columns), bool)
+        for o in shapes:
+            if o != sh:
+                others |= nz[o]
+        if not np.any(nz[sh] & ~others):
+            out.append(sh)
+    return out
+
+
+def loso_error(cells: list[dict], d: int, n_fit: int, columns, shapes=None) -> float:
+    """Leave-one-shape-out prediction error of a (sub-)model: for each shape
+    (of ``shapes``, default all), fit on the others and predict its cells;
+    the RMS over those cells and grid points of (mean - prediction) / sd of
+    one pattern."""
+    if shapes is None:
+        shapes = sorted({c["shape"] for c in cells if c["n"] >= n_fit})
     errs = []
     for sh in shapes:
         train = [c for c in cells if c["shape"] != sh]
@@ -315,9 +372,11 @@ def fit_geomodel_robust(cells: list[dict], d: int, n_fit: int = 100, min_shapes:
             break
         excluded.append(worst)
     use = [c for c in cells if c.get("shape") not in excluded]
-    loso = {name: loso_error(use, d, n_fit, cols) for name, cols in CANDIDATES.items()}
+    widest = sorted({j for cols in CANDIDATES[d].values() for j in cols})
+    shapes = comparable_shapes(use, n_fit, widest)
+    loso = {name: loso_error(use, d, n_fit, cols, shapes) for name, cols in CANDIDATES[d].items()}
     best = min(loso, key=loso.get)
-    fit = fit_geomodel(use, d, n_fit, CANDIDATES[best])
+    fit = fit_geomodel(use, d, n_fit, CANDIDATES[d][best])
     fit.model = best
     fit.loso = loso
     return fit, excluded
@@ -381,6 +440,71 @@ def fit_extreme_geomodel(cells: list[dict], n_fit: int = 100) -> dict:
             coef[j] = b
             resid[rows, j] = (np.asarray(y) - X[rows] @ b) * np.asarray(w)
     return {"x": x, "coef": coef, "resid": resid, "cells": [c.get("shape") for c in use]}
+
+
+def fit_extreme_quantiles(cells: list[dict], d: int, n_fit: int = 100) -> dict:
+    """Quantile model of an extreme statistic (largest lifetime or ratio;
+    ``lookup.inference.extremequantiles``): per level p of ``QUANTILE_P``,
+    Q(p) = sum_j beta_j(p) x_j with x = [1, log n, B1, B2(, BC in 3D)],
+    fitted by weighted least squares over the cells with n >= ``n_fit``
+    (each cell's empirical quantiles from its tabled null values; standard
+    error of a sample quantile sqrt(p (1 - p) / R) / f(Q(p)), the density
+    from the slope dQ/dp of the cell's own quantiles; Serfling 1980,
+    sec. 2.3, from memory).
+
+    Returns
+    -------
+    dict with ``p``, ``qcoef`` (len(p), k), ``columns`` (names of x),
+    ``resid`` (cells x len(p), standardised) and ``cells`` (their shapes).
+    """
+    from nullatlas.lookup.inference.extremequantiles import (
+        EXTREME_COLUMNS,
+        QUANTILE_P,
+        extreme_design,
+    )
+
+    use = [c for c in cells if c["n"] >= n_fit and c.get("values") is not None
+           and np.isfinite(np.asarray(c["values"], float)).sum() >= 100]
+    if len(use) < 6:
+        raise ValueError(f"the extreme model needs at least 6 cells with n >= {n_fit}")
+    cols = EXTREME_COLUMNS[d]
+    P = QUANTILE_P
+    X = np.array([extreme_design(c["cov"], c["n"], cols) for c in use])
+    Q, SE = [], []
+    for c in use:
+        v = np.asarray(c["values"], float)
+        v = np.sort(v[np.isfinite(v)])
+        q = np.quantile(v, P)
+        slope = np.gradient(q, P)
+        Q.append(q)
+        SE.append(np.maximum(slope, 1e-12) * np.sqrt(P * (1 - P) / len(v)))
+    Q, SE = np.array(Q), np.array(SE)
+    coef, _, _, chi2, resid = wls(X, Q, SE)
+    return {"p": P, "qcoef": coef, "columns": list(cols), "resid": resid,
+            "chi2": chi2, "cells": [c.get("shape") for c in use], "model": "quantile"}
+
+
+def fit_extreme_quantiles_robust(cells: list[dict], d: int, n_fit: int = 100,
+                                 min_shapes: int = 4) -> dict:
+    """:func:`fit_extreme_quantiles` leaving out shapes for which the model
+    does not hold (a window's own hole is the largest loop of every pattern
+    in it), by the rule of :func:`fit_geomodel_robust`.  Returns the fit dict
+    with ``excluded`` (list of shapes)."""
+    excluded = []
+    while True:
+        fit = fit_extreme_quantiles([c for c in cells if c.get("shape") not in excluded], d, n_fit)
+        r2 = fit["resid"] ** 2
+        shapes = sorted(set(fit["cells"]))
+        msr = {sh: float(np.nanmean(r2[[i for i, s in enumerate(fit["cells"]) if s == sh]]))
+               for sh in shapes}
+        fit["excluded"] = list(excluded)
+        if np.nanmedian(r2) <= EXCLUDE_CHI2 or len(shapes) <= min_shapes:
+            return fit
+        worst = max(msr, key=msr.get)
+        others = [v for k, v in msr.items() if k != worst]
+        if msr[worst] <= EXCLUDE_FACTOR * float(np.median(others)):
+            return fit
+        excluded.append(worst)
 
 
 def fit_extreme_geomodel_robust(cells: list[dict], n_fit: int = 100, min_shapes: int = 4):

@@ -104,7 +104,15 @@ def write_geomodels(fh, geomodels: dict) -> None:
     gg = fh.create_group("geomodel")
     for sname, fit in geomodels.items():
         g = gg.create_group(sname)
-        if isinstance(fit, dict):
+        if isinstance(fit, dict) and "qcoef" in fit:
+            _put(g, "p", np.asarray(fit["p"], float))
+            _put(g, "qcoef", np.asarray(fit["qcoef"], float))
+            _put(g, "depth", np.asarray(fit.get("depth", [2.0]), float))
+            g.attrs["kind"] = "extreme"
+            g.attrs["model"] = "quantile"
+            g.attrs["columns"] = json.dumps(list(fit["columns"]))
+            g.attrs["excluded_shapes"] = json.dumps(list(fit.get("excluded", [])))
+        elif isinstance(fit, dict):
             _put(g, "x", np.asarray(fit["x"], float))
             _put(g, "coef", np.asarray(fit["coef"], float))
             g.attrs["kind"] = "extreme"

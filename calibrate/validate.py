@@ -26,9 +26,10 @@ and (b) as observed, widened by two binomial standard errors of the m
 patterns, a guard against a null that is not normal.  Curves (the max |z|
 test) and extremes (the Gumbel-tail test) have no such moment summary:
 their observed rate must lie within the tolerance widened by one binomial
-SE (with m = 1,000 a rate is known to +-0.007: a test of exact size 0.05
-fails a bare +-0.01 band in 15% of checks, and one false failure removes a
-whole region from the validated range).
+SE (with m = 1,000 a rate is known to +-0.007, with the 2,000 of the
+shipped held-out cells to +-0.005: a test of exact size 0.05 fails a bare
++-0.01 band in 15% or 5% of checks, and one false failure removes a whole
+region from the validated range).
 
 The validated range of a statistic and test (:func:`validated_range`):
 upper bounds on the boundary share (share of the window within one mean

@@ -4,9 +4,10 @@
 Fresh CSR patterns in windows that no model is fitted on; their raw
 statistics go to ``tables/heldout.parts/`` (git-ignored, one HDF5 file per
 (window, n)), from which ``nullatlas-calibrate validate`` scores any table.
-Resumable: finished cells are skipped.
+Resumable: finished cells are skipped, and a cell with fewer patterns than
+--reps is extended (pattern i always has the same seed).
 
-    python scripts/make_heldout.py                    # every window, n, 1,000 patterns
+    python scripts/make_heldout.py                    # every window, n, 2,000 patterns
     python scripts/make_heldout.py --window L,star --n 100,500 --jobs 2
 """
 from __future__ import annotations
@@ -27,7 +28,7 @@ def main(argv=None) -> int:
     ap.add_argument("--window", default=None, help="comma-separated names (default: all)")
     ap.add_argument("--dim", type=int, default=None)
     ap.add_argument("--n", default=None, help="comma-separated n (default: per dimension)")
-    ap.add_argument("--reps", type=int, default=1000)
+    ap.add_argument("--reps", type=int, default=2000)
     ap.add_argument("--jobs", type=int, default=2)
     ap.add_argument("--folder", default=FOLDER)
     a = ap.parse_args(argv)

@@ -10,7 +10,8 @@ Reads ``/validation`` and ``/trust`` of a table written by
    (|bias| > 0.1 sd, size outside 0.05 +- 0.01, or a tail outside
    0.025 +- 0.007, each allowing one binomial SE) and ``+`` where it lies
    inside the validated range (trusted);
-2. the range of sizes, tails and biases over every trusted result;
+2. the range of sizes, tails and biases over every trusted result, and the
+   ratio of simulated to predicted sd over every model-route cell;
 3. leave-one-window-out: the validated range recomputed without each
    window, and how many of that window's cells it would trust and how many
    of those failed -- an out-of-sample check of the trust rule itself.
@@ -22,6 +23,8 @@ from __future__ import annotations
 import argparse
 import json
 import sys
+
+import numpy as np
 
 
 def _inside(row, rng):
@@ -87,6 +90,12 @@ def main(argv=None) -> int:
               f"sizes at 0.05 {min(sz):.3f}-{max(sz):.3f}"
               + (f"; tails at 0.025 {min(tails):.3f}-{max(tails):.3f}" if tails else "")
               + f"; |bias| <= {max(bias):.3f} sd")
+    ratios = np.array([r["sd_ratio"] for r in rows if r.get("route") == "model"
+                       and r["kind"] != "extreme" and np.isfinite(r.get("sd_ratio", np.nan))])
+    if ratios.size:
+        lo, med, hi = np.quantile(ratios, [0.05, 0.5, 0.95])
+        print(f"predicted sds (model route, scalars and curves): simulated / predicted median "
+              f"{med:.3f}, 90% of {ratios.size} cells within {lo:.2f}-{hi:.2f}")
     # leave one window out
     print()
     print("| left-out window | cells trusted by the range fitted without it | of which failed |")

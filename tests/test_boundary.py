@@ -13,7 +13,7 @@ import pytest
 import shapely
 
 from nullatlas.lookup.patterns.boundary import DEPTH, covariates, trust_measures
-from nullatlas.lookup.patterns.windows import Box, Disk, PolygonWindow, Rectangle
+from nullatlas.lookup.patterns.windows import Ball, Box, Cylinder, Disk, PolygonWindow, Rectangle
 
 
 @pytest.mark.parametrize("n", [100, 1000, 20000])
@@ -52,6 +52,22 @@ def test_box_3d_first_order_term():
     kappa = area / 6 ** (2 / 3)
     assert covariates(b, n)[1] == pytest.approx(kappa * n ** (-1 / 3), rel=1e-12)
     assert covariates(b, n)[2] > 0          # edges shrink the band
+    assert covariates(b, n)[4] == 0.0       # no smooth curved surface
+
+
+@pytest.mark.parametrize("n", [300, 5000])
+def test_curvature_term_of_ball_and_cylinder(n):
+    # integrated mean curvature (H = (k1 + k2) / 2) of a sphere of radius r:
+    # 4 pi r; of a cylinder's mantle: pi h (Santalo 1976, ch. 13, from memory);
+    # BC = C s / n with s = (n / |W|)^(1/3)
+    b = Ball(0, 0, 0, 2.0)
+    s = (n / (4 / 3 * math.pi * 8)) ** (1 / 3)
+    assert covariates(b, n)[4] == pytest.approx(4 * math.pi * 2.0 * s / n, rel=1e-12)
+    c = Cylinder(0, 0, 0, 5.0, 1.0)
+    s = (n / (math.pi * 5.0)) ** (1 / 3)
+    assert covariates(c, n)[4] == pytest.approx(math.pi * 5.0 * s / n, rel=1e-12)
+    # similarity invariance: the term depends on the shape and n, not the size
+    assert covariates(Ball(1, 1, 1, 7.0), n)[4] == pytest.approx(covariates(b, n)[4], rel=1e-12)
 
 
 def test_trust_measures_flag_narrow_parts():
@@ -78,5 +94,5 @@ def test_periodic_window_has_no_boundary_terms():
     from nullatlas.lookup.patterns.periodic import PeriodicBox
 
     w = PeriodicBox(0, 0, 2, 1)
-    assert np.allclose(covariates(w, 500), [1, 0, 0, 1 / 500])
+    assert np.allclose(covariates(w, 500), [1, 0, 0, 1 / 500, 0])
     assert trust_measures(w, 500)["boundary_share"] == 0.0

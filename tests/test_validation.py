@@ -143,3 +143,23 @@ def test_validate_command_scores_a_table_and_draws_it(tmp_path, capsys):
     assert main(["validate", str(table), "--heldout", str(folder), "--window", "nosuch"]) == 2
     assert "unknown held-out window" in capsys.readouterr().err
 
+
+
+def test_heldout_cell_extends_to_more_patterns_with_the_same_seeds(tmp_path):
+    # pattern i has seed child i: extending a cell from 3 to 5 patterns gives
+    # exactly the 5 patterns simulated at once (so adding patterns to every
+    # cell never re-draws the ones already scored)
+    from nullatlas.calibrate.heldout import load_heldout, simulate_heldout
+
+    simulate_heldout(str(tmp_path / "a"), "box11h", 100, 5)
+    simulate_heldout(str(tmp_path / "b"), "box11h", 100, 3)
+    part = load_heldout(str(tmp_path / "b"), "box11h", 100)
+    simulate_heldout(str(tmp_path / "b"), "box11h", 100, 5)
+    a = load_heldout(str(tmp_path / "a"), "box11h", 100)
+    b = load_heldout(str(tmp_path / "b"), "box11h", 100)
+    assert part["_reps"] == 3 and a["_reps"] == b["_reps"] == 5
+    for k in ("euler", "total1", "maxpers2"):
+        assert a[k].shape[0] == 5
+        np.testing.assert_array_equal(a[k], b[k])
+        np.testing.assert_array_equal(a[k][:3], part[k])
+    assert not np.array_equal(a["total1"][:1], a["total1"][1:2])    # distinct patterns

@@ -17,9 +17,10 @@ Three routes, tried in this order (the result says which one was used):
     covariates of ``lookup.patterns.boundary``: boundary measure, the shortfall of the
     boundary band, 1/n) for the mean and n Var, with the correlation matrix
     and usable grid points of the nearest calibrated cell (closest kappa,
-    then closest n^(-1/d)).  Extremes: the exceedance model
-    -log F(x) = n a(x) + n B1 b(x) + c(x), turned into a null sample by
-    inverting F.  Tables of schema version 1 have no geometric model: there
+    then closest n^(-1/d)).  Extremes: the quantile model of
+    ``lookup.inference.extremequantiles`` (tables written before it: the
+    exceedance model -log F(x) = n a(x) + n B1 b(x) + c(x), inverted),
+    turned into a null sample.  Tables of schema version 1 have no geometric model: there
     the two-term model in kappa n^(-1/d) is used (convex windows) and
     extremes take the nearest shape's cells, marked approximate.  Whether a
     model answer is trusted is decided from the table's validation on
@@ -31,6 +32,7 @@ process, so that a lookup after the first costs microseconds.
 from __future__ import annotations
 
 import functools
+import json
 import os
 from dataclasses import dataclass, field
 
@@ -39,6 +41,7 @@ import numpy as np
 from ..errors import TableError
 from ..patterns.shapes import normalise
 from ..summaries.statistics import STATISTICS
+from .extremequantiles import extreme_design, quantile_sample
 from .tablereader import open_table, read_m2, shipped_tables
 
 __all__ = ["NullMoments", "TableSet", "null_moments", "default_tables"]
@@ -138,10 +141,12 @@ class _Table:
                 for s, g in fh.get("geomodel", {}).items():
                     kind = g.attrs.get("kind", "additive")
                     kind = kind.decode() if isinstance(kind, bytes) else kind
-                    keys = ("x", "coef") if kind == "extreme" else ("mean_coef", "var_coef",
-                                                                    "depth")
+                    keys = ("x", "coef", "p", "qcoef", "depth") if kind == "extreme" else (
+                        "mean_coef", "var_coef", "depth")
                     self._geo[s] = {k: np.asarray(g[k][()], float) for k in keys if k in g}
                     self._geo[s]["kind"] = kind
+                    if "columns" in g.attrs:
+                        self._geo[s]["columns"] = tuple(json.loads(g.attrs["columns"]))
         return self._geo.get(stat)
 
     @functools.lru_cache(maxsize=4096)
@@ -374,10 +379,20 @@ def _geo_moments(t: _Table, stat: str, n: int, window, d: int, near: list):
     g = t.geomodel(stat)
     if g is None:
         return None
-    cov = covariates(window, n, g.get("depth", np.array([1.0])))      # (k or 1, 4)
+    # the depth of B2 that the model was fitted with (extremes of the
+    # quantile model: 2 spacings, as scalars; ``boundary.grid_depths``)
+    default = np.array([2.0 if "qcoef" in g else 1.0])
+    cov = covariates(window, n, g.get("depth", default))      # (k or 1, 5)
+    if "mean_coef" in g:
+        # a table fitted with fewer covariates uses the first ones
+        cov = cov[:, :g["mean_coef"].shape[1]]
     base = _from_cells(t, stat, near, n if len(near) == 2 else near[0].n, d)
     if g["kind"] == "extreme":
-        vals = extreme_sample(g["x"], g["coef"], n, float(cov[0, 1]))
+        if "qcoef" in g:        # the quantile model (lookup.inference.extremequantiles)
+            x = extreme_design(cov, n, g["columns"])
+            vals = quantile_sample(g["p"], g["qcoef"], x, EXTREME_SAMPLE)
+        else:                   # the exceedance model of earlier tables
+            vals = extreme_sample(g["x"], g["coef"], n, float(cov[0, 1]))
         if len(np.unique(vals)) < len(vals) // 4:
             # the exceedance model puts most of the null below its fitted
             # grid (far outside the training windows): no valid null here

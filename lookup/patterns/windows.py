@@ -96,6 +96,14 @@ class Window(metaclass=_Checked):
     #: Share of the boundary measure that is curved (not on flat faces or
     #: straight edges): 1 for disks and balls, the lateral share for cylinders.
     curved_share: float = 0.0
+    #: Integrated curvature of the smooth curved parts of the boundary (not
+    #: its edges or corners): in 3D the integral of the mean curvature
+    #: H = (k1 + k2) / 2 over the curved surface (a ball 4 pi r, a
+    #: cylinder's mantle pi h; Santalo 1976, ch. 13, from memory), in 2D the
+    #: total curvature of the curved arcs (a disk 2 pi).  0 for polygons,
+    #: boxes, rasters and periodic windows.  Drives the curvature covariate
+    #: BC of ``lookup.patterns.boundary``.
+    smooth_curvature: float = 0.0
 
     @property
     def measure(self) -> float:
@@ -396,6 +404,7 @@ class Disk(Window):
     kind = "disk"
 
     curved_share = 1.0
+    smooth_curvature = 2 * math.pi
 
     def __init__(self, cx, cy, r):
         cx, cy, r = _finite([cx, cy, r], "disk")
@@ -457,6 +466,11 @@ class Ball(Window):
     kind = "ball"
 
     curved_share = 1.0
+
+    @property
+    def smooth_curvature(self) -> float:
+        """Integrated mean curvature of the sphere: (1 / r) 4 pi r^2 = 4 pi r."""
+        return float(4 * math.pi * self.r)
 
     def __init__(self, cx, cy, cz, r):
         cx, cy, cz, r = _finite([cx, cy, cz, r], "ball")
@@ -534,6 +548,12 @@ class Cylinder(Window):
     def curved_share(self) -> float:
         """Lateral surface / whole surface = h / (h + r)."""
         return float(self.height / (self.height + self.r))
+
+    @property
+    def smooth_curvature(self) -> float:
+        """Integrated mean curvature of the mantle: (1 / (2 r)) 2 pi r h = pi h
+        (the rims are edges, in B2)."""
+        return float(math.pi * self.height)
 
     @property
     def measure(self):
