@@ -480,7 +480,8 @@ def _cmd_validate(a):
         from .validate import plot_validation
         out["plot"] = plot_validation(res["rows"], res["trust"], default_stats(info.dimension),
                                       a.plot, f"instant test on held-out {info.dimension}D windows "
-                                      "(band: 0.05 +- 0.01)")
+                                      "(band: 0.05 +- 0.01; a cell also fails when its mean is "
+                                      "off by more than 0.1 sd)")
     return out
 
 

@@ -307,7 +307,9 @@ def plot_validation(rows: list[dict], trust: dict, stats: list[str], path: str,
                         mec=colour[w], mew=1.2, zorder=3)
         ax.set_xscale("log")
         ax.set_ylim(0.0, top + 0.005)
-        ax.set_title(s, fontsize=10)
+        kind = STATISTICS[s].kind if s in STATISTICS else "scalar"
+        label = {"extreme": "upper tail at 0.05", "curve": "max |z| test"}.get(kind, "two-sided")
+        ax.set_title(f"{s} ({label})", fontsize=10)
         ax.set_xlabel("n")
         ax.set_ylabel("size at 0.05 (capped at 0.12)")
     for ax in axes.ravel()[len(stats):]:
@@ -319,6 +321,7 @@ def plot_validation(rows: list[dict], trust: dict, stats: list[str], path: str,
                 Line2D([], [], color="0.3", marker="X", lw=0, label="failed its check")]
     fig.legend(handles=handles, loc="lower center", ncol=min(6, len(handles)), fontsize=8,
                frameon=False)
-    fig.suptitle(title or "instant test on held-out windows (band: 0.05 +- 0.01)", fontsize=11)
+    fig.suptitle(title or "instant test on held-out windows (band: 0.05 +- 0.01; a cell also fails "
+                 "when its mean is off by more than 0.1 sd)", fontsize=11)
     fig.tight_layout(rect=(0, 0.04 + 0.025 * (len(handles) // 6), 1, 0.97))
     return save_figure(fig, path)

@@ -141,13 +141,14 @@ def test_trust_verdicts_and_auto_fallback():
                                                   [[(1, 1), (3, 1), (3, 3), (1, 3)]]))
     r = csr_test(holed.sample(800, rng), holed, ["total0"], method="asymptotic", seed=1)
     assert r.primary.details["route"] in ("cell", "interpolated") and r.primary.trusted
-    # a 3D ball at n = 300: more of it lies near its boundary than in any
-    # held-out cell where the model of the void total held
+    # a 3D ball: its kappa is below every training shape's, and the Euler
+    # curve's model missed the held-out ball at n <= 300, so the validated
+    # range excludes it
     b = windows.Ball(0, 0, 0, 1)
-    r = csr_test(b.sample(300, rng), b, ["total2"], method="asymptotic", seed=1)
+    r = csr_test(b.sample(300, rng), b, ["euler"], method="asymptotic", seed=1)
     assert not r.primary.trusted and "validated" in r.primary.reason
-    r = csr_test(b.sample(300, rng), b, ["total2"], method="auto", n_sims=19, seed=1)
-    assert r.primary.method == "mc-rank"
+    r = csr_test(b.sample(300, rng), b, ["euler"], method="auto", n_sims=19, seed=1)
+    assert r.primary.method.startswith("mc-")      # the curve's Monte Carlo envelope test
     # beyond the largest calibrated 3D n, nothing was measured: untrusted
     cube = windows.Box(0, 0, 0, 1, 1, 1)
     nm = null_moments(default_tables(), cube, 40_000, "total2")
