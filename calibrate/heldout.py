@@ -37,9 +37,16 @@ HELDOUT_N = {2: [100, 500, 1000, 2000, 5000, 20000], 3: [100, 300, 500, 1000, 20
 HELDOUT_N_PERIODIC = {2: [100, 500, 1000, 2000, 5000, 20000], 3: [300, 500, 1000, 2000, 5000]}
 
 
+#: Windows with n lists of their own: periodic boxes of other aspects need
+#: more points before their shortest period holds a periodic complex.
+HELDOUT_N_WINDOW = {"torus2r": [500, 1000, 2000, 5000, 20000], "torus3b": [500, 1000, 2000, 5000]}
+
+
 def heldout_ns(name: str) -> list:
     """The n simulated for held-out window ``name``."""
     d = HELDOUT[name][0]
+    if name in HELDOUT_N_WINDOW:
+        return HELDOUT_N_WINDOW[name]
     return HELDOUT_N_PERIODIC[d] if name.startswith("torus") else HELDOUT_N[d]
 
 
@@ -143,6 +150,11 @@ def _torus(d):
     return PeriodicBox(*([0.0] * d + [1.0] * d))
 
 
+def _torus_box(*sides):
+    from nullatlas.lookup.patterns.periodic import PeriodicBox
+    return PeriodicBox(*([0.0] * len(sides) + list(sides)))
+
+
 #: name -> (dimension, factory, description)
 HELDOUT = {
     "L": (2, _L, "L-shaped hexagon (three unit squares)"),
@@ -159,6 +171,9 @@ HELDOUT = {
     "ball": (3, _ball, "ball"),
     "cylinder6": (3, _cylinder_long, "cylinder, height 6 diameters"),
     "torus3": (3, lambda: _torus(3), "periodic unit cube"),
+    # appended (the seed of a window is its index here: earlier windows keep theirs)
+    "torus2r": (2, lambda: _torus_box(1.0, 4.0), "periodic rectangle 1:4"),
+    "torus3b": (3, lambda: _torus_box(1.0, 1.0, 2.0), "periodic box 1:1:2"),
 }
 
 

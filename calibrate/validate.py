@@ -94,7 +94,7 @@ def score_cell(tset, window, n: int, raw: dict, stats) -> list[dict]:
             continue
         v = np.asarray(raw[name], float)
         row = {"statistic": name, "kind": st.kind, "n": int(n), "route": nm.route}
-        meas = trust_measures(window, n, nm.kappa_range)
+        meas = trust_measures(window, n, nm.kappa_range, nm.extra.get("periodic_n_range"))
         row.update({k: meas[k] for k in MEASURES})
         if st.kind == "curve":
             sd = nm.sd

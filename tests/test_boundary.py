@@ -96,3 +96,31 @@ def test_periodic_window_has_no_boundary_terms():
     w = PeriodicBox(0, 0, 2, 1)
     assert np.allclose(covariates(w, 500), [1, 0, 0, 1 / 500, 0])
     assert trust_measures(w, 500)["boundary_share"] == 0.0
+
+
+def test_periodic_measure_grows_outside_the_periodic_cells():
+    # 1 where the table's periodic cells bracket n, the factor outside them beyond
+    from nullatlas.lookup.patterns.periodic import PeriodicBox
+
+    w = PeriodicBox(0, 0, 1, 4)
+    assert trust_measures(w, 700, periodic_n_range=(100, 5000))["periodic"] == 1.0
+    assert trust_measures(w, 20000, periodic_n_range=(100, 5000))["periodic"] == pytest.approx(4.0)
+    assert trust_measures(w, 50, periodic_n_range=(100, 5000))["periodic"] == pytest.approx(2.0)
+    assert trust_measures(w, 700)["periodic"] == 1.0
+    assert trust_measures(Rectangle(0, 0, 1, 4), 700, periodic_n_range=(100, 5000))["periodic"] == 0.0
+
+
+def test_periodic_box_of_any_aspect_uses_the_periodic_cells():
+    # no boundary anywhere: a 1:4 periodic rectangle at n = 700 takes the
+    # periodic square's cells at 500 and 1000 (not the bounded shapes' model)
+    from nullatlas.lookup.inference.nullmoments import default_tables, null_moments
+    from nullatlas.lookup.patterns.periodic import PeriodicBox
+
+    w = PeriodicBox(0, 0, 1, 4)
+    nm = null_moments(default_tables(), w, 700, "total0")
+    assert nm.route == "model"
+    assert nm.cells and all(c.startswith("torus2-") for c in nm.cells), nm.cells
+    sq = null_moments(default_tables(), PeriodicBox(0, 0, 2, 2), 700, "total0")
+    assert sq.route == "interpolated"
+    np.testing.assert_allclose(nm.mean, sq.mean, rtol=1e-12)
+    assert nm.extra["periodic_n_range"][0] <= 700 <= nm.extra["periodic_n_range"][1]

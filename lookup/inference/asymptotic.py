@@ -84,7 +84,7 @@ def _model_trust(nm: NullMoments, stat, n: int, window, key: str) -> list:
     if not per.get("passed"):
         return [f"the model route of '{stat.name}' ({key} test) did not hold its size on any "
                 "held-out window"]
-    m = trust_measures(window, n, nm.kappa_range)
+    m = trust_measures(window, n, nm.kappa_range, nm.extra.get("periodic_n_range"))
     nm.extra["measures"] = m
     out = []
     lo, hi = int(per["n_lo"]), int(per["n_hi"])
@@ -117,8 +117,13 @@ def _model_trust(nm: NullMoments, stat, n: int, window, key: str) -> list:
                    f"of '{stat.name}' was validated for windows with up to "
                    f"{_pct(per['curved_share_max'])}")
     if m["periodic"] > per.get("periodic_max", np.inf) + 1e-12:
-        out.append(f"n = {n} is beyond the periodic cells of '{stat.name}' and their "
-                   "extrapolation did not hold on the held-out periodic window")
+        if per["periodic_max"] < 1.0:
+            out.append(f"the route of '{stat.name}' for periodic boxes did not hold on the "
+                       "held-out periodic windows")
+        else:
+            out.append(f"n = {n} lies a factor {m['periodic']:.3g} outside the n of the periodic "
+                       f"cells of '{stat.name}'; their extrapolation held on held-out periodic "
+                       f"windows up to a factor {per['periodic_max']:.3g}")
     if m["boundary_share"] > per["boundary_share_max"] + 1e-12:
         out.append(f"{_pct(m['boundary_share'])} of the window lies within one mean spacing of "
                    f"its boundary (the model of '{stat.name}' was validated up to "

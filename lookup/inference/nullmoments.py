@@ -534,10 +534,18 @@ def null_moments(tables: TableSet, window, n: int, stat: str) -> NullMoments | N
             near_shape, br = _nearest_cells(t, stat, kap, n, prefer)
             if not br:
                 continue
-            if periodic and shape in t.by_shape and n > br[-1].n:
-                pcells = [c for c in t.by_shape[shape] if stat in c.stats]
-                mom = _periodic_moments(t, stat, n, pcells, st.kind) if len(pcells) >= 2 \
-                    else _geo_moments(t, stat, n, window, d, br)
+            pshape = ("torus2" if d == 2 else "torus3") if periodic else None
+            pcells = [c for c in t.by_shape.get(pshape, []) if stat in c.stats]
+            pbr = _bracket(pcells, n) if pcells else None
+            if pbr is not None:
+                # a periodic box of another aspect: no boundary anywhere, so
+                # (for sides of many mean spacings) the periodic cube's cells
+                # at this n; validated on held-out periodic boxes of other
+                # aspects like any model answer
+                br = pbr
+                mom = _from_cells(t, stat, br, n, d)
+            elif len(pcells) >= 2 and n > pcells[-1].n:
+                mom = _periodic_moments(t, stat, n, pcells, st.kind)
             else:
                 mom = _geo_moments(t, stat, n, window, d, br)
             route = "model"
@@ -568,6 +576,8 @@ def null_moments(tables: TableSet, window, n: int, stat: str) -> NullMoments | N
             res.extra["nearest_shape"] = near_shape
             res.extra["trust"] = t.info.trust.get(stat)
             res.extra["schema_version"] = t.info.schema_version
+            if periodic and pcells:
+                res.extra["periodic_n_range"] = (int(pcells[0].n), int(pcells[-1].n))
             if "covariates" in mom:
                 res.extra["covariates"] = np.asarray(mom["covariates"])[0].tolist()
         if stat.startswith("betti"):

@@ -64,8 +64,10 @@ Trust measures (``lookup.asymptotic``):
     curved_share = the share of the boundary that is curved (disks, balls,
         a cylinder's mantle; ``Window.curved_share``): in 3D the model was
         trained mostly on flat faces;
-    periodic = 1 for a periodic window (its own limit route, validated on
-        its own), 0 otherwise.
+    periodic = 0 for a window with a boundary; for a periodic window
+        max(1, n / n_hi, n_lo / n), [n_lo, n_hi] the n range of the table's
+        periodic cells: 1 where the periodic cells bracket n, larger the
+        further they are extrapolated (its own route, validated on its own).
 """
 from __future__ import annotations
 
@@ -137,18 +139,24 @@ def kappa_excess(kappa: float, kappa_range) -> float:
     return float(max(0.0, lo / kappa - 1.0, kappa / hi - 1.0))
 
 
-def trust_measures(window, n: int, kappa_range=None) -> dict:
+def trust_measures(window, n: int, kappa_range=None, periodic_n_range=None) -> dict:
     """Geometric measures that the trust verdict compares with the validated
     range (``MEASURES``, see the module doc; ``kappa_excess`` relative to
-    ``kappa_range``, the table's training shapes, 0 when not given), ``B1``
+    ``kappa_range``, the table's training shapes, 0 when not given;
+    ``periodic`` relative to ``periodic_n_range``, 1 when not given), ``B1``
     and ``B2``."""
     s = _scale(window, int(n))
     cov = covariates(window, n)
     if getattr(window, "periodic", False) or float(window.boundary_measure) == 0.0:
+        per = 0.0
+        if getattr(window, "periodic", False):
+            per = 1.0
+            if periodic_n_range:
+                lo, hi = periodic_n_range
+                per = max(1.0, n / float(hi), float(lo) / n)
         return {"boundary_share": 0.0, "second_order": 0.0, "narrow_share": 0.0, "holes": 0.0,
                 "hull_deficit": 0.0, "kappa_excess": 0.0, "curved_share": 0.0,
-                "periodic": float(bool(getattr(window, "periodic", False))), "B1": 0.0,
-                "B2": 0.0}
+                "periodic": float(per), "B1": 0.0, "B2": 0.0}
     share = 1.0 - float(_inner_fraction(window, 1.0 / s)[0])
     narrow = 0.0
     fn = getattr(window, "narrow_share", None)
