@@ -23,6 +23,16 @@ import numpy as np
 
 from nullatlas.lookup.errors import OptionError
 from nullatlas.lookup.inference.tablereader import load_cell, open_table
+from nullatlas.lookup.limits import (
+    MAX_N,
+    MAX_POINTS_TOTAL,
+    MAX_REPS,
+    duration,
+    pattern_bytes,
+    pattern_seconds,
+    refuse_beyond,
+    size,
+)
 from nullatlas.lookup.summaries import grids
 from nullatlas.lookup.summaries.statistics import STATISTICS, resolve_stats
 
@@ -267,10 +277,42 @@ def _plans(targets, ns, reps, dimension, first=None):
         for n in ns:
             if n < 10:
                 raise OptionError(f"--n values must be at least 10, got {n}")
+            refuse_beyond("--n", int(n), MAX_N,
+                          f"one pattern of {int(n):,} points needs about "
+                          f"{size(pattern_bytes(n, dimension))} of memory and at least "
+                          f"{duration(pattern_seconds(n, dimension))}")
             f = (first or {}).get((name, n), (0, chunk_size_for(n)))
             plans.append(CellPlan(dimension, name, int(n), window.spec(), float(window.kappa),
                                   int(reps), first_chunk=f[0], chunk_size=f[1]))
     return plans
+
+
+def refuse_endless(plans: list[CellPlan], reps: int) -> None:
+    """Refuse, before any work, a run that cannot finish (``lookup.limits``).
+
+    Parameters
+    ----------
+    plans : list of CellPlan
+        The cells of the run (their n are checked by ``_plans``).
+    reps : int
+        Replicates per cell asked for.
+
+    Raises
+    ------
+    OptionError
+        ``--reps`` beyond ``MAX_REPS``, or more than ``MAX_POINTS_TOTAL``
+        points simulated in all, with the time it would take at least.
+    """
+    if not plans:
+        return
+    dim = plans[0].dimension
+    secs = sum(p.reps * pattern_seconds(p.n, dim) for p in plans)
+    refuse_beyond("--reps", int(reps), MAX_REPS,
+                  f"{len(plans)} cell(s) of {int(reps):,} patterns take at least "
+                  f"{duration(secs)} of one core")
+    points = sum(p.reps * p.n for p in plans)
+    refuse_beyond("--reps x --n (points simulated)", int(points), MAX_POINTS_TOTAL,
+                  f"at least {duration(secs)} of one core")
 
 
 def _simulate(out, plans, stat_names, root_seed, jobs, scheduler, progress, on_done):
@@ -329,6 +371,7 @@ def build_table(out, targets: list, ns: list, reps: int, *, stats=None,
         raise OptionError(f"{out}: the folder {folder} does not exist")
     stat_names = [s.name for s in resolve_stats(stats or DEFAULT_STATS[dim], dim)]
     plans = _plans(targets, sorted(set(int(n) for n in ns)), reps, dim)
+    refuse_endless(plans, reps)
     desc = {name: w.describe() for name, w in targets}
     records = []
     t0 = time.perf_counter()
@@ -386,6 +429,7 @@ def extend_table(path, reps: int, *, targets: list | None = None, ns: list | Non
         ns = ns or sorted({r["n"] for r in records})
         first = {k: (r["chunks"], r["chunk_size"]) for k, r in by.items()}
         plans = _plans(targets, sorted(set(int(n) for n in ns)), reps, dim, first)
+    refuse_endless(plans, reps)
     desc = {}
     if targets:
         desc = {name: w.describe() for name, w in targets}

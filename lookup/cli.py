@@ -11,6 +11,7 @@ import sys
 import warnings
 
 from .errors import NullAtlasError, OptionError
+from .limits import MAX_SIMS
 
 PROG = "nullatlas"
 
@@ -74,7 +75,8 @@ def build_parser() -> argparse.ArgumentParser:
                    help="your own null table (nullatlas-calibrate build); takes precedence over "
                    "the shipped tables for its window (repeatable)")
     t.add_argument("--sims", type=_int, default=999, metavar="M",
-                   help="number of null simulations of the Monte Carlo route (default: 999)")
+                   help=f"number of null simulations of the Monte Carlo route (default: 999, at "
+                   f"most {MAX_SIMS:,}: more are refused with the time they would take)")
     t.add_argument("--seed", type=_int, default=None, metavar="S",
                    help="root random seed (default: fresh; the seed used is reported)")
     t.add_argument("--jobs", "-j", type=_int, default=1, metavar="N",

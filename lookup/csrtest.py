@@ -8,6 +8,7 @@ import numpy as np
 
 from .errors import OptionError
 from .inference import montecarlo
+from .limits import MAX_SIMS, duration, refuse_beyond
 from .patterns.readers import read_points
 from .patterns.validate import validate_pattern
 from .patterns.windows import Window, as_window
@@ -19,9 +20,6 @@ from .summaries.statistics import PatternSummary, evaluate, resolve_stats
 __all__ = ["csr_test", "METHODS", "ALTERNATIVES"]
 
 METHODS = ("auto", "asymptotic", "mc")
-#: Largest number of null simulations accepted (about 3 h at a millisecond
-#: each on one core; the rank p-value's resolution 1/(m+1) is then 1e-7).
-MAX_SIMS = 10_000_000
 #: Workers beyond this many times the cores only add start-up time and memory.
 JOBS_PER_CORE = 4
 ALTERNATIVES = ("two-sided", "clustered", "regular")
@@ -34,10 +32,9 @@ def _check_options(method, n_sims, jobs, alternative, alpha, engine="fast"):
         raise OptionError(f"method must be one of {', '.join(METHODS)}, got '{method}'")
     if not isinstance(n_sims, (int, np.integer)) or n_sims < 1:
         raise OptionError(f"number of simulations must be a positive integer, got {n_sims}")
-    if n_sims > MAX_SIMS:
-        raise OptionError(f"{n_sims} simulations cannot finish: at even a millisecond each that "
-                          f"is {n_sims / 3.15e10:.3g} years; use at most {MAX_SIMS:,} (999 or "
-                          "9,999 are the usual choices)")
+    refuse_beyond("--sims", int(n_sims), MAX_SIMS,
+                  f"at even a millisecond each that is {duration(n_sims * 1e-3)}",
+                  " (999 or 9,999 are the usual choices)")
     if not isinstance(jobs, (int, np.integer)) or jobs < 0:
         raise OptionError(f"jobs must be 0 (all cores) or a positive integer, got {jobs}")
     if alternative not in ALTERNATIVES:
