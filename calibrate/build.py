@@ -15,13 +15,15 @@ shape) from the stored cells without simulating.
 """
 from __future__ import annotations
 
+import contextlib
 import json
 import os
 import time
 
 import numpy as np
 
-from nullatlas.lookup.errors import OptionError
+from nullatlas.lookup.atomic import check_writable
+from nullatlas.lookup.errors import OptionError, WriteError
 from nullatlas.lookup.inference.tablereader import load_cell, open_table
 from nullatlas.lookup.limits import (
     MAX_N,
@@ -315,6 +317,17 @@ def refuse_endless(plans: list[CellPlan], reps: int) -> None:
                   f"at least {duration(secs)} of one core")
 
 
+@contextlib.contextmanager
+def _chunks_kept(out):
+    """A write that fails mid-run (a full disk) says that the finished chunks
+    are kept and the same command resumes from them."""
+    try:
+        yield
+    except WriteError as exc:
+        raise WriteError(f"{exc}; the chunks simulated so far are kept in {_parts_dir(out)}: run "
+                         "the same command again once it can be written") from None
+
+
 def _simulate(out, plans, stat_names, root_seed, jobs, scheduler, progress, on_done):
     dim = plans[0].dimension
     ck = Checkpoints(_parts_dir(out), root_seed, stat_names)
@@ -369,6 +382,7 @@ def build_table(out, targets: list, ns: list, reps: int, *, stats=None,
     folder = os.path.dirname(os.path.abspath(out))
     if not os.path.isdir(folder):
         raise OptionError(f"{out}: the folder {folder} does not exist")
+    check_writable(out)
     stat_names = [s.name for s in resolve_stats(stats or DEFAULT_STATS[dim], dim)]
     plans = _plans(targets, sorted(set(int(n) for n in ns)), reps, dim)
     refuse_endless(plans, reps)
@@ -380,9 +394,10 @@ def build_table(out, targets: list, ns: list, reps: int, *, stats=None,
         records.append(_cell_record(plan, desc[plan.shape], _assembled_stats(assembled), plan.reps,
                                     len(plan.chunks())))
 
-    ck, secs = _simulate(out, plans, stat_names, root_seed, jobs, scheduler, progress, done)
-    summary = _finish(out, dim, root_seed, stat_names, records, n_fit, holdout,
-                      {"simulation_seconds": float(secs)})
+    with _chunks_kept(out):
+        ck, secs = _simulate(out, plans, stat_names, root_seed, jobs, scheduler, progress, done)
+        summary = _finish(out, dim, root_seed, stat_names, records, n_fit, holdout,
+                          {"simulation_seconds": float(secs)})
     if not keep_parts:
         ck.remove()
     summary["seconds"] = time.perf_counter() - t0
@@ -449,11 +464,14 @@ def extend_table(path, reps: int, *, targets: list | None = None, ns: list | Non
             records.append(rec)
             by[key] = rec
 
-    ck, secs = _simulate(path, plans, stat_names, info.root_seed, jobs, scheduler, progress, done)
-    summary = _finish(path, dim, info.root_seed, stat_names, records,
-                      n_fit if n_fit is not None else int(info.attrs.get("model_n_fit", 200)),
-                      holdout if holdout is not None else (info.attrs.get("holdout") or None),
-                      {"simulation_seconds": float(info.attrs.get("simulation_seconds", 0.0)) + secs})
+    with _chunks_kept(path):
+        ck, secs = _simulate(path, plans, stat_names, info.root_seed, jobs, scheduler, progress,
+                             done)
+        summary = _finish(path, dim, info.root_seed, stat_names, records,
+                          n_fit if n_fit is not None else int(info.attrs.get("model_n_fit", 200)),
+                          holdout if holdout is not None else (info.attrs.get("holdout") or None),
+                          {"simulation_seconds": float(info.attrs.get("simulation_seconds", 0.0))
+                           + secs})
     if not keep_parts:
         ck.remove()
     summary["seconds"] = time.perf_counter() - t0

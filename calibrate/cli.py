@@ -261,13 +261,22 @@ def _check_table_out(path):
 
 def _check_writable_table(path, allow=False):
     """Shipped tables are read-only to the tool: extend or refit a copy
-    (``--allow-shipped`` for the project's own regeneration)."""
+    (``--allow-shipped`` for the project's own regeneration); a table in a
+    folder where nothing can be written is refused before any work."""
+    import os
+
+    if not allow:
+        _refuse_shipped(path)
+    if os.path.isfile(path):
+        from nullatlas.lookup.atomic import check_writable
+        check_writable(path)            # the table is rewritten beside itself
+
+
+def _refuse_shipped(path):
     import os
 
     from nullatlas.lookup.inference.tablereader import shipped_tables
 
-    if allow:
-        return
     real = os.path.realpath(path)
     if any(os.path.realpath(p) == real for p in shipped_tables().values()):
         raise OptionError(f"{path} is a table shipped with nullatlas (read-only to the tool); "

@@ -25,6 +25,7 @@ removes it when the results file is written.
 """
 from __future__ import annotations
 
+import contextlib
 import csv
 import glob
 import json
@@ -33,7 +34,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .errors import NullAtlasError, OptionError
+from .errors import NullAtlasError, OptionError, WriteError
 from .inference.adjust import benjamini_hochberg, holm
 
 __all__ = ["BatchItem", "BatchResult", "collect_inputs", "read_manifest", "run_batch",
@@ -199,6 +200,36 @@ def _read_journal(path, items, opts, seed):
     return head["seed"], done
 
 
+def _open_journal(path, items, opts, seed, resume):
+    """The journal, opened for appending rows (a new one starts with its
+    header); a failure is a WriteError naming it, before any file is tested."""
+    from .atomic import write_error
+
+    try:
+        if not (resume and os.path.exists(path)):
+            with open(path, "w", encoding="utf-8") as fh:
+                fh.write(json.dumps(_journal_header(items, opts, seed)) + "\n")
+        return open(path, "a", encoding="utf-8")
+    except OSError as exc:
+        raise write_error(path, exc) from None
+
+
+def _journal_row(fh, path, index, row, kept):
+    """Append one finished row, flushed and synced; on a failed write (a full
+    disk) stop with one line saying that the earlier rows are kept."""
+    from .atomic import write_error
+    from .results import _clean
+
+    try:
+        fh.write(json.dumps({**_clean(row), "_index": index}, allow_nan=False) + "\n")
+        fh.flush()
+        os.fsync(fh.fileno())
+    except OSError as exc:
+        raise WriteError(f"{write_error(path, exc)}; the {kept} file(s) finished before are "
+                         "kept in it: run the same command with --resume once it can be "
+                         "written") from None
+
+
 def run_batch(items: list[BatchItem], *, stats=None, method="auto", n_sims=999, seed=None,
               jobs=1, alternative="two-sided", on_duplicates="error", alpha=0.05,
               engine="fast", tables=None, progress=None, journal: str | None = None,
@@ -238,21 +269,13 @@ def run_batch(items: list[BatchItem], *, stats=None, method="auto", n_sims=999, 
     todo = [i for i in range(len(items)) if i not in done]
     bar = tqdm(total=len(items), initial=len(items) - len(todo), desc="patterns", unit="file",
                disable=None if progress is None else not progress, leave=False)
-    jfh = None
-    if journal:
-        if not (resume and os.path.exists(journal)):
-            with open(journal, "w", encoding="utf-8") as fh:
-                fh.write(json.dumps(_journal_header(items, opts, seed)) + "\n")
-        jfh = open(journal, "a", encoding="utf-8")
+    jfh = _open_journal(journal, items, opts, seed, resume) if journal else None
 
     def finished(i, r):
         done[i] = r
         bar.update(1)
         if jfh is not None:
-            from .results import _clean
-            jfh.write(json.dumps({**_clean(r), "_index": i}, allow_nan=False) + "\n")
-            jfh.flush()
-            os.fsync(jfh.fileno())
+            _journal_row(jfh, journal, i, r, len(done) - 1)
 
     try:
         if jobs == 1 and scheduler is None:
@@ -272,7 +295,8 @@ def run_batch(items: list[BatchItem], *, stats=None, method="auto", n_sims=999, 
     finally:
         bar.close()
         if jfh is not None:
-            jfh.close()
+            with contextlib.suppress(OSError):      # a full disk was reported already
+                jfh.close()
     rows = [done[i] for i in range(len(items))]
     p = np.array([r["p_value"] if r["p_value"] is not None and np.isfinite(r["p_value"])
                   else np.nan for r in rows])

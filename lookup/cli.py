@@ -10,7 +10,7 @@ import os
 import sys
 import warnings
 
-from .errors import NullAtlasError, OptionError
+from .errors import NullAtlasError, OptionError, WriteError
 from .limits import MAX_SIMS
 
 PROG = "nullatlas"
@@ -268,6 +268,9 @@ def _cmd_batch(a) -> int:
         raise OptionError(f"--out must end in .csv or .json, got '{a.out}'")
     if a.out and not os.path.isdir(os.path.dirname(os.path.abspath(a.out))):
         raise OptionError(f"--out folder does not exist: {os.path.dirname(os.path.abspath(a.out))}")
+    if a.out:
+        from .atomic import check_writable
+        check_writable(a.out)
     if a.plot:
         from .plots import check_plot_path
         check_plot_path(a.plot)
@@ -280,17 +283,27 @@ def _cmd_batch(a) -> int:
                     alpha=a.alpha, engine=a.engine, tables=a.table, progress=a.progress,
                     journal=journal, resume=a.resume, scheduler=a.dask_scheduler)
     if a.out:
-        write_results(res, a.out)
+        try:
+            write_results(res, a.out)
+        except WriteError as exc:
+            raise WriteError(f"{exc}; the results of the {len(res.rows)} file(s) are kept in "
+                             f"{journal}: run the same command with --resume once it can be "
+                             "written") from None
         os.unlink(journal)
-    if a.plot:
+    _print_batch(res, a)
+    if a.plot:                     # last: a figure that cannot be written loses no result
         from .plots import plot_batch
         plot_batch(res, a.plot, alpha=a.alpha)
+    return 0
+
+
+def _print_batch(res, a) -> None:
     if a.json:
         from .results import _clean
         json.dump({"seed": res.seed, "files": len(res.rows), "failed": len(res.failed),
                    "rows": _clean(res.rows)}, sys.stdout, indent=1, allow_nan=False)
         sys.stdout.write("\n")
-        return 0
+        return
     w = sys.stdout.write
     w(f"{len(res.rows)} files, {len(res.failed)} failed, seed {res.seed}\n")
     w(f"{'file':<36}{'n':>8}  {'statistic':<10}{'p-value':>10}{'Holm':>10}{'BH':>10}  method\n")
@@ -307,7 +320,6 @@ def _cmd_batch(a) -> int:
       "(Benjamini-Hochberg over the primary test)\n")
     if a.out:
         w(f"results written to {a.out}\n")
-    return 0
 
 
 def _table_summary(path) -> dict:
@@ -371,6 +383,13 @@ def _cmd_tables(a) -> int:
     return 0
 
 
+def _os_error_line(exc: OSError) -> str:
+    """One line for an operating-system error no command turned into its own."""
+    where = exc.filename if exc.filename is not None else ""
+    why = exc.strerror or (str(exc).strip().splitlines() or [type(exc).__name__])[0]
+    return f"{where}: {why}" if where else why
+
+
 def guarded(prog: str, run, interrupted: str = "interrupted") -> int:
     """Run ``run()`` the way every nullatlas command ends: an input error is one
     line on standard error and status 2; a closed output pipe (``| head``) is
@@ -385,6 +404,9 @@ def guarded(prog: str, run, interrupted: str = "interrupted") -> int:
     except BrokenPipeError:
         os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
         return 0
+    except OSError as exc:       # the environment (a file or folder that cannot be used)
+        sys.stderr.write(f"{prog}: error: {_os_error_line(exc)}\n")
+        return 2
     except KeyboardInterrupt:
         sys.stderr.write(f"{prog}: {interrupted}\n")
         return 130
