@@ -3,15 +3,21 @@
 Inputs are files, folders (every ``.csv``, ``.tsv``, ``.txt``, ``.dat``,
 ``.npy`` file in it, sorted by name), glob patterns, or a manifest CSV with
 columns ``file`` and ``window`` (optionally ``columns``) giving a window per
-file; manifest paths are relative to the manifest's folder and may not leave
-it (an absolute path or ``..`` is refused unless ``allow_absolute``).
+file; manifest paths -- the points files and the files that windows read
+(polygon files, raster and voxel masks) -- are relative to the manifest's
+folder and may not leave it (an absolute path or ``..`` is refused unless
+``allow_absolute``).  A file named explicitly (on the command line or in a
+manifest) that does not exist, a glob that matches nothing, a malformed
+window given for every file and bad shared options are refused before any
+work.
 
 Each file is tested by :func:`lookup.csr_test` in a worker process that
 reads it itself, so memory stays bounded by one pattern per worker whatever
 the batch size; results stream back in file order.  File i gets the i-th
 ``SeedSequence.spawn`` child of the batch seed, so results do not depend on
 the number of workers.  A file that fails (unreadable, bad window, bad
-points) is reported with its one-line error and the others are processed.
+points) is reported with its one-line error and the others are processed
+(the command's exit status is then 1; 2 if every file failed).
 The primary test's p-values are adjusted over the files that produced one:
 Holm (family-wise) and Benjamini–Hochberg (false discovery rate), see
 ``lookup.inference.adjust``.
@@ -36,6 +42,7 @@ import numpy as np
 
 from .errors import NullAtlasError, OptionError, WriteError
 from .inference.adjust import benjamini_hochberg, holm
+from .patterns.readers import points_file
 
 __all__ = ["BatchItem", "BatchResult", "collect_inputs", "read_manifest", "run_batch",
            "POINT_SUFFIXES"]
@@ -101,14 +108,87 @@ def read_manifest(path: str, allow_absolute: bool = False) -> list[BatchItem]:
     out = []
     for i, r in enumerate(rows, start=2):
         f, w = (r.get("file") or "").strip(), (r.get("window") or "").strip()
+        where = f"{path}, row {i}"
         if not f or not w:
-            raise OptionError(f"{path}, row {i}: empty 'file' or 'window'")
-        full = f if os.path.isabs(f) else os.path.join(base, f)
-        if not allow_absolute and (os.path.isabs(f) or not _inside(base, full)):
-            raise OptionError(f"{path}, row {i}: '{f}' is outside the manifest's folder "
-                              "(use --allow-absolute to permit it)")
-        out.append(BatchItem(full, w, (r.get("columns") or "").strip() or None))
+            raise OptionError(f"{where}: empty 'file' or 'window'")
+        full = _manifest_path(f, base, allow_absolute, where)
+        if not os.path.exists(points_file(full)):
+            raise OptionError(f"{where}: no such points file '{f}'")
+        out.append(BatchItem(full, _manifest_window(w, base, allow_absolute, where),
+                             (r.get("columns") or "").strip() or None))
     return out
+
+
+def _manifest_path(name: str, base: str, allow_absolute: bool, where: str) -> str:
+    """A file named in a manifest, resolved against the manifest's folder
+    ``base``; an absolute name or one that leaves the folder (``..``, a
+    symbolic link) is refused unless ``allow_absolute``."""
+    full = name if os.path.isabs(name) else os.path.join(base, name)
+    if not allow_absolute and (os.path.isabs(name) or not _inside(base, full)):
+        raise OptionError(f"{where}: '{name}' is outside the manifest's folder "
+                          "(use --allow-absolute to permit it)")
+    return full
+
+
+def _manifest_window(spec: str, base: str, allow_absolute: bool, where: str) -> str:
+    """A manifest's window with the file it reads (polygon, raster or voxel
+    mask) resolved against the manifest's folder, by the same rule as the
+    points files; specifications that read no file are unchanged."""
+    from .patterns.windows import window_file
+
+    def exists(name):
+        return os.path.exists(name if os.path.isabs(name) else os.path.join(base, name))
+
+    try:
+        parts = window_file(spec, exists)
+    except NullAtlasError:
+        return spec                    # malformed: the row gets the error
+    if parts is None:
+        return spec
+    before, name, after = parts
+    return before + _manifest_path(name, base, allow_absolute, where) + after
+
+
+def check_window_spec(spec: str) -> None:
+    """Parse a window given for every file once, before any work: a malformed
+    one would put the same error in every row.  ``bbox`` and ``hull`` are
+    estimated from each file's points, so they are checked per file."""
+    import warnings
+
+    from .patterns.windows import parse_window
+
+    if spec.strip().lower() in ("bbox", "hull"):
+        return
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        parse_window(spec)
+
+
+def check_options(opts: dict) -> None:
+    """Options shared by every file, checked once before any work (the same
+    checks as ``csr_test``; statistic names that exist in no dimension; the
+    user's tables).
+
+    Raises
+    ------
+    NullAtlasError
+        One line, as for ``nullatlas test``.
+    """
+    from .csrtest import _check_options
+    from .summaries.statistics import STATISTICS
+
+    _check_options(opts["method"], opts["n_sims"], 1, opts["alternative"], opts["alpha"],
+                   opts["engine"])
+    for raw in opts.get("stats") or ():
+        for name in str(raw).split(","):
+            name = name.strip().lower()
+            if name and name not in STATISTICS:
+                raise OptionError(f"unknown statistic '{name}'; choose from "
+                                  f"{', '.join(sorted(STATISTICS))}")
+    if opts.get("tables"):
+        from .inference.tablereader import open_table
+        for path in opts["tables"]:
+            open_table(path)
 
 
 def collect_inputs(inputs: list[str], window: str | None, columns: str | None = None,
@@ -120,6 +200,7 @@ def collect_inputs(inputs: list[str], window: str | None, columns: str | None = 
         return read_manifest(manifest, allow_absolute)
     if not window:
         raise OptionError("give --window for all files, or a --manifest with a window per file")
+    check_window_spec(window)
     paths = []
     for spec in inputs:
         if os.path.isdir(spec):
@@ -134,7 +215,9 @@ def collect_inputs(inputs: list[str], window: str | None, columns: str | None = 
                 raise OptionError(f"'{spec}' matches no file")
             paths += found
         else:
-            paths.append(spec)       # a missing file is reported in its row
+            if not os.path.exists(points_file(spec)):
+                raise OptionError(f"{spec}: no such points file")
+            paths.append(spec)
     if not paths:
         raise OptionError("no input files")
     return [BatchItem(p, window, columns) for p in paths]
@@ -257,6 +340,7 @@ def run_batch(items: list[BatchItem], *, stats=None, method="auto", n_sims=999, 
     jobs = jobs or os.cpu_count() or 1
     opts = {"stats": stats, "method": method, "n_sims": n_sims, "alternative": alternative,
             "on_duplicates": on_duplicates, "alpha": alpha, "engine": engine, "tables": tables}
+    check_options(opts)
     done = {}
     if journal and resume:
         seed, done = _read_journal(journal, items, opts, seed)

@@ -38,6 +38,15 @@ def _float(text):
         raise argparse.ArgumentTypeError(f"'{text}' is not a number") from None
 
 
+#: Exit statuses of ``nullatlas batch`` (its --help and the README say the same).
+BATCH_STATUS = (
+    "Exit status: 0 every file was tested; 1 some files failed (each failed row carries its "
+    "one-line error; the others are tested, adjusted and written); 2 nothing usable: every "
+    "file failed, or the batch was refused before any work (bad options, a malformed "
+    "--window, a named file or manifest entry that does not exist, a glob that matches "
+    "nothing), or a results file could not be written; 130 interrupted.")
+
+
 def build_parser() -> argparse.ArgumentParser:
     from .patterns.windowspec import SPEC_HELP
 
@@ -109,7 +118,8 @@ def build_parser() -> argparse.ArgumentParser:
     b = sub.add_parser("batch", help="test many pattern files, with adjusted p-values",
                        description="Test many pattern files (files, folders, globs, or a "
                        "manifest CSV with a window per file) in parallel; the primary test's "
-                       "p-values are adjusted over the files (Holm, Benjamini-Hochberg).")
+                       "p-values are adjusted over the files (Holm, Benjamini-Hochberg).",
+                       epilog=BATCH_STATUS)
     b.add_argument("inputs", nargs="*", help="point files, folders or glob patterns")
     b.add_argument("--window", "-w", metavar="SPEC", help="window of every file")
     b.add_argument("--manifest", metavar="CSV",
@@ -294,7 +304,23 @@ def _cmd_batch(a) -> int:
     if a.plot:                     # last: a figure that cannot be written loses no result
         from .plots import plot_batch
         plot_batch(res, a.plot, alpha=a.alpha)
-    return 0
+    return _batch_status(res)
+
+
+def _batch_status(res) -> int:
+    """0: every file tested; 1: some failed; 2: all failed (``BATCH_STATUS``),
+    with one line on standard error when not 0."""
+    failed, total = len(res.failed), len(res.rows)
+    if not failed:
+        return 0
+    first = res.failed[0]
+    if failed == total:
+        sys.stderr.write(f"{PROG}: error: every file failed ({total}); the first, "
+                         f"{first['file']}: {first['error']}\n")
+        return 2
+    sys.stderr.write(f"{PROG}: {failed} of {total} files failed (their rows say why); "
+                     "exit status 1\n")
+    return 1
 
 
 def _print_batch(res, a) -> None:
