@@ -24,10 +24,14 @@ Holm (family-wise) and Benjamini–Hochberg (false discovery rate), see
 
 Resuming: with a ``journal`` path every finished row is appended to it (JSON
 lines, flushed and synced) after a header line with the batch's options and
-seed; a run interrupted at any point and started again with the same
-journal reuses the finished rows and tests only the rest (a journal of
-other options is refused).  The CLI keeps the journal beside ``--out`` and
-removes it when the results file is written.
+seed, together with the identity of its input files (size, modification
+time, SHA-256 of the bytes, taken before the file is read); a run
+interrupted at any point and started again with the same journal reuses the
+finished rows whose files are unchanged and tests the rest -- the files not
+reached, and those changed since (a journal of other options is refused;
+rows of a version-1 journal, which has no identities, are tested again).
+The CLI keeps the journal beside ``--out`` and removes it when the results
+file is written.
 """
 from __future__ import annotations
 
@@ -232,7 +236,9 @@ def _one(item: BatchItem, opts: dict, seed: int) -> dict:
 
     row = {"file": item.path, "window": item.window, "n": None, "statistic": None, "value": None,
            "p_value": None, "method": None, "trusted": None, "reason": "", "error": "",
-           "secondary": {}, "seed": seed}
+           "secondary": {}, "seed": seed,
+           # identity before reading: a file changed meanwhile is retested on resume
+           "_input": input_identity(item)}
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
@@ -251,14 +257,50 @@ def _one(item: BatchItem, opts: dict, seed: int) -> dict:
     return row
 
 
+def file_identity(path: str) -> dict | None:
+    """What identifies a file's content: size, modification time (ns) and
+    the SHA-256 of its bytes; None if it cannot be read."""
+    import hashlib
+
+    try:
+        st = os.stat(path)
+        digest = hashlib.sha256()
+        with open(path, "rb") as fh:
+            for block in iter(lambda: fh.read(1 << 20), b""):
+                digest.update(block)
+    except (OSError, ValueError):
+        return None
+    return {"size": int(st.st_size), "mtime_ns": int(st.st_mtime_ns), "sha256": digest.hexdigest()}
+
+
+def input_identity(item: BatchItem) -> dict:
+    """Identity of everything a row was computed from: the points file and,
+    if the window reads one, the window file (see :func:`file_identity`)."""
+    from .patterns.windows import window_file
+
+    out = {"points": file_identity(points_file(item.path))}
+    try:
+        wf = window_file(item.window)
+    except NullAtlasError:
+        wf = None
+    if wf is not None:
+        out["window"] = file_identity(wf[1])
+    return out
+
+
+#: Journal format: 2 records each row's input identity (version 1 did not).
+JOURNAL_VERSION = 2
+
+
 def _journal_header(items, opts, seed):
-    return {"journal": "nullatlas-batch", "version": 1, "seed": int(seed),
+    return {"journal": "nullatlas-batch", "version": JOURNAL_VERSION, "seed": int(seed),
             "options": {k: (list(v) if isinstance(v, (list, tuple)) else v) for k, v in opts.items()},
             "files": [[it.path, it.window, it.columns] for it in items]}
 
 
-def _read_journal(path, items, opts, seed):
-    """(seed, finished rows by index) from a journal; checks it is this batch's."""
+def _read_journal(path, items, opts, seed, notify):
+    """(seed, finished rows by index) from a journal; checks it is this batch's
+    and keeps only the rows whose input files have not changed since."""
     if not os.path.exists(path):
         return seed, {}
     try:
@@ -269,18 +311,46 @@ def _read_journal(path, items, opts, seed):
         raise OptionError(f"{path}: unreadable batch journal; remove it to start afresh") from None
     if not isinstance(head, dict) or head.get("journal") != "nullatlas-batch":
         raise OptionError(f"{path}: not a nullatlas batch journal")
+    if head.get("version") not in (1, JOURNAL_VERSION):
+        raise OptionError(f"{path}: batch journal of another nullatlas version "
+                          f"({head.get('version')}); remove it to start afresh")
     want = _journal_header(items, opts, head["seed"] if seed is None else seed)
-    if head != want:
+    if {**head, "version": JOURNAL_VERSION} != want:
         raise OptionError(f"{path}: journal of a batch with other files, options or seed; "
                           "use the original ones or remove the journal")
-    done = {}
+    last = {}
     for ln in lines[1:]:
         try:
             r = json.loads(ln)
         except json.JSONDecodeError:
             break                      # a line cut by the interruption: recompute from here
-        done[int(r.pop("_index"))] = r
-    return head["seed"], done
+        last[int(r.pop("_index"))] = r          # a row tested again is written again, later
+    return head["seed"], _unchanged(path, items, last, notify)
+
+
+def _unchanged(path, items, rows, notify):
+    """The journal rows whose inputs are still what they were tested on; the
+    others (changed since, or of an older journal without identities) are
+    tested again, and ``notify`` is told so once."""
+    done, old, changed = {}, 0, []
+    for i, r in rows.items():
+        if not 0 <= i < len(items):
+            continue
+        ident = r.pop("_input", None)
+        if ident is None:
+            old += 1
+        elif ident != input_identity(items[i]):
+            changed.append(items[i].path)
+        else:
+            done[i] = r
+    if old:
+        notify(f"{path}: {old} row(s) written by an older nullatlas without the identity of "
+               "their input files; those files are tested again")
+    if changed:
+        shown = ", ".join(os.path.basename(p) for p in changed[:5])
+        notify(f"{len(changed)} file(s) changed since the interrupted run (size, time or "
+               f"content); tested again: {shown}{', ...' if len(changed) > 5 else ''}")
+    return done
 
 
 def _open_journal(path, items, opts, seed, resume):
@@ -297,14 +367,16 @@ def _open_journal(path, items, opts, seed, resume):
         raise write_error(path, exc) from None
 
 
-def _journal_row(fh, path, index, row, kept):
-    """Append one finished row, flushed and synced; on a failed write (a full
-    disk) stop with one line saying that the earlier rows are kept."""
+def _journal_row(fh, path, index, row, ident, kept):
+    """Append one finished row and its input identity, flushed and synced; on
+    a failed write (a full disk) stop with one line saying that the earlier
+    rows are kept."""
     from .atomic import write_error
     from .results import _clean
 
     try:
-        fh.write(json.dumps({**_clean(row), "_index": index}, allow_nan=False) + "\n")
+        fh.write(json.dumps({**_clean(row), "_index": index, "_input": ident},
+                            allow_nan=False) + "\n")
         fh.flush()
         os.fsync(fh.fileno())
     except OSError as exc:
@@ -316,14 +388,21 @@ def _journal_row(fh, path, index, row, kept):
 def run_batch(items: list[BatchItem], *, stats=None, method="auto", n_sims=999, seed=None,
               jobs=1, alternative="two-sided", on_duplicates="error", alpha=0.05,
               engine="fast", tables=None, progress=None, journal: str | None = None,
-              resume: bool = False, scheduler: str | None = None) -> BatchResult:
+              resume: bool = False, scheduler: str | None = None,
+              notify=None) -> BatchResult:
     """Test every item; see the module docstring.
 
     Parameters
     ----------
     journal : str, optional
-        Append finished rows to this file; with ``resume`` reuse the rows
-        already in it.
+        Append finished rows to this file, each with the identity of its
+        input files (:func:`input_identity`); with ``resume`` reuse the rows
+        already in it whose input files are unchanged (size, modification
+        time and SHA-256), and test the others again.
+    notify : callable(str), optional
+        Told, as soon as known, what the resume does differently (changed
+        files, rows of an older journal); the messages are also in
+        ``result.notes``.
     scheduler : str, optional
         Run the files on this dask.distributed scheduler (through joblib's
         Dask backend); the workers must see the files at the same paths
@@ -341,9 +420,16 @@ def run_batch(items: list[BatchItem], *, stats=None, method="auto", n_sims=999, 
     opts = {"stats": stats, "method": method, "n_sims": n_sims, "alternative": alternative,
             "on_duplicates": on_duplicates, "alpha": alpha, "engine": engine, "tables": tables}
     check_options(opts)
+    notes = []
+
+    def note(msg):
+        notes.append(msg)
+        if notify is not None:
+            notify(msg)
+
     done = {}
     if journal and resume:
-        seed, done = _read_journal(journal, items, opts, seed)
+        seed, done = _read_journal(journal, items, opts, seed, note)
     if seed is None:
         seed = int(np.random.SeedSequence().entropy % (2 ** 63))
     kids = np.random.SeedSequence(int(seed)).spawn(len(items))
@@ -356,10 +442,11 @@ def run_batch(items: list[BatchItem], *, stats=None, method="auto", n_sims=999, 
     jfh = _open_journal(journal, items, opts, seed, resume) if journal else None
 
     def finished(i, r):
+        ident = r.pop("_input", None)
         done[i] = r
         bar.update(1)
         if jfh is not None:
-            _journal_row(jfh, journal, i, r, len(done) - 1)
+            _journal_row(jfh, journal, i, r, ident, len(done) - 1)
 
     try:
         if jobs == 1 and scheduler is None:
@@ -390,6 +477,7 @@ def run_batch(items: list[BatchItem], *, stats=None, method="auto", n_sims=999, 
         r["p_bh"] = None if not np.isfinite(b) else float(b)
     res = BatchResult(rows)
     res.seed = int(seed)
+    res.notes = notes
     return res
 
 

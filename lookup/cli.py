@@ -129,7 +129,8 @@ def build_parser() -> argparse.ArgumentParser:
     b.add_argument("--out", metavar="FILE", help="results file (.csv or .json), written atomically")
     b.add_argument("--resume", action="store_true",
                    help="continue an interrupted batch with the same --out (its journal "
-                   "FILE.journal.jsonl holds the finished files)")
+                   "FILE.journal.jsonl holds the finished files; a file changed since it was "
+                   "tested, in size, time or content, is tested again)")
     b.add_argument("--stat", action="append", metavar="NAME", help="as for 'test'")
     b.add_argument("--method", default="auto", choices=["auto", "asymptotic", "mc"])
     b.add_argument("--table", action="append", metavar="FILE")
@@ -291,7 +292,8 @@ def _cmd_batch(a) -> int:
     res = run_batch(items, stats=a.stat, method=a.method, n_sims=a.sims, seed=a.seed,
                     jobs=a.jobs, alternative=a.alternative, on_duplicates=a.on_duplicates,
                     alpha=a.alpha, engine=a.engine, tables=a.table, progress=a.progress,
-                    journal=journal, resume=a.resume, scheduler=a.dask_scheduler)
+                    journal=journal, resume=a.resume, scheduler=a.dask_scheduler,
+                    notify=lambda msg: sys.stderr.write(f"{PROG}: note: {msg}\n"))
     if a.out:
         try:
             write_results(res, a.out)

@@ -249,3 +249,63 @@ def test_manifest_window_files_are_resolved_and_confined(tmp_path, monkeypatch):
     (m / "gone.csv").write_text("file,window\nnothere.npy,rect:0,0,1,1\n")
     with pytest.raises(OptionError, match="row 2: no such points file 'nothere.npy'"):
         read_manifest(str(m / "gone.csv"))
+
+
+def test_resume_retests_files_changed_after_the_kill(tmp_path, monkeypatch, capsys):
+    """Issue 13: the journal records each file's size, time and SHA-256; on
+    --resume a file changed since it was tested -- even with its size and
+    modification time put back -- is tested again, the others are not; rows
+    of an old journal without identities are all tested again (said once)."""
+    from nullatlas.lookup import batch as B
+
+    folder = tmp_path / "in"
+    _files(folder, 4)
+    args = ["batch", str(folder), "-w", "rect:0,0,1,1", "--stat", "nnmean", "--method",
+            "asymptotic", "--seed", "4", "--no-progress", "--json"]
+    out, journal = tmp_path / "run.json", tmp_path / "run.json.journal.jsonl"
+    real, calls = B._one, []
+
+    def dying(item, opts, seed):
+        if len(calls) == 3:
+            raise KeyboardInterrupt
+        calls.append(item.path)
+        return real(item, opts, seed)
+
+    monkeypatch.setattr(B, "_one", dying)
+    assert cli.main(args + ["--out", str(out)]) == 130
+    # after the kill: p0000 gets other points; p0001 other bytes of the same
+    # size, with its modification time put back
+    np.save(folder / "p0000.npy", windows.Rectangle(0, 0, 1, 1).sample(150, np.random.default_rng(9)))
+    p1 = folder / "p0001.npy"
+    st = p1.stat()
+    pts = np.load(p1)
+    pts[0] = [0.123456, 0.654321]
+    np.save(p1, pts)
+    os.utime(p1, ns=(st.st_atime_ns, st.st_mtime_ns))
+    assert p1.stat().st_size == st.st_size and p1.stat().st_mtime_ns == st.st_mtime_ns
+    calls.clear()
+    monkeypatch.setattr(B, "_one", lambda it, o, s: (calls.append(it.path), real(it, o, s))[1])
+    capsys.readouterr()
+    assert cli.main(args + ["--out", str(out), "--resume"]) == 0
+    err = capsys.readouterr().err
+    assert "2 file(s) changed" in err and "p0000.npy, p0001.npy" in err
+    assert sorted(os.path.basename(c) for c in calls) == ["p0000.npy", "p0001.npy", "p0003.npy"]
+    assert cli.main(args + ["--out", str(tmp_path / "ref.json")]) == 0   # uninterrupted, new files
+    assert json.loads(out.read_text())["rows"] == json.loads((tmp_path / "ref.json").read_text())["rows"]
+    # a version-1 journal (no identities): every row is tested again, said once
+    monkeypatch.setattr(B, "_one", dying)
+    calls.clear()
+    assert cli.main(args + ["--out", str(out)]) == 130
+    lines = [json.loads(ln) for ln in journal.read_text().splitlines()]
+    lines[0]["version"] = 1
+    for r in lines[1:]:
+        r.pop("_input")
+    journal.write_text("".join(json.dumps(r) + "\n" for r in lines))
+    calls.clear()
+    monkeypatch.setattr(B, "_one", lambda it, o, s: (calls.append(it.path), real(it, o, s))[1])
+    capsys.readouterr()
+    assert cli.main(args + ["--out", str(out), "--resume"]) == 0
+    err = capsys.readouterr().err
+    assert err.count("older nullatlas") == 1 and "3 row(s)" in err
+    assert len(calls) == 4
+    assert json.loads(out.read_text())["rows"] == json.loads((tmp_path / "ref.json").read_text())["rows"]
