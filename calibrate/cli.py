@@ -580,7 +580,7 @@ def main(argv=None) -> int:
             _print_summary(s)
         return 0
 
-    return guarded(PROG, run, "interrupted; run the same command again to resume")
+    return guarded(PROG, run, "; run the same command again to resume")
 
 
 if __name__ == "__main__":  # pragma: no cover

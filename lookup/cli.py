@@ -5,6 +5,7 @@ Every bad input ends with one line on standard error and exit status 2.
 from __future__ import annotations
 
 import argparse
+import contextlib
 import json
 import os
 import sys
@@ -44,7 +45,8 @@ BATCH_STATUS = (
     "one-line error; the others are tested, adjusted and written); 2 nothing usable: every "
     "file failed, or the batch was refused before any work (bad options, a malformed "
     "--window, a named file or manifest entry that does not exist, a glob that matches "
-    "nothing), or a results file could not be written; 130 interrupted.")
+    "nothing), or a results file could not be written; 130 interrupted (Ctrl-C), 143 "
+    "terminated (SIGTERM).")
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -418,13 +420,52 @@ def _os_error_line(exc: OSError) -> str:
     return f"{where}: {why}" if where else why
 
 
-def guarded(prog: str, run, interrupted: str = "interrupted") -> int:
+class Terminated(KeyboardInterrupt):
+    """SIGTERM, raised in the main thread so that it takes the Ctrl-C path:
+    joblib aborts its pool and ends the worker processes, temporary files
+    are removed, journals and checkpoints stay consistent."""
+
+
+@contextlib.contextmanager
+def _sigterm_as_interrupt():
+    """While a command runs, SIGTERM raises :class:`Terminated` (once: a second
+    SIGTERM kills at once, as by default); outside the main thread (where no
+    handler can be set) nothing changes.  Whatever else escapes after a
+    SIGTERM (clean-up code it interrupted, e.g. a worker pool half started)
+    is reported as the termination it comes from."""
+    import signal
+    import threading
+
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    state = {"terminated": False}
+
+    def handler(signum, frame):
+        signal.signal(signal.SIGTERM, signal.SIG_DFL)
+        state["terminated"] = True
+        raise Terminated()
+
+    old = signal.signal(signal.SIGTERM, handler)
+    try:
+        yield
+    except BaseException:
+        if state["terminated"]:
+            raise Terminated() from None
+        raise
+    finally:
+        signal.signal(signal.SIGTERM, old)
+
+
+def guarded(prog: str, run, hint: str = "") -> int:
     """Run ``run()`` the way every nullatlas command ends: an input error is one
     line on standard error and status 2; a closed output pipe (``| head``) is
-    not an error; Ctrl-C is status 130."""
+    not an error; Ctrl-C is status 130, SIGTERM status 143 (worker processes
+    ended with the command in both cases); ``hint`` follows those two messages."""
     try:
-        rc = run()
-        sys.stdout.flush()
+        with _sigterm_as_interrupt():
+            rc = run()
+            sys.stdout.flush()
         return rc
     except NullAtlasError as exc:
         sys.stderr.write(f"{prog}: error: {exc}\n")
@@ -435,8 +476,11 @@ def guarded(prog: str, run, interrupted: str = "interrupted") -> int:
     except OSError as exc:       # the environment (a file or folder that cannot be used)
         sys.stderr.write(f"{prog}: error: {_os_error_line(exc)}\n")
         return 2
+    except Terminated:
+        sys.stderr.write(f"{prog}: terminated{hint}\n")
+        return 143
     except KeyboardInterrupt:
-        sys.stderr.write(f"{prog}: {interrupted}\n")
+        sys.stderr.write(f"{prog}: interrupted{hint}\n")
         return 130
 
 
