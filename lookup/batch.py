@@ -178,11 +178,12 @@ def check_options(opts: dict) -> None:
     NullAtlasError
         One line, as for ``nullatlas test``.
     """
-    from .csrtest import _check_options
+    from .csrtest import _check_options, check_budget
     from .summaries.statistics import STATISTICS
 
     _check_options(opts["method"], opts["n_sims"], 1, opts["alternative"], opts["alpha"],
                    opts["engine"])
+    check_budget(opts.get("fallback_budget"))
     for raw in opts.get("stats") or ():
         for name in str(raw).split(","):
             name = name.strip().lower()
@@ -246,7 +247,8 @@ def _one(item: BatchItem, opts: dict, seed: int) -> dict:
                            n_sims=opts["n_sims"], seed=seed, jobs=1,
                            alternative=opts["alternative"], on_duplicates=opts["on_duplicates"],
                            alpha=opts["alpha"], columns=parse_columns(item.columns),
-                           progress=False, engine=opts["engine"], tables=opts.get("tables"))
+                           progress=False, engine=opts["engine"], tables=opts.get("tables"),
+                           fallback_budget=opts.get("fallback_budget"))
     except NullAtlasError as exc:
         row["error"] = str(exc)
         return row
@@ -389,7 +391,7 @@ def run_batch(items: list[BatchItem], *, stats=None, method="auto", n_sims=999, 
               jobs=1, alternative="two-sided", on_duplicates="error", alpha=0.05,
               engine="fast", tables=None, progress=None, journal: str | None = None,
               resume: bool = False, scheduler: str | None = None,
-              notify=None) -> BatchResult:
+              notify=None, fallback_budget: float | None = None) -> BatchResult:
     """Test every item; see the module docstring.
 
     Parameters
@@ -403,6 +405,8 @@ def run_batch(items: list[BatchItem], *, stats=None, method="auto", n_sims=999, 
         Told, as soon as known, what the resume does differently (changed
         files, rows of an older journal); the messages are also in
         ``result.notes``.
+    fallback_budget : float, optional
+        As for :func:`lookup.csr_test`, for every file.
     scheduler : str, optional
         Run the files on this dask.distributed scheduler (through joblib's
         Dask backend); the workers must see the files at the same paths
@@ -419,6 +423,8 @@ def run_batch(items: list[BatchItem], *, stats=None, method="auto", n_sims=999, 
     jobs = jobs or os.cpu_count() or 1
     opts = {"stats": stats, "method": method, "n_sims": n_sims, "alternative": alternative,
             "on_duplicates": on_duplicates, "alpha": alpha, "engine": engine, "tables": tables}
+    if fallback_budget is not None:     # only then: journals of older versions still match
+        opts["fallback_budget"] = fallback_budget
     check_options(opts)
     notes = []
 

@@ -39,6 +39,13 @@ def _float(text):
         raise argparse.ArgumentTypeError(f"'{text}' is not a number") from None
 
 
+FALLBACK_HELP = (
+    "with --method auto: the longest the Monte Carlo fallback for untrusted statistics may "
+    "take, estimated before it starts (one timed simulation; an estimate above a minute is "
+    "printed on standard error). Beyond it the fallback is not run and those statistics keep "
+    "their instant answer, flagged UNTRUSTED with the estimate in the reason (no p-value "
+    "where there is none); 0 never runs it. Default: no budget, the fallback always runs")
+
 #: Exit statuses of ``nullatlas batch`` (its --help and the README say the same).
 BATCH_STATUS = (
     "Exit status: 0 every file was tested; 1 some files failed (each failed row carries its "
@@ -75,6 +82,8 @@ def build_parser() -> argparse.ArgumentParser:
                    help="how p-values are computed: auto = instant test from the null tables "
                    "where it is trusted, Monte Carlo where it is not (default); asymptotic = "
                    "always the instant test, untrusted results flagged; mc = always Monte Carlo")
+    t.add_argument("--fallback-budget", type=_float, default=None, metavar="SECONDS",
+                   help=FALLBACK_HELP)
     t.add_argument("--null", default="csr", metavar="MODEL",
                    help="null model: csr (default), or a model such as "
                    "thomas:parents=0.05,sigma=0.3, matern, hardcore, strauss, lattice, voids, "
@@ -135,6 +144,8 @@ def build_parser() -> argparse.ArgumentParser:
                    "tested, in size, time or content, is tested again)")
     b.add_argument("--stat", action="append", metavar="NAME", help="as for 'test'")
     b.add_argument("--method", default="auto", choices=["auto", "asymptotic", "mc"])
+    b.add_argument("--fallback-budget", type=_float, default=None, metavar="SECONDS",
+                   help="as for 'test', per file")
     b.add_argument("--table", action="append", metavar="FILE")
     b.add_argument("--sims", type=_int, default=999, metavar="M")
     b.add_argument("--seed", type=_int, default=None, metavar="S",
@@ -234,7 +245,8 @@ def _cmd_test(a) -> int:
     res = csr_test(pts, window, a.stat, method=a.method, n_sims=a.sims, seed=a.seed,
                    jobs=a.jobs, alternative=a.alternative, on_duplicates=a.on_duplicates,
                    alpha=a.alpha, progress=a.progress, engine=a.engine, tables=a.table,
-                   null=a.null)
+                   null=a.null, fallback_budget=a.fallback_budget,
+                   notify=lambda msg: sys.stderr.write(f"{PROG}: note: {msg}\n"))
     res.warnings[:0] = [str(w.message) for w in caught]
     if a.plot:
         plot_result(res, a.plot)
@@ -295,6 +307,7 @@ def _cmd_batch(a) -> int:
                     jobs=a.jobs, alternative=a.alternative, on_duplicates=a.on_duplicates,
                     alpha=a.alpha, engine=a.engine, tables=a.table, progress=a.progress,
                     journal=journal, resume=a.resume, scheduler=a.dask_scheduler,
+                    fallback_budget=a.fallback_budget,
                     notify=lambda msg: sys.stderr.write(f"{PROG}: note: {msg}\n"))
     if a.out:
         try:

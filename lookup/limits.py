@@ -54,10 +54,12 @@ def duration(seconds: float) -> str:
     Examples
     --------
     >>> from nullatlas.lookup.limits import duration
-    >>> duration(42), duration(5400), duration(3 * 86400), duration(1e11)
-    ('42 s', '90 min', '3.0 days', '3.17e+03 years')
+    >>> duration(0.4), duration(42), duration(5400), duration(3 * 86400), duration(1e11)
+    ('0.4 s', '42 s', '90 min', '3.0 days', '3.17e+03 years')
     """
     s = float(seconds)
+    if s < 10:
+        return f"{s:.2g} s"
     if s < 120:
         return f"{s:.0f} s"
     if s < 2 * 3600:
