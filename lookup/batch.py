@@ -46,7 +46,7 @@ import numpy as np
 
 from .errors import NullAtlasError, OptionError, WriteError
 from .inference.adjust import benjamini_hochberg, holm
-from .patterns.readers import points_file
+from .patterns.readers import parse_columns, points_file
 
 __all__ = ["BatchItem", "BatchResult", "collect_inputs", "read_manifest", "run_batch",
            "POINT_SUFFIXES"]
@@ -206,6 +206,7 @@ def collect_inputs(inputs: list[str], window: str | None, columns: str | None = 
     if not window:
         raise OptionError("give --window for all files, or a --manifest with a window per file")
     check_window_spec(window)
+    parse_columns(columns)             # a bad --columns would fail every file
     paths = []
     for spec in inputs:
         if os.path.isdir(spec):
@@ -233,7 +234,6 @@ def _one(item: BatchItem, opts: dict, seed: int) -> dict:
     import warnings
 
     from .csrtest import csr_test
-    from .patterns.readers import parse_columns
 
     row = {"file": item.path, "window": item.window, "n": None, "statistic": None, "value": None,
            "p_value": None, "method": None, "trusted": None, "reason": "", "error": "",

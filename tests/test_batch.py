@@ -191,6 +191,7 @@ def test_batch_exit_status(tmp_path, monkeypatch, capsys):
         (["batch", folder, "-w", "rect:0,0,1", *opts], "rect needs 4 numbers"),
         (["batch", folder, "-w", "rect:0,0,1,1", "--alpha", "1.5", *opts], "alpha"),
         (["batch", folder, "-w", "rect:0,0,1,1", "--stat", "nosuch", *opts], "unknown statistic"),
+        (["batch", folder, "-w", "rect:0,0,1,1", "--columns", "x,,y", *opts], "--columns"),
         (["batch", folder, str(tmp_path / "gone.csv"), "-w", "rect:0,0,1,1", *opts],
          "gone.csv: no such points file"),
     ]
