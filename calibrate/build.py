@@ -15,14 +15,26 @@ shape) from the stored cells without simulating.
 """
 from __future__ import annotations
 
+import contextlib
 import json
 import os
 import time
 
 import numpy as np
 
-from nullatlas.lookup.errors import OptionError
+from nullatlas.lookup.atomic import check_writable
+from nullatlas.lookup.errors import OptionError, WriteError
 from nullatlas.lookup.inference.tablereader import load_cell, open_table
+from nullatlas.lookup.limits import (
+    MAX_N,
+    MAX_POINTS_TOTAL,
+    MAX_REPS,
+    duration,
+    pattern_bytes,
+    pattern_seconds,
+    refuse_beyond,
+    size,
+)
 from nullatlas.lookup.summaries import grids
 from nullatlas.lookup.summaries.statistics import STATISTICS, resolve_stats
 
@@ -267,10 +279,53 @@ def _plans(targets, ns, reps, dimension, first=None):
         for n in ns:
             if n < 10:
                 raise OptionError(f"--n values must be at least 10, got {n}")
+            refuse_beyond("--n", int(n), MAX_N,
+                          f"one pattern of {int(n):,} points needs about "
+                          f"{size(pattern_bytes(n, dimension))} of memory and at least "
+                          f"{duration(pattern_seconds(n, dimension))}")
             f = (first or {}).get((name, n), (0, chunk_size_for(n)))
             plans.append(CellPlan(dimension, name, int(n), window.spec(), float(window.kappa),
                                   int(reps), first_chunk=f[0], chunk_size=f[1]))
     return plans
+
+
+def refuse_endless(plans: list[CellPlan], reps: int) -> None:
+    """Refuse, before any work, a run that cannot finish (``lookup.limits``).
+
+    Parameters
+    ----------
+    plans : list of CellPlan
+        The cells of the run (their n are checked by ``_plans``).
+    reps : int
+        Replicates per cell asked for.
+
+    Raises
+    ------
+    OptionError
+        ``--reps`` beyond ``MAX_REPS``, or more than ``MAX_POINTS_TOTAL``
+        points simulated in all, with the time it would take at least.
+    """
+    if not plans:
+        return
+    dim = plans[0].dimension
+    secs = sum(p.reps * pattern_seconds(p.n, dim) for p in plans)
+    refuse_beyond("--reps", int(reps), MAX_REPS,
+                  f"{len(plans)} cell(s) of {int(reps):,} patterns take at least "
+                  f"{duration(secs)} of one core")
+    points = sum(p.reps * p.n for p in plans)
+    refuse_beyond("--reps x --n (points simulated)", int(points), MAX_POINTS_TOTAL,
+                  f"at least {duration(secs)} of one core")
+
+
+@contextlib.contextmanager
+def _chunks_kept(out):
+    """A write that fails mid-run (a full disk) says that the finished chunks
+    are kept and the same command resumes from them."""
+    try:
+        yield
+    except WriteError as exc:
+        raise WriteError(f"{exc}; the chunks simulated so far are kept in {_parts_dir(out)}: run "
+                         "the same command again once it can be written") from None
 
 
 def _simulate(out, plans, stat_names, root_seed, jobs, scheduler, progress, on_done):
@@ -327,8 +382,10 @@ def build_table(out, targets: list, ns: list, reps: int, *, stats=None,
     folder = os.path.dirname(os.path.abspath(out))
     if not os.path.isdir(folder):
         raise OptionError(f"{out}: the folder {folder} does not exist")
+    check_writable(out)
     stat_names = [s.name for s in resolve_stats(stats or DEFAULT_STATS[dim], dim)]
     plans = _plans(targets, sorted(set(int(n) for n in ns)), reps, dim)
+    refuse_endless(plans, reps)
     desc = {name: w.describe() for name, w in targets}
     records = []
     t0 = time.perf_counter()
@@ -337,9 +394,10 @@ def build_table(out, targets: list, ns: list, reps: int, *, stats=None,
         records.append(_cell_record(plan, desc[plan.shape], _assembled_stats(assembled), plan.reps,
                                     len(plan.chunks())))
 
-    ck, secs = _simulate(out, plans, stat_names, root_seed, jobs, scheduler, progress, done)
-    summary = _finish(out, dim, root_seed, stat_names, records, n_fit, holdout,
-                      {"simulation_seconds": float(secs)})
+    with _chunks_kept(out):
+        ck, secs = _simulate(out, plans, stat_names, root_seed, jobs, scheduler, progress, done)
+        summary = _finish(out, dim, root_seed, stat_names, records, n_fit, holdout,
+                          {"simulation_seconds": float(secs)})
     if not keep_parts:
         ck.remove()
     summary["seconds"] = time.perf_counter() - t0
@@ -386,6 +444,7 @@ def extend_table(path, reps: int, *, targets: list | None = None, ns: list | Non
         ns = ns or sorted({r["n"] for r in records})
         first = {k: (r["chunks"], r["chunk_size"]) for k, r in by.items()}
         plans = _plans(targets, sorted(set(int(n) for n in ns)), reps, dim, first)
+    refuse_endless(plans, reps)
     desc = {}
     if targets:
         desc = {name: w.describe() for name, w in targets}
@@ -405,11 +464,14 @@ def extend_table(path, reps: int, *, targets: list | None = None, ns: list | Non
             records.append(rec)
             by[key] = rec
 
-    ck, secs = _simulate(path, plans, stat_names, info.root_seed, jobs, scheduler, progress, done)
-    summary = _finish(path, dim, info.root_seed, stat_names, records,
-                      n_fit if n_fit is not None else int(info.attrs.get("model_n_fit", 200)),
-                      holdout if holdout is not None else (info.attrs.get("holdout") or None),
-                      {"simulation_seconds": float(info.attrs.get("simulation_seconds", 0.0)) + secs})
+    with _chunks_kept(path):
+        ck, secs = _simulate(path, plans, stat_names, info.root_seed, jobs, scheduler, progress,
+                             done)
+        summary = _finish(path, dim, info.root_seed, stat_names, records,
+                          n_fit if n_fit is not None else int(info.attrs.get("model_n_fit", 200)),
+                          holdout if holdout is not None else (info.attrs.get("holdout") or None),
+                          {"simulation_seconds": float(info.attrs.get("simulation_seconds", 0.0))
+                           + secs})
     if not keep_parts:
         ck.remove()
     summary["seconds"] = time.perf_counter() - t0

@@ -15,6 +15,7 @@ import sys
 
 from nullatlas.lookup.cli import _int, _Parser, guarded
 from nullatlas.lookup.errors import OptionError
+from nullatlas.lookup.limits import MAX_N, MAX_POINTS_TOTAL, MAX_REPS, MAX_SIMS
 
 PROG = "nullatlas-calibrate"
 
@@ -71,7 +72,9 @@ def _add_target_options(p, required):
                    help="your own window (rect:..., disk:..., box:..., ball:..., polygon file "
                    "or polygon:WKT); normalised to unit area/volume")
     p.add_argument("--n", type=_int_list, required=required, metavar="LIST",
-                   help="point counts of the cells, e.g. 50,100,200,500")
+                   help=f"point counts of the cells, e.g. 50,100,200,500 (10 to {MAX_N:,} each; "
+                   f"--reps times the sum of n at most {MAX_POINTS_TOTAL:.0e} points: larger runs "
+                   "are refused before any work, with the time and memory they would need)")
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -86,7 +89,8 @@ def build_parser() -> argparse.ArgumentParser:
                        description="Simulate a new null table (checkpointed; run the same "
                        "command again after an interruption to resume).")
     _add_target_options(b, True)
-    b.add_argument("--reps", type=_int, required=True, metavar="R", help="replicates per cell")
+    b.add_argument("--reps", type=_int, required=True, metavar="R",
+                   help=f"replicates per cell (20 to {MAX_REPS:,})")
     b.add_argument("--out", required=True, metavar="FILE", help="output HDF5 table")
     b.add_argument("--seed", type=_int, default=None, metavar="S",
                    help="root seed (default: the shipped tables' seed)")
@@ -103,11 +107,12 @@ def build_parser() -> argparse.ArgumentParser:
                        "given by --shape/--window and --n (creating missing cells).")
     e.add_argument("table", help="HDF5 table to extend (rewritten atomically)")
     e.add_argument("--reps", type=_int, required=True, metavar="R",
-                   help="replicates to add per cell")
+                   help=f"replicates to add per cell (20 to {MAX_REPS:,})")
     g = e.add_mutually_exclusive_group()
     g.add_argument("--shape", metavar="NAME[,NAME...]")
     g.add_argument("--window", metavar="SPEC")
-    e.add_argument("--n", type=_int_list, metavar="LIST")
+    e.add_argument("--n", type=_int_list, metavar="LIST",
+                   help=f"point counts of the cells to extend or create (10 to {MAX_N:,} each)")
     e.add_argument("--allow-shipped", action="store_true",
                    help="allow rewriting a table shipped with nullatlas (for regenerating them)")
     _add_run_options(e)
@@ -120,9 +125,10 @@ def build_parser() -> argparse.ArgumentParser:
     g = c.add_mutually_exclusive_group(required=True)
     g.add_argument("--window", metavar="SPEC", help="the window (any spec)")
     g.add_argument("--shape", metavar="NAME", help="a calibrated shape (unit area/volume)")
-    c.add_argument("--n", type=_int_list, required=True, metavar="LIST")
+    c.add_argument("--n", type=_int_list, required=True, metavar="LIST",
+                   help=f"point counts (at most {MAX_N:,} each)")
     c.add_argument("--reps", type=_int, default=1000, metavar="R",
-                   help="fresh CSR patterns per n (default: 1000)")
+                   help=f"fresh CSR patterns per n (default: 1000, at most {MAX_REPS:,})")
     c.add_argument("--stat", action="append", metavar="NAME",
                    help="statistics (default: those of 'nullatlas test')")
     c.add_argument("--table", action="append", metavar="FILE", help="your own table(s)")
@@ -131,7 +137,7 @@ def build_parser() -> argparse.ArgumentParser:
     c.add_argument("--pattern", metavar="FILE",
                    help="also compare instant and Monte Carlo p-values on this pattern")
     c.add_argument("--sims", type=_int, default=999, metavar="M",
-                   help="Monte Carlo simulations for --pattern (default: 999)")
+                   help=f"Monte Carlo simulations for --pattern (default: 999, at most {MAX_SIMS:,})")
     c.add_argument("--plot", metavar="FILE", help="QQ plots and size against n")
     _add_run_options(c)
 
@@ -144,16 +150,18 @@ def build_parser() -> argparse.ArgumentParser:
     g = pw.add_mutually_exclusive_group(required=True)
     g.add_argument("--window", metavar="SPEC")
     g.add_argument("--shape", metavar="NAME")
-    pw.add_argument("--n", type=_int, required=True, metavar="N", help="points per pattern")
+    pw.add_argument("--n", type=_int, required=True, metavar="N",
+                    help=f"points per pattern (4 to {MAX_N:,})")
     pw.add_argument("--alt", action="append", required=True, metavar="NAME[:k=v,...]",
                     help="alternative: thomas, matern, hardcore, strauss, lattice, "
                     "inhom:EXPR (repeatable)")
     pw.add_argument("--strength", type=_float_list, default=[0.0, 0.25, 0.5, 0.75, 1.0],
                     metavar="LIST", help="strengths in [0, 1] (default: 0,0.25,0.5,0.75,1)")
     pw.add_argument("--reps", type=_int, default=200, metavar="R",
-                    help="patterns per alternative and strength (default: 200)")
+                    help=f"patterns per alternative and strength (default: 200, at most {MAX_REPS:,})")
     pw.add_argument("--sims", type=_int, default=199, metavar="M",
-                    help="CSR simulations of the Monte Carlo baselines (default: 199)")
+                    help=f"CSR simulations of the Monte Carlo baselines (default: 199, at most "
+                    f"{MAX_SIMS:,})")
     pw.add_argument("--stat", action="append", metavar="NAME")
     pw.add_argument("--table", action="append", metavar="FILE")
     pw.add_argument("--seed", type=_int, default=None, metavar="S")
@@ -230,6 +238,22 @@ def _jobs(j):
     return j or cores
 
 
+def _refuse_endless(ns, reps, dim, sims=None):
+    """``check``/``power``: counts that cannot finish are refused before any
+    work (``lookup.limits``, as ``build`` and ``nullatlas test --sims``)."""
+    from nullatlas.lookup.limits import duration, pattern_bytes, pattern_seconds, refuse_beyond, size
+
+    for n in ns:
+        refuse_beyond("--n", int(n), MAX_N,
+                      f"one pattern of {int(n):,} points needs about {size(pattern_bytes(n, dim))} "
+                      f"of memory and at least {duration(pattern_seconds(n, dim))}")
+    secs = sum(reps * pattern_seconds(n, dim) for n in ns)
+    refuse_beyond("--reps", int(reps), MAX_REPS, f"at least {duration(secs)} of one core")
+    if sims is not None:
+        refuse_beyond("--sims", int(sims), MAX_SIMS,
+                      f"at least {duration(sims * pattern_seconds(max(ns), dim))} of one core")
+
+
 def _check_table_out(path):
     if not str(path).lower().endswith((".h5", ".hdf5")):
         raise OptionError(f"--out {path}: a null table is an HDF5 file; name it *.h5")
@@ -237,13 +261,22 @@ def _check_table_out(path):
 
 def _check_writable_table(path, allow=False):
     """Shipped tables are read-only to the tool: extend or refit a copy
-    (``--allow-shipped`` for the project's own regeneration)."""
+    (``--allow-shipped`` for the project's own regeneration); a table in a
+    folder where nothing can be written is refused before any work."""
+    import os
+
+    if not allow:
+        _refuse_shipped(path)
+    if os.path.isfile(path):
+        from nullatlas.lookup.atomic import check_writable
+        check_writable(path)            # the table is rewritten beside itself
+
+
+def _refuse_shipped(path):
     import os
 
     from nullatlas.lookup.inference.tablereader import shipped_tables
 
-    if allow:
-        return
     real = os.path.realpath(path)
     if any(os.path.realpath(p) == real for p in shipped_tables().values()):
         raise OptionError(f"{path} is a table shipped with nullatlas (read-only to the tool); "
@@ -316,6 +349,7 @@ def _cmd_check(a):
         from nullatlas.lookup.plots import check_plot_path
         check_plot_path(a.plot)
     w = shapes.shape_window(a.shape) if a.shape else parse_window(a.window)
+    _refuse_endless(a.n, a.reps, w.dim, a.sims if a.pattern else None)
     res = check.check_window(w, a.n, a.reps, stats=a.stat, tables=a.table,
                              seed=check.CHECK_SEED if a.seed is None else a.seed,
                              jobs=_jobs(a.jobs), progress=a.progress)
@@ -381,6 +415,7 @@ def _cmd_power(a):
     if a.n < 4:
         raise OptionError(f"--n must be at least 4 points (as for nullatlas test), got {a.n}")
     w = shapes.shape_window(a.shape) if a.shape else parse_window(a.window)
+    _refuse_endless([a.n], a.reps, w.dim, a.sims)
     res = power.power_study(w, a.n, a.alt, a.strength, a.reps, stats=a.stat, tables=a.table,
                             sims=a.sims, seed=power.POWER_SEED if a.seed is None else a.seed,
                             jobs=_jobs(a.jobs), progress=a.progress)
@@ -546,7 +581,7 @@ def main(argv=None) -> int:
             _print_summary(s)
         return 0
 
-    return guarded(PROG, run, "interrupted; run the same command again to resume")
+    return guarded(PROG, run, "; run the same command again to resume")
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -19,7 +19,7 @@ import time
 
 import numpy as np
 
-from nullatlas.lookup.atomic import atomic_path
+from nullatlas.lookup.atomic import atomic_path, write_error
 from nullatlas.lookup.errors import OptionError
 from nullatlas.lookup.patterns.windows import parse_window
 from nullatlas.lookup.summaries.statistics import resolve_stats
@@ -61,7 +61,10 @@ class Checkpoints:
     def save(self, plan: CellPlan, index: int, count: int, data: dict) -> None:
         import h5py
 
-        os.makedirs(self.folder, exist_ok=True)
+        try:
+            os.makedirs(self.folder, exist_ok=True)
+        except OSError as exc:
+            raise write_error(self.folder, exc) from None
         with atomic_path(self._path(plan.name, index)) as tmp:
             with h5py.File(tmp, "w") as fh:
                 fh.attrs["cell"] = plan.name

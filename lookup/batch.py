@@ -3,28 +3,39 @@
 Inputs are files, folders (every ``.csv``, ``.tsv``, ``.txt``, ``.dat``,
 ``.npy`` file in it, sorted by name), glob patterns, or a manifest CSV with
 columns ``file`` and ``window`` (optionally ``columns``) giving a window per
-file; manifest paths are relative to the manifest's folder and may not leave
-it (an absolute path or ``..`` is refused unless ``allow_absolute``).
+file; manifest paths -- the points files and the files that windows read
+(polygon files, raster and voxel masks) -- are relative to the manifest's
+folder and may not leave it (an absolute path or ``..`` is refused unless
+``allow_absolute``).  A file named explicitly (on the command line or in a
+manifest) that does not exist, a glob that matches nothing, a malformed
+window given for every file and bad shared options are refused before any
+work.
 
 Each file is tested by :func:`lookup.csr_test` in a worker process that
 reads it itself, so memory stays bounded by one pattern per worker whatever
 the batch size; results stream back in file order.  File i gets the i-th
 ``SeedSequence.spawn`` child of the batch seed, so results do not depend on
 the number of workers.  A file that fails (unreadable, bad window, bad
-points) is reported with its one-line error and the others are processed.
+points) is reported with its one-line error and the others are processed
+(the command's exit status is then 1; 2 if every file failed).
 The primary test's p-values are adjusted over the files that produced one:
 Holm (family-wise) and Benjamini–Hochberg (false discovery rate), see
 ``lookup.inference.adjust``.
 
 Resuming: with a ``journal`` path every finished row is appended to it (JSON
 lines, flushed and synced) after a header line with the batch's options and
-seed; a run interrupted at any point and started again with the same
-journal reuses the finished rows and tests only the rest (a journal of
-other options is refused).  The CLI keeps the journal beside ``--out`` and
-removes it when the results file is written.
+seed, together with the identity of its input files (size, modification
+time, SHA-256 of the bytes, taken before the file is read); a run
+interrupted at any point and started again with the same journal reuses the
+finished rows whose files are unchanged and tests the rest -- the files not
+reached, and those changed since (a journal of other options is refused;
+rows of a version-1 journal, which has no identities, are tested again).
+The CLI keeps the journal beside ``--out`` and removes it when the results
+file is written.
 """
 from __future__ import annotations
 
+import contextlib
 import csv
 import glob
 import json
@@ -33,8 +44,9 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .errors import NullAtlasError, OptionError
+from .errors import NullAtlasError, OptionError, WriteError
 from .inference.adjust import benjamini_hochberg, holm
+from .patterns.readers import parse_columns, points_file
 
 __all__ = ["BatchItem", "BatchResult", "collect_inputs", "read_manifest", "run_batch",
            "POINT_SUFFIXES"]
@@ -100,14 +112,88 @@ def read_manifest(path: str, allow_absolute: bool = False) -> list[BatchItem]:
     out = []
     for i, r in enumerate(rows, start=2):
         f, w = (r.get("file") or "").strip(), (r.get("window") or "").strip()
+        where = f"{path}, row {i}"
         if not f or not w:
-            raise OptionError(f"{path}, row {i}: empty 'file' or 'window'")
-        full = f if os.path.isabs(f) else os.path.join(base, f)
-        if not allow_absolute and (os.path.isabs(f) or not _inside(base, full)):
-            raise OptionError(f"{path}, row {i}: '{f}' is outside the manifest's folder "
-                              "(use --allow-absolute to permit it)")
-        out.append(BatchItem(full, w, (r.get("columns") or "").strip() or None))
+            raise OptionError(f"{where}: empty 'file' or 'window'")
+        full = _manifest_path(f, base, allow_absolute, where)
+        if not os.path.exists(points_file(full)):
+            raise OptionError(f"{where}: no such points file '{f}'")
+        out.append(BatchItem(full, _manifest_window(w, base, allow_absolute, where),
+                             (r.get("columns") or "").strip() or None))
     return out
+
+
+def _manifest_path(name: str, base: str, allow_absolute: bool, where: str) -> str:
+    """A file named in a manifest, resolved against the manifest's folder
+    ``base``; an absolute name or one that leaves the folder (``..``, a
+    symbolic link) is refused unless ``allow_absolute``."""
+    full = name if os.path.isabs(name) else os.path.join(base, name)
+    if not allow_absolute and (os.path.isabs(name) or not _inside(base, full)):
+        raise OptionError(f"{where}: '{name}' is outside the manifest's folder "
+                          "(use --allow-absolute to permit it)")
+    return full
+
+
+def _manifest_window(spec: str, base: str, allow_absolute: bool, where: str) -> str:
+    """A manifest's window with the file it reads (polygon, raster or voxel
+    mask) resolved against the manifest's folder, by the same rule as the
+    points files; specifications that read no file are unchanged."""
+    from .patterns.windows import window_file
+
+    def exists(name):
+        return os.path.exists(name if os.path.isabs(name) else os.path.join(base, name))
+
+    try:
+        parts = window_file(spec, exists)
+    except NullAtlasError:
+        return spec                    # malformed: the row gets the error
+    if parts is None:
+        return spec
+    before, name, after = parts
+    return before + _manifest_path(name, base, allow_absolute, where) + after
+
+
+def check_window_spec(spec: str) -> None:
+    """Parse a window given for every file once, before any work: a malformed
+    one would put the same error in every row.  ``bbox`` and ``hull`` are
+    estimated from each file's points, so they are checked per file."""
+    import warnings
+
+    from .patterns.windows import parse_window
+
+    if spec.strip().lower() in ("bbox", "hull"):
+        return
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        parse_window(spec)
+
+
+def check_options(opts: dict) -> None:
+    """Options shared by every file, checked once before any work (the same
+    checks as ``csr_test``; statistic names that exist in no dimension; the
+    user's tables).
+
+    Raises
+    ------
+    NullAtlasError
+        One line, as for ``nullatlas test``.
+    """
+    from .csrtest import _check_options, check_budget
+    from .summaries.statistics import STATISTICS
+
+    _check_options(opts["method"], opts["n_sims"], 1, opts["alternative"], opts["alpha"],
+                   opts["engine"])
+    check_budget(opts.get("fallback_budget"))
+    for raw in opts.get("stats") or ():
+        for name in str(raw).split(","):
+            name = name.strip().lower()
+            if name and name not in STATISTICS:
+                raise OptionError(f"unknown statistic '{name}'; choose from "
+                                  f"{', '.join(sorted(STATISTICS))}")
+    if opts.get("tables"):
+        from .inference.tablereader import open_table
+        for path in opts["tables"]:
+            open_table(path)
 
 
 def collect_inputs(inputs: list[str], window: str | None, columns: str | None = None,
@@ -119,6 +205,8 @@ def collect_inputs(inputs: list[str], window: str | None, columns: str | None = 
         return read_manifest(manifest, allow_absolute)
     if not window:
         raise OptionError("give --window for all files, or a --manifest with a window per file")
+    check_window_spec(window)
+    parse_columns(columns)             # a bad --columns would fail every file
     paths = []
     for spec in inputs:
         if os.path.isdir(spec):
@@ -133,7 +221,9 @@ def collect_inputs(inputs: list[str], window: str | None, columns: str | None = 
                 raise OptionError(f"'{spec}' matches no file")
             paths += found
         else:
-            paths.append(spec)       # a missing file is reported in its row
+            if not os.path.exists(points_file(spec)):
+                raise OptionError(f"{spec}: no such points file")
+            paths.append(spec)
     if not paths:
         raise OptionError("no input files")
     return [BatchItem(p, window, columns) for p in paths]
@@ -144,11 +234,12 @@ def _one(item: BatchItem, opts: dict, seed: int) -> dict:
     import warnings
 
     from .csrtest import csr_test
-    from .patterns.readers import parse_columns
 
     row = {"file": item.path, "window": item.window, "n": None, "statistic": None, "value": None,
            "p_value": None, "method": None, "trusted": None, "reason": "", "error": "",
-           "secondary": {}, "seed": seed}
+           "secondary": {}, "seed": seed,
+           # identity before reading: a file changed meanwhile is retested on resume
+           "_input": input_identity(item)}
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
@@ -156,7 +247,8 @@ def _one(item: BatchItem, opts: dict, seed: int) -> dict:
                            n_sims=opts["n_sims"], seed=seed, jobs=1,
                            alternative=opts["alternative"], on_duplicates=opts["on_duplicates"],
                            alpha=opts["alpha"], columns=parse_columns(item.columns),
-                           progress=False, engine=opts["engine"], tables=opts.get("tables"))
+                           progress=False, engine=opts["engine"], tables=opts.get("tables"),
+                           fallback_budget=opts.get("fallback_budget"))
     except NullAtlasError as exc:
         row["error"] = str(exc)
         return row
@@ -167,14 +259,50 @@ def _one(item: BatchItem, opts: dict, seed: int) -> dict:
     return row
 
 
+def file_identity(path: str) -> dict | None:
+    """What identifies a file's content: size, modification time (ns) and
+    the SHA-256 of its bytes; None if it cannot be read."""
+    import hashlib
+
+    try:
+        st = os.stat(path)
+        digest = hashlib.sha256()
+        with open(path, "rb") as fh:
+            for block in iter(lambda: fh.read(1 << 20), b""):
+                digest.update(block)
+    except (OSError, ValueError):
+        return None
+    return {"size": int(st.st_size), "mtime_ns": int(st.st_mtime_ns), "sha256": digest.hexdigest()}
+
+
+def input_identity(item: BatchItem) -> dict:
+    """Identity of everything a row was computed from: the points file and,
+    if the window reads one, the window file (see :func:`file_identity`)."""
+    from .patterns.windows import window_file
+
+    out = {"points": file_identity(points_file(item.path))}
+    try:
+        wf = window_file(item.window)
+    except NullAtlasError:
+        wf = None
+    if wf is not None:
+        out["window"] = file_identity(wf[1])
+    return out
+
+
+#: Journal format: 2 records each row's input identity (version 1 did not).
+JOURNAL_VERSION = 2
+
+
 def _journal_header(items, opts, seed):
-    return {"journal": "nullatlas-batch", "version": 1, "seed": int(seed),
+    return {"journal": "nullatlas-batch", "version": JOURNAL_VERSION, "seed": int(seed),
             "options": {k: (list(v) if isinstance(v, (list, tuple)) else v) for k, v in opts.items()},
             "files": [[it.path, it.window, it.columns] for it in items]}
 
 
-def _read_journal(path, items, opts, seed):
-    """(seed, finished rows by index) from a journal; checks it is this batch's."""
+def _read_journal(path, items, opts, seed, notify):
+    """(seed, finished rows by index) from a journal; checks it is this batch's
+    and keeps only the rows whose input files have not changed since."""
     if not os.path.exists(path):
         return seed, {}
     try:
@@ -185,31 +313,100 @@ def _read_journal(path, items, opts, seed):
         raise OptionError(f"{path}: unreadable batch journal; remove it to start afresh") from None
     if not isinstance(head, dict) or head.get("journal") != "nullatlas-batch":
         raise OptionError(f"{path}: not a nullatlas batch journal")
+    if head.get("version") not in (1, JOURNAL_VERSION):
+        raise OptionError(f"{path}: batch journal of another nullatlas version "
+                          f"({head.get('version')}); remove it to start afresh")
     want = _journal_header(items, opts, head["seed"] if seed is None else seed)
-    if head != want:
+    if {**head, "version": JOURNAL_VERSION} != want:
         raise OptionError(f"{path}: journal of a batch with other files, options or seed; "
                           "use the original ones or remove the journal")
-    done = {}
+    last = {}
     for ln in lines[1:]:
         try:
             r = json.loads(ln)
         except json.JSONDecodeError:
             break                      # a line cut by the interruption: recompute from here
-        done[int(r.pop("_index"))] = r
-    return head["seed"], done
+        last[int(r.pop("_index"))] = r          # a row tested again is written again, later
+    return head["seed"], _unchanged(path, items, last, notify)
+
+
+def _unchanged(path, items, rows, notify):
+    """The journal rows whose inputs are still what they were tested on; the
+    others (changed since, or of an older journal without identities) are
+    tested again, and ``notify`` is told so once."""
+    done, old, changed = {}, 0, []
+    for i, r in rows.items():
+        if not 0 <= i < len(items):
+            continue
+        ident = r.pop("_input", None)
+        if ident is None:
+            old += 1
+        elif ident != input_identity(items[i]):
+            changed.append(items[i].path)
+        else:
+            done[i] = r
+    if old:
+        notify(f"{path}: {old} row(s) written by an older nullatlas without the identity of "
+               "their input files; those files are tested again")
+    if changed:
+        shown = ", ".join(os.path.basename(p) for p in changed[:5])
+        notify(f"{len(changed)} file(s) changed since the interrupted run (size, time or "
+               f"content); tested again: {shown}{', ...' if len(changed) > 5 else ''}")
+    return done
+
+
+def _open_journal(path, items, opts, seed, resume):
+    """The journal, opened for appending rows (a new one starts with its
+    header); a failure is a WriteError naming it, before any file is tested."""
+    from .atomic import write_error
+
+    try:
+        if not (resume and os.path.exists(path)):
+            with open(path, "w", encoding="utf-8") as fh:
+                fh.write(json.dumps(_journal_header(items, opts, seed)) + "\n")
+        return open(path, "a", encoding="utf-8")
+    except OSError as exc:
+        raise write_error(path, exc) from None
+
+
+def _journal_row(fh, path, index, row, ident, kept):
+    """Append one finished row and its input identity, flushed and synced; on
+    a failed write (a full disk) stop with one line saying that the earlier
+    rows are kept."""
+    from .atomic import write_error
+    from .results import _clean
+
+    try:
+        fh.write(json.dumps({**_clean(row), "_index": index, "_input": ident},
+                            allow_nan=False) + "\n")
+        fh.flush()
+        os.fsync(fh.fileno())
+    except OSError as exc:
+        raise WriteError(f"{write_error(path, exc)}; the {kept} file(s) finished before are "
+                         "kept in it: run the same command with --resume once it can be "
+                         "written") from None
 
 
 def run_batch(items: list[BatchItem], *, stats=None, method="auto", n_sims=999, seed=None,
               jobs=1, alternative="two-sided", on_duplicates="error", alpha=0.05,
               engine="fast", tables=None, progress=None, journal: str | None = None,
-              resume: bool = False, scheduler: str | None = None) -> BatchResult:
+              resume: bool = False, scheduler: str | None = None,
+              notify=None, fallback_budget: float | None = None) -> BatchResult:
     """Test every item; see the module docstring.
 
     Parameters
     ----------
     journal : str, optional
-        Append finished rows to this file; with ``resume`` reuse the rows
-        already in it.
+        Append finished rows to this file, each with the identity of its
+        input files (:func:`input_identity`); with ``resume`` reuse the rows
+        already in it whose input files are unchanged (size, modification
+        time and SHA-256), and test the others again.
+    notify : callable(str), optional
+        Told, as soon as known, what the resume does differently (changed
+        files, rows of an older journal); the messages are also in
+        ``result.notes``.
+    fallback_budget : float, optional
+        As for :func:`lookup.csr_test`, for every file.
     scheduler : str, optional
         Run the files on this dask.distributed scheduler (through joblib's
         Dask backend); the workers must see the files at the same paths
@@ -226,9 +423,19 @@ def run_batch(items: list[BatchItem], *, stats=None, method="auto", n_sims=999, 
     jobs = jobs or os.cpu_count() or 1
     opts = {"stats": stats, "method": method, "n_sims": n_sims, "alternative": alternative,
             "on_duplicates": on_duplicates, "alpha": alpha, "engine": engine, "tables": tables}
+    if fallback_budget is not None:     # only then: journals of older versions still match
+        opts["fallback_budget"] = fallback_budget
+    check_options(opts)
+    notes = []
+
+    def note(msg):
+        notes.append(msg)
+        if notify is not None:
+            notify(msg)
+
     done = {}
     if journal and resume:
-        seed, done = _read_journal(journal, items, opts, seed)
+        seed, done = _read_journal(journal, items, opts, seed, note)
     if seed is None:
         seed = int(np.random.SeedSequence().entropy % (2 ** 63))
     kids = np.random.SeedSequence(int(seed)).spawn(len(items))
@@ -238,21 +445,14 @@ def run_batch(items: list[BatchItem], *, stats=None, method="auto", n_sims=999, 
     todo = [i for i in range(len(items)) if i not in done]
     bar = tqdm(total=len(items), initial=len(items) - len(todo), desc="patterns", unit="file",
                disable=None if progress is None else not progress, leave=False)
-    jfh = None
-    if journal:
-        if not (resume and os.path.exists(journal)):
-            with open(journal, "w", encoding="utf-8") as fh:
-                fh.write(json.dumps(_journal_header(items, opts, seed)) + "\n")
-        jfh = open(journal, "a", encoding="utf-8")
+    jfh = _open_journal(journal, items, opts, seed, resume) if journal else None
 
     def finished(i, r):
+        ident = r.pop("_input", None)
         done[i] = r
         bar.update(1)
         if jfh is not None:
-            from .results import _clean
-            jfh.write(json.dumps({**_clean(r), "_index": i}, allow_nan=False) + "\n")
-            jfh.flush()
-            os.fsync(jfh.fileno())
+            _journal_row(jfh, journal, i, r, ident, len(done) - 1)
 
     try:
         if jobs == 1 and scheduler is None:
@@ -272,7 +472,8 @@ def run_batch(items: list[BatchItem], *, stats=None, method="auto", n_sims=999, 
     finally:
         bar.close()
         if jfh is not None:
-            jfh.close()
+            with contextlib.suppress(OSError):      # a full disk was reported already
+                jfh.close()
     rows = [done[i] for i in range(len(items))]
     p = np.array([r["p_value"] if r["p_value"] is not None and np.isfinite(r["p_value"])
                   else np.nan for r in rows])
@@ -282,6 +483,7 @@ def run_batch(items: list[BatchItem], *, stats=None, method="auto", n_sims=999, 
         r["p_bh"] = None if not np.isfinite(b) else float(b)
     res = BatchResult(rows)
     res.seed = int(seed)
+    res.notes = notes
     return res
 
 

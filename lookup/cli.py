@@ -5,12 +5,14 @@ Every bad input ends with one line on standard error and exit status 2.
 from __future__ import annotations
 
 import argparse
+import contextlib
 import json
 import os
 import sys
 import warnings
 
-from .errors import NullAtlasError, OptionError
+from .errors import NullAtlasError, OptionError, WriteError
+from .limits import MAX_SIMS
 
 PROG = "nullatlas"
 
@@ -35,6 +37,23 @@ def _float(text):
         return float(text)
     except ValueError:
         raise argparse.ArgumentTypeError(f"'{text}' is not a number") from None
+
+
+FALLBACK_HELP = (
+    "with --method auto: the longest the Monte Carlo fallback for untrusted statistics may "
+    "take, estimated before it starts (one timed simulation; an estimate above a minute is "
+    "printed on standard error). Beyond it the fallback is not run and those statistics keep "
+    "their instant answer, flagged UNTRUSTED with the estimate in the reason (no p-value "
+    "where there is none); 0 never runs it. Default: no budget, the fallback always runs")
+
+#: Exit statuses of ``nullatlas batch`` (its --help and the README say the same).
+BATCH_STATUS = (
+    "Exit status: 0 every file was tested; 1 some files failed (each failed row carries its "
+    "one-line error; the others are tested, adjusted and written); 2 nothing usable: every "
+    "file failed, or the batch was refused before any work (bad options, a malformed "
+    "--window, a named file or manifest entry that does not exist, a glob that matches "
+    "nothing), or a results file could not be written; 130 interrupted (Ctrl-C), 143 "
+    "terminated (SIGTERM).")
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -63,6 +82,8 @@ def build_parser() -> argparse.ArgumentParser:
                    help="how p-values are computed: auto = instant test from the null tables "
                    "where it is trusted, Monte Carlo where it is not (default); asymptotic = "
                    "always the instant test, untrusted results flagged; mc = always Monte Carlo")
+    t.add_argument("--fallback-budget", type=_float, default=None, metavar="SECONDS",
+                   help=FALLBACK_HELP)
     t.add_argument("--null", default="csr", metavar="MODEL",
                    help="null model: csr (default), or a model such as "
                    "thomas:parents=0.05,sigma=0.3, matern, hardcore, strauss, lattice, voids, "
@@ -74,7 +95,8 @@ def build_parser() -> argparse.ArgumentParser:
                    help="your own null table (nullatlas-calibrate build); takes precedence over "
                    "the shipped tables for its window (repeatable)")
     t.add_argument("--sims", type=_int, default=999, metavar="M",
-                   help="number of null simulations of the Monte Carlo route (default: 999)")
+                   help=f"number of null simulations of the Monte Carlo route (default: 999, at "
+                   f"most {MAX_SIMS:,}: more are refused with the time they would take)")
     t.add_argument("--seed", type=_int, default=None, metavar="S",
                    help="root random seed (default: fresh; the seed used is reported)")
     t.add_argument("--jobs", "-j", type=_int, default=1, metavar="N",
@@ -107,7 +129,8 @@ def build_parser() -> argparse.ArgumentParser:
     b = sub.add_parser("batch", help="test many pattern files, with adjusted p-values",
                        description="Test many pattern files (files, folders, globs, or a "
                        "manifest CSV with a window per file) in parallel; the primary test's "
-                       "p-values are adjusted over the files (Holm, Benjamini-Hochberg).")
+                       "p-values are adjusted over the files (Holm, Benjamini-Hochberg).",
+                       epilog=BATCH_STATUS)
     b.add_argument("inputs", nargs="*", help="point files, folders or glob patterns")
     b.add_argument("--window", "-w", metavar="SPEC", help="window of every file")
     b.add_argument("--manifest", metavar="CSV",
@@ -117,9 +140,12 @@ def build_parser() -> argparse.ArgumentParser:
     b.add_argument("--out", metavar="FILE", help="results file (.csv or .json), written atomically")
     b.add_argument("--resume", action="store_true",
                    help="continue an interrupted batch with the same --out (its journal "
-                   "FILE.journal.jsonl holds the finished files)")
+                   "FILE.journal.jsonl holds the finished files; a file changed since it was "
+                   "tested, in size, time or content, is tested again)")
     b.add_argument("--stat", action="append", metavar="NAME", help="as for 'test'")
     b.add_argument("--method", default="auto", choices=["auto", "asymptotic", "mc"])
+    b.add_argument("--fallback-budget", type=_float, default=None, metavar="SECONDS",
+                   help="as for 'test', per file")
     b.add_argument("--table", action="append", metavar="FILE")
     b.add_argument("--sims", type=_int, default=999, metavar="M")
     b.add_argument("--seed", type=_int, default=None, metavar="S",
@@ -219,7 +245,8 @@ def _cmd_test(a) -> int:
     res = csr_test(pts, window, a.stat, method=a.method, n_sims=a.sims, seed=a.seed,
                    jobs=a.jobs, alternative=a.alternative, on_duplicates=a.on_duplicates,
                    alpha=a.alpha, progress=a.progress, engine=a.engine, tables=a.table,
-                   null=a.null)
+                   null=a.null, fallback_budget=a.fallback_budget,
+                   notify=lambda msg: sys.stderr.write(f"{PROG}: note: {msg}\n"))
     res.warnings[:0] = [str(w.message) for w in caught]
     if a.plot:
         plot_result(res, a.plot)
@@ -266,6 +293,9 @@ def _cmd_batch(a) -> int:
         raise OptionError(f"--out must end in .csv or .json, got '{a.out}'")
     if a.out and not os.path.isdir(os.path.dirname(os.path.abspath(a.out))):
         raise OptionError(f"--out folder does not exist: {os.path.dirname(os.path.abspath(a.out))}")
+    if a.out:
+        from .atomic import check_writable
+        check_writable(a.out)
     if a.plot:
         from .plots import check_plot_path
         check_plot_path(a.plot)
@@ -276,19 +306,47 @@ def _cmd_batch(a) -> int:
     res = run_batch(items, stats=a.stat, method=a.method, n_sims=a.sims, seed=a.seed,
                     jobs=a.jobs, alternative=a.alternative, on_duplicates=a.on_duplicates,
                     alpha=a.alpha, engine=a.engine, tables=a.table, progress=a.progress,
-                    journal=journal, resume=a.resume, scheduler=a.dask_scheduler)
+                    journal=journal, resume=a.resume, scheduler=a.dask_scheduler,
+                    fallback_budget=a.fallback_budget,
+                    notify=lambda msg: sys.stderr.write(f"{PROG}: note: {msg}\n"))
     if a.out:
-        write_results(res, a.out)
+        try:
+            write_results(res, a.out)
+        except WriteError as exc:
+            raise WriteError(f"{exc}; the results of the {len(res.rows)} file(s) are kept in "
+                             f"{journal}: run the same command with --resume once it can be "
+                             "written") from None
         os.unlink(journal)
-    if a.plot:
+    _print_batch(res, a)
+    if a.plot:                     # last: a figure that cannot be written loses no result
         from .plots import plot_batch
         plot_batch(res, a.plot, alpha=a.alpha)
+    return _batch_status(res)
+
+
+def _batch_status(res) -> int:
+    """0: every file tested; 1: some failed; 2: all failed (``BATCH_STATUS``),
+    with one line on standard error when not 0."""
+    failed, total = len(res.failed), len(res.rows)
+    if not failed:
+        return 0
+    first = res.failed[0]
+    if failed == total:
+        sys.stderr.write(f"{PROG}: error: every file failed ({total}); the first, "
+                         f"{first['file']}: {first['error']}\n")
+        return 2
+    sys.stderr.write(f"{PROG}: {failed} of {total} files failed (their rows say why); "
+                     "exit status 1\n")
+    return 1
+
+
+def _print_batch(res, a) -> None:
     if a.json:
         from .results import _clean
         json.dump({"seed": res.seed, "files": len(res.rows), "failed": len(res.failed),
                    "rows": _clean(res.rows)}, sys.stdout, indent=1, allow_nan=False)
         sys.stdout.write("\n")
-        return 0
+        return
     w = sys.stdout.write
     w(f"{len(res.rows)} files, {len(res.failed)} failed, seed {res.seed}\n")
     w(f"{'file':<36}{'n':>8}  {'statistic':<10}{'p-value':>10}{'Holm':>10}{'BH':>10}  method\n")
@@ -305,7 +363,6 @@ def _cmd_batch(a) -> int:
       "(Benjamini-Hochberg over the primary test)\n")
     if a.out:
         w(f"results written to {a.out}\n")
-    return 0
 
 
 def _table_summary(path) -> dict:
@@ -369,13 +426,59 @@ def _cmd_tables(a) -> int:
     return 0
 
 
-def guarded(prog: str, run, interrupted: str = "interrupted") -> int:
+def _os_error_line(exc: OSError) -> str:
+    """One line for an operating-system error no command turned into its own."""
+    where = exc.filename if exc.filename is not None else ""
+    why = exc.strerror or (str(exc).strip().splitlines() or [type(exc).__name__])[0]
+    return f"{where}: {why}" if where else why
+
+
+class Terminated(KeyboardInterrupt):
+    """SIGTERM, raised in the main thread so that it takes the Ctrl-C path:
+    joblib aborts its pool and ends the worker processes, temporary files
+    are removed, journals and checkpoints stay consistent."""
+
+
+@contextlib.contextmanager
+def _sigterm_as_interrupt():
+    """While a command runs, SIGTERM raises :class:`Terminated` (once: a second
+    SIGTERM kills at once, as by default); outside the main thread (where no
+    handler can be set) nothing changes.  Whatever else escapes after a
+    SIGTERM (clean-up code it interrupted, e.g. a worker pool half started)
+    is reported as the termination it comes from."""
+    import signal
+    import threading
+
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    state = {"terminated": False}
+
+    def handler(signum, frame):
+        signal.signal(signal.SIGTERM, signal.SIG_DFL)
+        state["terminated"] = True
+        raise Terminated()
+
+    old = signal.signal(signal.SIGTERM, handler)
+    try:
+        yield
+    except BaseException:
+        if state["terminated"]:
+            raise Terminated() from None
+        raise
+    finally:
+        signal.signal(signal.SIGTERM, old)
+
+
+def guarded(prog: str, run, hint: str = "") -> int:
     """Run ``run()`` the way every nullatlas command ends: an input error is one
     line on standard error and status 2; a closed output pipe (``| head``) is
-    not an error; Ctrl-C is status 130."""
+    not an error; Ctrl-C is status 130, SIGTERM status 143 (worker processes
+    ended with the command in both cases); ``hint`` follows those two messages."""
     try:
-        rc = run()
-        sys.stdout.flush()
+        with _sigterm_as_interrupt():
+            rc = run()
+            sys.stdout.flush()
         return rc
     except NullAtlasError as exc:
         sys.stderr.write(f"{prog}: error: {exc}\n")
@@ -383,8 +486,14 @@ def guarded(prog: str, run, interrupted: str = "interrupted") -> int:
     except BrokenPipeError:
         os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
         return 0
+    except OSError as exc:       # the environment (a file or folder that cannot be used)
+        sys.stderr.write(f"{prog}: error: {_os_error_line(exc)}\n")
+        return 2
+    except Terminated:
+        sys.stderr.write(f"{prog}: terminated{hint}\n")
+        return 143
     except KeyboardInterrupt:
-        sys.stderr.write(f"{prog}: {interrupted}\n")
+        sys.stderr.write(f"{prog}: interrupted{hint}\n")
         return 130
 
 

@@ -3,11 +3,13 @@ from __future__ import annotations
 
 import time
 import warnings
+from dataclasses import dataclass
 
 import numpy as np
 
 from .errors import OptionError
 from .inference import montecarlo
+from .limits import MAX_SIMS, duration, pattern_seconds, refuse_beyond
 from .patterns.readers import read_points
 from .patterns.validate import validate_pattern
 from .patterns.windows import Window, as_window
@@ -16,12 +18,10 @@ from .processes.csr import replicate_seeds
 from .results import CSRTestResult
 from .summaries.statistics import PatternSummary, evaluate, resolve_stats
 
-__all__ = ["csr_test", "METHODS", "ALTERNATIVES"]
+__all__ = ["csr_test", "METHODS", "ALTERNATIVES", "FallbackPlan", "plan_fallback",
+           "fallback_seconds"]
 
 METHODS = ("auto", "asymptotic", "mc")
-#: Largest number of null simulations accepted (about 3 h at a millisecond
-#: each on one core; the rank p-value's resolution 1/(m+1) is then 1e-7).
-MAX_SIMS = 10_000_000
 #: Workers beyond this many times the cores only add start-up time and memory.
 JOBS_PER_CORE = 4
 ALTERNATIVES = ("two-sided", "clustered", "regular")
@@ -34,10 +34,9 @@ def _check_options(method, n_sims, jobs, alternative, alpha, engine="fast"):
         raise OptionError(f"method must be one of {', '.join(METHODS)}, got '{method}'")
     if not isinstance(n_sims, (int, np.integer)) or n_sims < 1:
         raise OptionError(f"number of simulations must be a positive integer, got {n_sims}")
-    if n_sims > MAX_SIMS:
-        raise OptionError(f"{n_sims} simulations cannot finish: at even a millisecond each that "
-                          f"is {n_sims / 3.15e10:.3g} years; use at most {MAX_SIMS:,} (999 or "
-                          "9,999 are the usual choices)")
+    refuse_beyond("--sims", int(n_sims), MAX_SIMS,
+                  f"at even a millisecond each that is {duration(n_sims * 1e-3)}",
+                  " (999 or 9,999 are the usual choices)")
     if not isinstance(jobs, (int, np.integer)) or jobs < 0:
         raise OptionError(f"jobs must be 0 (all cores) or a positive integer, got {jobs}")
     if alternative not in ALTERNATIVES:
@@ -46,10 +45,156 @@ def _check_options(method, n_sims, jobs, alternative, alpha, engine="fast"):
         raise OptionError(f"alpha must lie in (0, 1), got {alpha}")
 
 
+#: A Monte Carlo fallback estimated to take longer than this (seconds) is
+#: announced through ``notify`` before it starts.
+FALLBACK_NOTE_SECONDS = 60.0
+
+
+@dataclass
+class FallbackPlan:
+    """What ``method="auto"`` does about the statistics whose instant answer
+    is not trusted.
+
+    Attributes
+    ----------
+    seconds : float
+        Estimated time of the Monte Carlo fallback (all its simulations).
+    lower_bound : bool
+        ``seconds`` is a lower bound from the per-point cost
+        (``lookup.limits``), already beyond the budget: nothing was simulated.
+    first : dict or None
+        The first null replicate, simulated to time it (kept: the fallback
+        simulates only the others).
+    skip : bool
+        The estimate exceeds the budget: the fallback is not run.
+    budget : float or None
+    sims, workers : int
+    """
+
+    seconds: float
+    lower_bound: bool
+    first: dict | None
+    skip: bool
+    budget: float | None
+    sims: int
+    workers: int
+
+    def words(self) -> str:
+        """The estimate in words, e.g. ``about 3.2 h``."""
+        return f"{'at least' if self.lower_bound else 'about'} {duration(self.seconds)}"
+
+    def messages(self, chosen, untrusted) -> list[str]:
+        """The result's warnings about the untrusted statistics."""
+        if self.skip:
+            names = ", ".join(chosen[i].name for i in untrusted)
+            return [f"Monte Carlo fallback for {names} not run: {self.sims} simulations, "
+                    f"{self.words()}, beyond --fallback-budget {self.budget:g} s; their instant "
+                    "answers are reported UNTRUSTED (no p-value where there is none)"]
+        out = []
+        for i, (r, why) in untrusted.items():
+            what = "instant test not trusted" if r is not None else "no instant test"
+            out.append(f"{chosen[i].name}: {what} ({'; '.join(why)}); Monte Carlo used instead")
+        return out
+
+
+def fallback_seconds(window, n, stats, seeds, jobs, engine, model, budget):
+    """Estimate the time of a Monte Carlo fallback before running it.
+
+    Parameters
+    ----------
+    window : Window
+    n : int
+    stats : list of Statistic
+        The statistics to simulate.
+    seeds : list of SeedSequence
+        One per replicate.
+    jobs : int
+        Worker processes.
+    engine : str
+    model : tuple or None
+        A null model of ``lookup.processes.registry`` (None: CSR).
+    budget : float or None
+        Seconds allowed; when the per-point lower bound of ``lookup.limits``
+        already exceeds it, nothing is simulated.
+
+    Returns
+    -------
+    (seconds, lower_bound, first)
+        The estimate, whether it is only the lower bound, and the first
+        replicate's statistics (timed to make the estimate; None with the
+        lower bound).
+    """
+    workers = max(1, min(int(jobs), len(seeds)))
+    lower = len(seeds) * pattern_seconds(n, window.dim) / workers
+    if budget is not None and lower > budget:
+        return lower, True, None
+    t = time.perf_counter()
+    first = montecarlo._chunk(window, n, stats, seeds[:1], engine, model)
+    return (time.perf_counter() - t) * len(seeds) / workers, False, first
+
+
+def plan_fallback(window, n, stats, seeds, jobs, engine, model, budget, notify=None):
+    """Decide whether the Monte Carlo fallback of ``method="auto"`` runs.
+
+    It runs unless its estimate (:func:`fallback_seconds`) exceeds
+    ``budget`` seconds (None: no budget, it always runs).  A run estimated
+    beyond ``FALLBACK_NOTE_SECONDS`` is announced through ``notify`` first.
+
+    Returns
+    -------
+    FallbackPlan
+    """
+    seconds, lower, first = fallback_seconds(window, n, stats, seeds, jobs, engine, model, budget)
+    workers = max(1, min(int(jobs), len(seeds)))
+    plan = FallbackPlan(seconds=float(seconds), lower_bound=lower, first=first,
+                        skip=budget is not None and seconds > budget, budget=budget,
+                        sims=len(seeds), workers=workers)
+    if notify is not None and not plan.skip and seconds > FALLBACK_NOTE_SECONDS:
+        notify(f"the instant test of {', '.join(s.name for s in stats)} is not trusted: Monte "
+               f"Carlo fallback of {plan.sims} simulations, {plan.words()} on {workers} "
+               "worker(s); --fallback-budget SECONDS caps it (the instant answers are then "
+               "kept, flagged UNTRUSTED), --jobs shortens it")
+    return plan
+
+
+def _keep_instant(results, chosen, untrusted, plan):
+    """The fallback was not run: the untrusted instant answers stay, flagged,
+    with the reason; statistics without one get no p-value."""
+    why_not = (f"Monte Carlo fallback not run: {plan.sims} simulations, {plan.words()}, beyond "
+               f"--fallback-budget {plan.budget:g} s")
+    for i, (r, why) in untrusted.items():
+        if r is None:
+            r = montecarlo.untested_result(chosen[i], why, i == 0)
+            r.reason = "; ".join(why)
+        r.trusted = False
+        r.reason = f"{r.reason}; {why_not}" if r.reason else why_not
+        results[i] = r
+
+
+def _simulate(window, n, stats, seeds, first, jobs, progress, engine, model):
+    """The null statistics of every replicate; ``first`` (replicate 0, already
+    simulated to time the fallback) is not simulated again."""
+    rest = seeds if first is None else seeds[1:]
+    sims = montecarlo.simulate_null(window, n, stats, rest, jobs=jobs, progress=progress,
+                                    engine=engine, model=model) if rest else None
+    if first is None:
+        return sims
+    if sims is None:
+        return first
+    return {k: np.concatenate([first[k], sims[k]]) for k in first}
+
+
+def check_budget(budget) -> None:
+    """Raise OptionError unless ``budget`` is None or a finite number of seconds >= 0."""
+    if budget is not None and not (isinstance(budget, (int, float, np.number))
+                                   and 0 <= float(budget) < float("inf")):
+        raise OptionError(f"--fallback-budget must be a finite number of seconds >= 0, got {budget}")
+
+
 def csr_test(points, window, stats=None, *, method="auto", n_sims=999, seed=None, jobs=1,
              alternative="two-sided", on_duplicates="error", alpha=0.05, columns=None,
              progress=False, engine="fast", tables=None, use_shipped=True,
-             null="csr") -> CSRTestResult:
+             null="csr", fallback_budget=None, notify=None) -> CSRTestResult:
     """Test a point pattern for complete spatial randomness.
 
     Parameters
@@ -98,6 +243,18 @@ def csr_test(points, window, stats=None, *, method="auto", n_sims=999, seed=None
         The null model: ``"csr"`` (default), or a model of ``lookup.processes.registry``
         (e.g. ``"thomas:parents=0.05,sigma=0.3"``) conditioned on n, simulated
         on the Monte Carlo route (the tables are for CSR only).
+    fallback_budget : float, optional
+        With ``method="auto"``: the longest the Monte Carlo fallback for the
+        untrusted statistics may take, in seconds, estimated before it
+        starts (one timed simulation, or already the per-point lower bound).
+        Beyond it the fallback is not run: those statistics keep their
+        instant answer, ``trusted=False``, with the estimate in ``reason``
+        (no p-value where there is no instant answer).  Default None: no
+        budget, the fallback always runs (never a silently untrusted answer).
+        0 never runs it.
+    notify : callable(str), optional
+        Told before a fallback estimated at more than a minute starts (the
+        command line prints it on standard error).
 
     Returns
     -------
@@ -145,6 +302,7 @@ def csr_test(points, window, stats=None, *, method="auto", n_sims=999, seed=None
     """
     t0 = time.perf_counter()
     _check_options(method, n_sims, jobs, alternative, alpha, engine)
+    check_budget(fallback_budget)
     from .processes.registry import describe, parse_model
     model = parse_model(null)
     if model[0] != "csr":
@@ -179,6 +337,7 @@ def csr_test(points, window, stats=None, *, method="auto", n_sims=999, seed=None
     summary = PatternSummary(pts, window, engine)
     observed = evaluate(summary, chosen)
     results = [None] * len(chosen)
+    untrusted = {}          # auto: index -> (untrusted instant answer or None, reasons)
     if method in ("auto", "asymptotic"):
         from .inference.asymptotic import asymptotic_result, verdict
         from .inference.nullmoments import TableSet, default_tables, null_moments
@@ -195,25 +354,36 @@ def csr_test(points, window, stats=None, *, method="auto", n_sims=999, seed=None
             ok, why = verdict(nm, st, n, window, alt, report.n_duplicates,
                               n_input=report.n_input)
             if nm is None:
-                results[i] = None if method == "auto" else montecarlo.untested_result(st, why, i == 0)
+                if method == "auto":
+                    untrusted[i] = (None, why)
+                else:
+                    results[i] = montecarlo.untested_result(st, why, i == 0)
                 continue
             r = asymptotic_result(st, observed[st.name], nm, alt, n, ok, why, primary=(i == 0),
                                   note=note)
             results[i] = r if (ok or method == "asymptotic") else None
             if not ok and method == "auto":
-                caught.append(f"{st.name}: instant test not trusted ({'; '.join(why)}); "
-                              "Monte Carlo used instead")
-    todo = [st for st, r in zip(chosen, results) if r is None]
+                untrusted[i] = (r, why)
+    todo = [i for i, r in enumerate(results) if r is None]
     if todo:
         seeds = replicate_seeds(sim_seed, int(n_sims))
-        sims = montecarlo.simulate_null(window, n, todo, seeds, jobs=int(jobs), progress=progress,
-                                        engine=engine, model=None if model[0] == "csr" else model)
-        mc = montecarlo.mc_results(observed, sims, todo, alternative=alternative, alpha=alpha)
-        it = iter(mc)
-        for i, r in enumerate(results):
-            if r is None:
-                results[i] = next(it)
-                results[i].primary = (i == 0)
+        stats_todo = [chosen[i] for i in todo]
+        mdl = None if model[0] == "csr" else model
+        first = None
+        if untrusted:                 # auto: the Monte Carlo fallback, if affordable
+            plan = plan_fallback(window, n, stats_todo, seeds, int(jobs), engine, mdl,
+                                 fallback_budget, notify)
+            caught.extend(plan.messages(chosen, untrusted))
+            if plan.skip:
+                _keep_instant(results, chosen, untrusted, plan)
+                todo = []
+            first = plan.first
+    if todo:
+        sims = _simulate(window, n, stats_todo, seeds, first, int(jobs), progress, engine, mdl)
+        mc = montecarlo.mc_results(observed, sims, stats_todo, alternative=alternative, alpha=alpha)
+        for i, r in zip(todo, mc):
+            results[i] = r
+            r.primary = (i == 0)
     if report.n_duplicates:
         caught.append(f"{report.n_duplicates} duplicate point(s) were handled by '{on_duplicates}'")
     diag = summary.diagram if any(s.needs_diagram for s in chosen) else None

@@ -24,3 +24,8 @@ class TableError(NullAtlasError):
 
 class OptionError(NullAtlasError):
     """An option value is out of range or inconsistent with the others."""
+
+
+class WriteError(NullAtlasError):
+    """A result, figure, table or journal cannot be written (a read-only
+    folder, a full disk, ...); the message names the file and the reason."""

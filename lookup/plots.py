@@ -7,7 +7,7 @@ import os
 
 import numpy as np
 
-from .atomic import atomic_path
+from .atomic import atomic_path, check_writable
 from .errors import OptionError
 
 __all__ = ["plot_result", "plot_batch", "check_plot_path", "save_figure", "PLOT_FORMATS"]
@@ -16,23 +16,27 @@ PLOT_FORMATS = (".png", ".pdf", ".svg")
 
 
 def check_plot_path(path: str) -> None:
-    """Raise OptionError unless ``path`` has a known suffix and a writable folder."""
+    """Raise OptionError unless ``path`` has a known suffix and an existing
+    folder, and WriteError (naming ``path``) unless a file can be created there."""
     ext = os.path.splitext(path)[1].lower()
     if ext not in PLOT_FORMATS:
         raise OptionError(f"--plot file must end in {', '.join(PLOT_FORMATS)}, got '{path}'")
     folder = os.path.dirname(os.path.abspath(path))
     if not os.path.isdir(folder):
         raise OptionError(f"--plot folder does not exist: {folder}")
+    check_writable(path)
 
 
 def save_figure(fig, path: str) -> str:
     """Write a matplotlib figure to ``path`` atomically (format from the suffix)
-    and close it."""
+    and close it; a failed write raises WriteError naming ``path``."""
     import matplotlib.pyplot as plt
 
-    with atomic_path(path) as tmp:
-        fig.savefig(tmp, format=os.path.splitext(path)[1].lower().lstrip("."), dpi=110)
-    plt.close(fig)
+    try:
+        with atomic_path(path) as tmp:
+            fig.savefig(tmp, format=os.path.splitext(path)[1].lower().lstrip("."), dpi=110)
+    finally:
+        plt.close(fig)
     return path
 
 

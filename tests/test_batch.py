@@ -174,3 +174,139 @@ def test_interrupted_batch_resumes_without_recomputing(tmp_path, monkeypatch, ca
     # a journal of other options is refused
     (tmp_path / "x.json.journal.jsonl").write_text(json.dumps({"journal": "nullatlas-batch"}) + "\n")
     assert cli.main(args[:-1] + ["--out", str(tmp_path / "x.json"), "--resume"]) == 2
+
+
+def test_batch_exit_status(tmp_path, monkeypatch, capsys):
+    """Issue 13: 2 for what is wrong for every file (a malformed --window, a
+    bad shared option, a missing named file), refused before any file is
+    tested; 2 when every file fails; 1 when some fail; 0 when none does."""
+    from nullatlas.lookup import batch as B
+
+    _files(tmp_path / "in", 3)
+    folder = str(tmp_path / "in")
+    opts = ["--stat", "total0", "--method", "asymptotic", "--seed", "1", "--no-progress"]
+    real, calls = B._one, []
+    monkeypatch.setattr(B, "_one", lambda it, o, s: (calls.append(it.path), real(it, o, s))[1])
+    refused = [
+        (["batch", folder, "-w", "rect:0,0,1", *opts], "rect needs 4 numbers"),
+        (["batch", folder, "-w", "rect:0,0,1,1", "--alpha", "1.5", *opts], "alpha"),
+        (["batch", folder, "-w", "rect:0,0,1,1", "--stat", "nosuch", *opts], "unknown statistic"),
+        (["batch", folder, "-w", "rect:0,0,1,1", "--columns", "x,,y", *opts], "--columns"),
+        (["batch", folder, str(tmp_path / "gone.csv"), "-w", "rect:0,0,1,1", *opts],
+         "gone.csv: no such points file"),
+    ]
+    for argv, frag in refused:
+        assert cli.main(argv) == 2, argv
+        err = capsys.readouterr().err
+        assert frag in err and err.count("\n") == 1, err
+    assert calls == []                                            # before any work
+    # every file fails (no point inside the window): 2, rows still printed as JSON
+    assert cli.main(["batch", folder, "-w", "rect:5,5,6,6", *opts, "--json"]) == 2
+    out = capsys.readouterr()
+    assert json.loads(out.out)["failed"] == 3 and "every file failed" in out.err
+    # some fail: 1, with the others tested and adjusted
+    with open(tmp_path / "in" / "p9999.csv", "w") as fh:
+        fh.write("x,y\n0.1,abc\n")
+    assert cli.main(["batch", folder, "-w", "rect:0,0,1,1", *opts, "--json"]) == 1
+    out = capsys.readouterr()
+    d = json.loads(out.out)
+    assert d["failed"] == 1 and all(r["p_holm"] is not None for r in d["rows"][:3])
+    assert "1 of 4 files failed" in out.err and out.err.count("\n") == 1
+    os.unlink(tmp_path / "in" / "p9999.csv")
+    assert cli.main(["batch", folder, "-w", "rect:0,0,1,1", *opts]) == 0
+    capsys.readouterr()
+    with pytest.raises(SystemExit):
+        cli.main(["batch", "--help"])
+    assert "1 some files failed" in " ".join(capsys.readouterr().out.split())
+
+
+def test_manifest_window_files_are_resolved_and_confined(tmp_path, monkeypatch):
+    """Issue 13: a window file named in a manifest (polygon, raster mask) is
+    found in the manifest's folder whatever the current folder, and one
+    outside it (absolute or ../) is refused unless allow_absolute, as for
+    points files; a missing points file of a manifest is refused up front."""
+    m = tmp_path / "m"
+    _files(m, 2)
+    (m / "sq.wkt").write_text("POLYGON((0 0, 1 0, 1 1, 0 1, 0 0))")
+    np.save(m / "mask.npy", np.ones((4, 4)))
+    (m / "list.csv").write_text("file,window\np0000.npy,sq.wkt\n"
+                                "p0001.npy,\"mask:mask.npy,0.25\"\n")
+    elsewhere = tmp_path / "elsewhere"
+    elsewhere.mkdir()
+    monkeypatch.chdir(elsewhere)                                   # not the manifest's folder
+    items = read_manifest(str(m / "list.csv"))
+    assert items[0].window == str(m / "sq.wkt")
+    assert items[1].window == f"mask:{m / 'mask.npy'},0.25"
+    res = run_batch(items, stats=["total0"], method="asymptotic", seed=1, progress=False)
+    assert not res.failed and all(0 < r["p_value"] <= 1 for r in res.rows)
+    outside = tmp_path / "outside.wkt"
+    outside.write_text("POLYGON((0 0, 1 0, 1 1, 0 1, 0 0))")
+    for win in (str(outside), "../outside.wkt", f"mask:{m / 'mask.npy'},0.25"):
+        (m / "bad.csv").write_text(f"file,window\np0000.npy,\"{win}\"\n")
+        with pytest.raises(OptionError, match="outside the manifest's folder"):
+            read_manifest(str(m / "bad.csv"))
+        assert read_manifest(str(m / "bad.csv"), allow_absolute=True)[0].window.endswith(
+            win.split("/")[-1])
+    (m / "gone.csv").write_text("file,window\nnothere.npy,rect:0,0,1,1\n")
+    with pytest.raises(OptionError, match="row 2: no such points file 'nothere.npy'"):
+        read_manifest(str(m / "gone.csv"))
+
+
+def test_resume_retests_files_changed_after_the_kill(tmp_path, monkeypatch, capsys):
+    """Issue 13: the journal records each file's size, time and SHA-256; on
+    --resume a file changed since it was tested -- even with its size and
+    modification time put back -- is tested again, the others are not; rows
+    of an old journal without identities are all tested again (said once)."""
+    from nullatlas.lookup import batch as B
+
+    folder = tmp_path / "in"
+    _files(folder, 4)
+    args = ["batch", str(folder), "-w", "rect:0,0,1,1", "--stat", "nnmean", "--method",
+            "asymptotic", "--seed", "4", "--no-progress", "--json"]
+    out, journal = tmp_path / "run.json", tmp_path / "run.json.journal.jsonl"
+    real, calls = B._one, []
+
+    def dying(item, opts, seed):
+        if len(calls) == 3:
+            raise KeyboardInterrupt
+        calls.append(item.path)
+        return real(item, opts, seed)
+
+    monkeypatch.setattr(B, "_one", dying)
+    assert cli.main(args + ["--out", str(out)]) == 130
+    # after the kill: p0000 gets other points; p0001 other bytes of the same
+    # size, with its modification time put back
+    np.save(folder / "p0000.npy", windows.Rectangle(0, 0, 1, 1).sample(150, np.random.default_rng(9)))
+    p1 = folder / "p0001.npy"
+    st = p1.stat()
+    pts = np.load(p1)
+    pts[0] = [0.123456, 0.654321]
+    np.save(p1, pts)
+    os.utime(p1, ns=(st.st_atime_ns, st.st_mtime_ns))
+    assert p1.stat().st_size == st.st_size and p1.stat().st_mtime_ns == st.st_mtime_ns
+    calls.clear()
+    monkeypatch.setattr(B, "_one", lambda it, o, s: (calls.append(it.path), real(it, o, s))[1])
+    capsys.readouterr()
+    assert cli.main(args + ["--out", str(out), "--resume"]) == 0
+    err = capsys.readouterr().err
+    assert "2 file(s) changed" in err and "p0000.npy, p0001.npy" in err
+    assert sorted(os.path.basename(c) for c in calls) == ["p0000.npy", "p0001.npy", "p0003.npy"]
+    assert cli.main(args + ["--out", str(tmp_path / "ref.json")]) == 0   # uninterrupted, new files
+    assert json.loads(out.read_text())["rows"] == json.loads((tmp_path / "ref.json").read_text())["rows"]
+    # a version-1 journal (no identities): every row is tested again, said once
+    monkeypatch.setattr(B, "_one", dying)
+    calls.clear()
+    assert cli.main(args + ["--out", str(out)]) == 130
+    lines = [json.loads(ln) for ln in journal.read_text().splitlines()]
+    lines[0]["version"] = 1
+    for r in lines[1:]:
+        r.pop("_input")
+    journal.write_text("".join(json.dumps(r) + "\n" for r in lines))
+    calls.clear()
+    monkeypatch.setattr(B, "_one", lambda it, o, s: (calls.append(it.path), real(it, o, s))[1])
+    capsys.readouterr()
+    assert cli.main(args + ["--out", str(out), "--resume"]) == 0
+    err = capsys.readouterr().err
+    assert err.count("older nullatlas") == 1 and "3 row(s)" in err
+    assert len(calls) == 4
+    assert json.loads(out.read_text())["rows"] == json.loads((tmp_path / "ref.json").read_text())["rows"]

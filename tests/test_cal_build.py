@@ -332,3 +332,39 @@ def test_shipped_tables_are_read_only_and_fit_refuses_an_empty_model(tmp_path, c
     assert "leaves 0 cell(s)" in capsys.readouterr().err
     assert copy.read_bytes() == before
 
+
+
+def test_runs_that_cannot_finish_are_refused_before_any_work(tmp_path, monkeypatch, capsys):
+    """Issue 13: --reps 1e14 or --n 1e11 end in one line saying what they
+    would take (time, memory), status 2, before a single chunk is simulated
+    or a file written; the caps themselves are accepted and in --help."""
+    from nullatlas.lookup.limits import MAX_N, MAX_REPS
+
+    monkeypatch.chdir(tmp_path)
+
+    def never(*a, **k):
+        raise AssertionError("simulated despite the refusal")
+
+    monkeypatch.setattr(runner, "simulate_chunk", never)
+    sq = ["--shape", "square"]
+    cases = [
+        (["build", *sq, "--n", "50", "--reps", "100000000000000", "--out", "t.h5"], "years"),
+        (["build", *sq, "--n", "100000000000", "--reps", "30", "--out", "t.h5"], "30 TB of memory"),
+        (["build", *sq, "--n", "5000000,9000000", "--reps", "10000000", "--out", "t.h5"],
+         "points simulated"),
+        (["check", *sq, "--n", "100", "--reps", "1000000000000"], "--reps"),
+        (["power", *sq, "--n", "100000000000", "--alt", "thomas"], "of memory"),
+    ]
+    for argv, frag in cases:
+        assert cli.main(argv) == 2, argv
+        err = capsys.readouterr().err
+        assert frag in err and "cannot finish" in err and err.count("\n") == 1, err
+    assert os.listdir(tmp_path) == []
+    w = shapes.shape_window("square")
+    plans = build._plans([("square", w)], [MAX_N], MAX_REPS, 2)     # the caps themselves pass
+    build.refuse_endless(plans, MAX_REPS)
+    with pytest.raises(ValueError, match="--n 10,000,001"):
+        build._plans([("square", w)], [MAX_N + 1], 20, 2)
+    with pytest.raises(SystemExit):
+        cli.main(["build", "--help"])
+    assert f"{MAX_REPS:,}" in capsys.readouterr().out

@@ -107,3 +107,91 @@ def test_dask_cluster_of_processes_survives_a_killed_worker(tmp_path, same_table
         for q in procs:
             q.kill()
             q.wait(10)
+
+
+def _children(pid):
+    """Every descendant process of ``pid`` as (pid, command line): psutil, or
+    /proc scanned by parent pid where psutil is missing."""
+    try:
+        import psutil
+    except ImportError:
+        psutil = None
+    if psutil is not None:
+        try:
+            return [(k.pid, " ".join(k.cmdline())) for k in psutil.Process(pid).children(True)]
+        except psutil.Error:
+            return []
+    parent = {}
+    for d in os.listdir("/proc"):
+        if d.isdigit():
+            try:
+                with open(f"/proc/{d}/stat") as fh:
+                    parent[int(d)] = int(fh.read().rsplit(")", 1)[1].split()[1])
+            except (OSError, IndexError, ValueError):
+                continue
+    out, todo = [], [pid]
+    while todo:
+        p = todo.pop()
+        for k, pp in parent.items():
+            if pp == p:
+                todo.append(k)
+                try:
+                    with open(f"/proc/{k}/cmdline", "rb") as fh:
+                        out.append((k, fh.read().replace(b"\0", b" ").decode(errors="replace")))
+                except OSError:
+                    out.append((k, ""))
+    return out
+
+
+def _running(pid):
+    """True while ``pid`` is a live process (not a zombie waiting to be reaped)."""
+    try:
+        with open(f"/proc/{pid}/stat") as fh:
+            return fh.read().rsplit(")", 1)[1].split()[0] != "Z"
+    except OSError:
+        return False
+
+
+def test_sigterm_ends_the_worker_processes_too(tmp_path):
+    """Issue 13: SIGTERM to 'nullatlas test --jobs 2' in the middle of a long
+    Monte Carlo run takes the Ctrl-C path: the command ends promptly with
+    status 143 and one line, and none of its worker processes is left
+    running (they were left orphaned, computing on, before)."""
+    err = open(tmp_path / "stderr.txt", "w+")
+    p = subprocess.Popen([sys.executable, "-m", "nullatlas.lookup", "test",
+                          os.path.join(os.path.dirname(os.path.dirname(__file__)), "examples",
+                                       "wafer_lot_random.csv"),
+                          "-w", "disk:0,0,150", "--method", "mc", "--sims", "200000", "--jobs",
+                          "2", "--seed", "1", "--no-progress"],
+                         stdout=subprocess.DEVNULL, stderr=err, cwd=tmp_path)
+    kids = []
+    try:
+        t0 = time.time()
+        while time.time() - t0 < 120 and p.poll() is None:
+            kids = _children(p.pid)
+            if sum("loky" in cmd and "resource_tracker" not in cmd for _, cmd in kids) >= 2:
+                break
+            time.sleep(0.1)
+        assert sum("resource_tracker" not in cmd for _, cmd in kids) >= 2, kids   # workers run
+        time.sleep(1.0)                                   # simulations under way
+        kids = _children(p.pid)
+        p.send_signal(signal.SIGTERM)
+        assert p.wait(60) == 143
+        err.seek(0)
+        assert err.read().strip() == "nullatlas: terminated"
+        t1 = time.time()                                  # helpers (resource trackers) see
+        while time.time() - t1 < 10 and any(_running(k) for k, _ in kids):   # the parent gone
+            time.sleep(0.1)
+        assert [k for k, _ in kids if _running(k)] == []
+    finally:                                              # never leave a process behind
+        left = [k for k, _ in _children(p.pid) + kids if _running(k)] if p.poll() is None \
+            else [k for k, _ in kids if _running(k)]
+        if p.poll() is None:
+            p.kill()
+            p.wait(30)
+        for k in left:
+            try:
+                os.kill(k, signal.SIGKILL)
+            except OSError:
+                pass
+        err.close()

@@ -306,3 +306,79 @@ def test_monte_carlo_z_is_not_made_of_rounding():
                  seed=3)
     z = np.asarray(r.primary.curve["z"], float)
     assert np.all(~np.isfinite(z) | (np.abs(z) < 1e6))
+
+
+def test_long_monte_carlo_fallback_is_announced_and_can_be_capped(monkeypatch, capsys):
+    """Issue 13: before a Monte Carlo fallback of --method auto, its time is
+    estimated (monkeypatched here to 2 h); without a budget it runs and is
+    announced first; beyond --fallback-budget it is not run and the
+    untrusted statistics keep their instant answers, flagged, with the
+    estimate in the reason; trusted statistics never pay for an estimate."""
+    from nullatlas.lookup import csrtest
+    from nullatlas.lookup.cli import main
+    from nullatlas.lookup.inference import montecarlo
+
+    w = windows.Rectangle(0, 0, 1, 1)
+    pts = w.sample(300, np.random.default_rng(5))
+    stats = ["total0", "nnmean"]
+    monkeypatch.setattr(csrtest, "fallback_seconds", lambda *a: (7200.0, False, None))
+    real, simulated = montecarlo.simulate_null, []
+    monkeypatch.setattr(montecarlo, "simulate_null",
+                        lambda *a, **k: (simulated.append(len(a[3])), real(*a, **k))[1])
+    notes = []
+    # 'bbox' (estimated from the data): no instant answer is trusted
+    capped = csr_test(pts, "bbox", stats, n_sims=19, seed=1, fallback_budget=600,
+                      notify=notes.append)
+    assert simulated == [] and notes == []
+    for r in capped.results:
+        assert not r.trusted and r.method == "asymptotic-normal" and 0 < r.pvalue <= 1
+        assert "fallback not run" in r.reason and "2.0 h" in r.reason and "600 s" in r.reason
+    assert any("not run" in m and "total0, nnmean" in m for m in capped.warnings)
+    ran = csr_test(pts, "bbox", stats, n_sims=19, seed=1, notify=notes.append)   # default
+    assert simulated == [19] and [r.method for r in ran.results] == ["mc-rank"] * 2
+    assert len(notes) == 1 and "2.0 h" in notes[0] and "--fallback-budget" in notes[0]
+    assert all(r.trusted for r in ran.results)
+    simulated.clear()
+    roomy = csr_test(pts, "bbox", stats, n_sims=19, seed=1, fallback_budget=3 * 3600)
+    assert simulated == [19] and [r.pvalue for r in roomy.results] == [r.pvalue for r in ran.results]
+    # trusted instant answers: no estimate, no simulation
+    monkeypatch.setattr(csrtest, "fallback_seconds", lambda *a: pytest.fail("estimated"))
+    simulated.clear()
+    known = csr_test(w.sample(2000, np.random.default_rng(6)), w, stats, seed=1,
+                     fallback_budget=0)
+    assert simulated == [] and all(r.trusted for r in known.results)
+    # the command line: the option, the note on stderr, valid JSON
+    monkeypatch.setattr(csrtest, "fallback_seconds", lambda *a: (7200.0, False, None))
+    f = os.path.join(os.path.dirname(__file__), "..", "examples", "wafer_lot_random.csv")
+    args = ["test", f, "-w", "bbox", "--stat", "nnmean", "--sims", "19", "--seed", "2", "--json"]
+    assert main(args + ["--fallback-budget", "60"]) == 0
+    out = capsys.readouterr()
+    d = json.loads(out.out)
+    assert d["results"][0]["trusted"] is False and "fallback not run" in d["results"][0]["reason"]
+    assert main(args) == 0
+    out = capsys.readouterr()
+    assert json.loads(out.out)["results"][0]["method"] == "mc-rank"
+    assert "note:" in out.err and "2.0 h" in out.err
+    assert main(args + ["--fallback-budget", "-1"]) == 2
+    assert "--fallback-budget" in capsys.readouterr().err
+
+
+def test_fallback_estimate_keeps_its_replicate_and_the_lower_bound_simulates_nothing(monkeypatch):
+    """The estimate times the first null replicate and keeps it: the fallback
+    equals --method mc with the same seed (for any --jobs); a budget below the
+    per-point lower bound is decided without simulating anything."""
+    from nullatlas.lookup import csrtest
+    from nullatlas.lookup.inference import montecarlo
+
+    w = windows.Rectangle(0, 0, 1, 1)
+    pts = w.sample(200, np.random.default_rng(8))
+    mc = csr_test(pts, "bbox", ["nnmean", "euler"], method="mc", n_sims=19, seed=4)
+    for jobs in (1, 2):
+        auto = csr_test(pts, "bbox", ["nnmean", "euler"], n_sims=19, seed=4, jobs=jobs,
+                        fallback_budget=1e9)
+        assert [r.pvalue for r in auto.results] == [r.pvalue for r in mc.results]
+        assert [r.null_mean for r in auto.results] == [r.null_mean for r in mc.results]
+    monkeypatch.setattr(montecarlo, "_chunk", lambda *a, **k: pytest.fail("simulated"))
+    plan = csrtest.plan_fallback(w, 10_000, resolve_stats(["nnmean"], 2),
+                                 np.random.SeedSequence(1).spawn(999), 1, "fast", None, 1.0)
+    assert plan.skip and plan.lower_bound and plan.first is None and plan.seconds > 1.0

@@ -20,7 +20,7 @@ import numpy as np
 
 from ..errors import PointsError
 
-__all__ = ["read_points", "parse_columns"]
+__all__ = ["read_points", "parse_columns", "points_file"]
 
 _H5_SUFFIX = re.compile(r"^(.*\.(?:h5|hdf5|hdf))(?::(.*))?$", re.IGNORECASE)
 
@@ -237,6 +237,14 @@ def read_points(source, columns=None) -> np.ndarray:
                               f"({str(exc).splitlines()[0][:80]})") from None
         return _read_array(arr, path, columns)
     return _read_text(path, columns)
+
+
+def points_file(source: str) -> str:
+    """The file that holds the points of ``source`` (``FILE.h5:/dataset`` ->
+    ``FILE.h5``; any other path is itself)."""
+    path = os.fspath(source)
+    m = _H5_SUFFIX.match(path)
+    return m.group(1) if m else path
 
 
 def _read_hdf5(path, dataset, columns):

@@ -41,6 +41,7 @@ __all__ = [
     "mask_window",
     "parse_window",
     "estimate_window",
+    "window_file",
 ]
 
 
@@ -1454,8 +1455,12 @@ def _read_image(path: str, dim: int) -> np.ndarray:
         raise WindowError(f"cannot read mask file {path!r}: {msg}") from None
 
 
-def _file_and_numbers(spec: str, rest: str, counts: tuple[int, ...], syntax: str):
-    """Split ``FILE,a,b,...`` from the right: the file name may hold commas."""
+def _file_and_numbers(spec: str, rest: str, counts: tuple[int, ...], syntax: str,
+                      exists=os.path.exists):
+    """Split ``FILE,a,b,...`` from the right: the file name may hold commas.
+
+    ``exists`` tells whether a file name exists (resolved as the caller
+    resolves it)."""
     parts = rest.split(",")
     for k in counts:
         if len(parts) > k and parts[0].strip():
@@ -1465,10 +1470,57 @@ def _file_and_numbers(spec: str, rest: str, counts: tuple[int, ...], syntax: str
                 continue
             path = ",".join(parts[:-k]).strip()
             head = path.split(",")[0]
-            if not os.path.exists(path) and head != path and os.path.exists(head):
+            if not exists(path) and head != path and exists(head):
                 break              # FILE followed by a wrong count of numbers
             return path, vals
     raise WindowError(f"window '{spec}': expected {syntax}")
+
+
+_MASK_COUNTS = {"mask": ((3, 1), "mask:FILE,PIXEL[,X0,Y0]"),
+                "voxels": ((4, 1), "voxels:FILE.npy,VOXEL[,X0,Y0,Z0]")}
+
+
+def window_file(spec: str, exists=os.path.exists) -> tuple[str, str, str] | None:
+    """The file a window specification reads, if any, split out of it.
+
+    Parameters
+    ----------
+    spec : str
+        A specification of :func:`parse_window`.
+    exists : callable, optional
+        Whether a file name exists (a manifest resolves names against its
+        own folder); used only to split ``mask:FILE,...`` names that hold
+        commas.
+
+    Returns
+    -------
+    (before, file, after) or None
+        ``before + file + after`` rebuilds the specification, for a polygon
+        file (``.geojson``/``.json``/``.wkt``), a raster mask or a voxel
+        mask; None for specifications that read no file.
+
+    Examples
+    --------
+    >>> from nullatlas.lookup.patterns.windows import window_file
+    >>> window_file("mask:maps/die.png,0.5,10,20", exists=lambda p: p == "maps/die.png")
+    ('mask:', 'maps/die.png', ',0.5,10,20')
+    >>> window_file("outline.wkt"), window_file("disk:0,0,1")
+    (('', 'outline.wkt', ''), None)
+    """
+    spec = spec.strip()
+    head, _, rest = spec.partition(":")
+    key = head.lower()
+    if key in _MASK_COUNTS and rest:
+        counts, syntax = _MASK_COUNTS[key]
+        path, vals = _file_and_numbers(spec, rest, counts, syntax, exists)
+        before = spec[:len(head) + 1]
+        tail = rest.split(",")[-len(vals):]
+        return before, path, "," + ",".join(tail)
+    if key in _NUMERIC or key in ("torus", "polygon", "bbox", "hull"):
+        return None
+    if os.path.splitext(spec)[1].lower() in (".geojson", ".json", ".wkt"):
+        return "", spec, ""
+    return None
 
 
 def _parse_mask(spec: str, key: str, rest: str) -> Window:
