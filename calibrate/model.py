@@ -484,46 +484,38 @@ def fit_extreme_quantiles(cells: list[dict], d: int, n_fit: int = 100) -> dict:
             "chi2": chi2, "cells": [c.get("shape") for c in use], "model": "quantile"}
 
 
+def _exclude_shapes(fit_fn, cells: list[dict], min_shapes: int) -> dict:
+    """Refit ``fit_fn(cells)`` (a dict with standardised ``resid``, cells x
+    levels, and the ``cells``' shapes), leaving out whole shapes one at a time
+    by the rule of :func:`fit_geomodel_robust`; the fit carries ``excluded``."""
+    excluded = []
+    while True:
+        fit = fit_fn([c for c in cells if c.get("shape") not in excluded])
+        r2 = fit["resid"] ** 2
+        shapes = sorted(set(fit["cells"]))
+        msr = {sh: float(np.nanmean(r2[[i for i, s in enumerate(fit["cells"]) if s == sh]]))
+               for sh in shapes}
+        fit["excluded"] = list(excluded)
+        if np.nanmedian(r2) <= EXCLUDE_CHI2 or len(shapes) <= min_shapes:
+            return fit
+        worst = max(msr, key=msr.get)
+        others = [v for k, v in msr.items() if k != worst]
+        if msr[worst] <= EXCLUDE_FACTOR * float(np.median(others)):
+            return fit
+        excluded.append(worst)
+
+
 def fit_extreme_quantiles_robust(cells: list[dict], d: int, n_fit: int = 100,
                                  min_shapes: int = 4) -> dict:
     """:func:`fit_extreme_quantiles` leaving out shapes for which the model
     does not hold (a window's own hole is the largest loop of every pattern
     in it), by the rule of :func:`fit_geomodel_robust`.  Returns the fit dict
     with ``excluded`` (list of shapes)."""
-    excluded = []
-    while True:
-        fit = fit_extreme_quantiles([c for c in cells if c.get("shape") not in excluded], d, n_fit)
-        r2 = fit["resid"] ** 2
-        shapes = sorted(set(fit["cells"]))
-        msr = {sh: float(np.nanmean(r2[[i for i, s in enumerate(fit["cells"]) if s == sh]]))
-               for sh in shapes}
-        fit["excluded"] = list(excluded)
-        if np.nanmedian(r2) <= EXCLUDE_CHI2 or len(shapes) <= min_shapes:
-            return fit
-        worst = max(msr, key=msr.get)
-        others = [v for k, v in msr.items() if k != worst]
-        if msr[worst] <= EXCLUDE_FACTOR * float(np.median(others)):
-            return fit
-        excluded.append(worst)
+    return _exclude_shapes(lambda cs: fit_extreme_quantiles(cs, d, n_fit), cells, min_shapes)
 
 
 def fit_extreme_geomodel_robust(cells: list[dict], n_fit: int = 100, min_shapes: int = 4):
-    """:func:`fit_extreme_geomodel` leaving out shapes for which the
-    exceedance model does not hold (a window's own hole is the largest loop
-    of every pattern in it), by the rule of :func:`fit_geomodel_robust`.
-    Returns the fit dict with ``excluded`` (list of shapes)."""
-    excluded = []
-    while True:
-        fit = fit_extreme_geomodel([c for c in cells if c.get("shape") not in excluded], n_fit)
-        r2 = fit["resid"] ** 2
-        shapes = sorted(set(fit["cells"]))
-        msr = {sh: float(np.nanmean(r2[[i for i, s in enumerate(fit["cells"]) if s == sh]]))
-               for sh in shapes}
-        fit["excluded"] = list(excluded)
-        if np.nanmedian(r2) <= EXCLUDE_CHI2 or len(shapes) <= min_shapes:
-            return fit
-        worst = max(msr, key=msr.get)
-        others = [v for k, v in msr.items() if k != worst]
-        if msr[worst] <= EXCLUDE_FACTOR * float(np.median(others)):
-            return fit
-        excluded.append(worst)
+    """:func:`fit_extreme_geomodel` (the exceedance model of earlier tables)
+    leaving out shapes for which it does not hold, by the rule of
+    :func:`fit_geomodel_robust`.  Returns the fit dict with ``excluded``."""
+    return _exclude_shapes(lambda cs: fit_extreme_geomodel(cs, n_fit), cells, min_shapes)
