@@ -199,8 +199,9 @@ def csr_test(points, window, stats=None, *, method="auto", n_sims=999, seed=None
 
     Parameters
     ----------
-    points : ndarray of shape (n, d) or path
-        Coordinates, or a file readable by :func:`read_points`.
+    points : ndarray of shape (n, d), DataFrame or path
+        Coordinates, a pandas DataFrame (``columns`` picks the coordinates),
+        or a file readable by :func:`read_points`.
     window : Window, shapely Polygon/MultiPolygon, or str
         The observation window, a polygon, or a specification (see
         :func:`~nullatlas.lookup.patterns.windows.parse_window`).
@@ -228,7 +229,7 @@ def csr_test(points, window, stats=None, *, method="auto", n_sims=999, seed=None
     alpha : float
         Level of the envelopes and of the plain-text verdict.
     columns : list, optional
-        Coordinate columns when ``points`` is a file.
+        Coordinate columns when ``points`` is a file or a pandas DataFrame.
     progress : bool or None
         Progress bar on standard error (None: only on a terminal).
     engine : {"fast", "gudhi"}
