@@ -43,3 +43,29 @@ def test_power_figure_is_a_grid_with_one_legend_outside_and_separable_lines(tmp_
     assert len({ln.get_marker() for ln in at_one}) == len(STATS)
     out = tmp_path / "power.png"
     assert power.plot_power(fake_power(), str(out)) == str(out) and out.stat().st_size > 1000
+
+
+def test_fit_figure_draws_the_full_model_counts_overflow_and_names_the_shapes():
+    from nullatlas.calibrate.modelplot import RESID_LIMIT, plot_model
+    from nullatlas.lookup.inference.tablereader import load_cell, load_model, open_table, shipped_tables
+
+    table = shipped_tables()[2]
+    info = open_table(table)
+    model = load_model(table)
+    fig = plot_model(table)
+    left, _, right = [ax for ax in fig.axes]
+    marks = [ln for ln in left.lines if ln.get_gid() == "model-nnmean-0"][0]
+    obs = np.array([float(load_cell(table, c.name)["nnmean"]["mean"][0]) for c in info.cells])
+    pred = np.asarray(marks.get_ydata(), float)
+    coef = np.asarray(model["nnmean"]["mean_coef"])[0]
+    full = np.array([coef @ [1, c.kappa * c.n ** -0.5, c.n ** -1.0] for c in info.cells])
+    assert np.allclose(pred, full)
+    assert (obs < pred).any() and (obs > pred).any()          # cells on both sides of the fit
+    res = np.concatenate([np.ravel(v["mean_resid"]) for v in model.values()
+                          if isinstance(v, dict) and "mean_resid" in v])
+    res = res[np.isfinite(res)]
+    text = right.get_legend().get_texts()[0].get_text()
+    assert f"{int((res < -RESID_LIMIT).sum())} below" in text
+    assert f"{int((res > RESID_LIMIT).sum())} above" in text
+    names = {t.get_text() for leg in fig.legends for t in leg.get_texts()}
+    assert set(info.shapes()) <= names
