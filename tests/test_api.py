@@ -105,3 +105,52 @@ def test_plot_functions_are_exported_and_need_no_file(result):
     for name in ("plot_result", "plot_diagram", "plot_curve", "plot_scalars", "plot_batch"):
         assert name in nullatlas.__all__
     plt.close("all")
+
+
+class _FakeNotebookBar:
+    made = []
+
+    def __init__(self, total, desc, unit, **kw):
+        self.total, self.n = total, 0
+        _FakeNotebookBar.made.append(self)
+
+    def update(self, k):
+        self.n += k
+
+    def close(self):
+        pass
+
+
+def test_monte_carlo_in_a_notebook_shows_the_notebook_bar(monkeypatch, square_points):
+    import inspect
+
+    import tqdm.notebook
+
+    from nullatlas.lookup import progressbar
+    assert inspect.signature(nullatlas.csr_test).parameters["progress"].default is None
+    monkeypatch.setattr(progressbar, "in_notebook", lambda: True)
+    monkeypatch.setattr(tqdm.notebook, "tqdm", _FakeNotebookBar)
+    _FakeNotebookBar.made.clear()
+    nullatlas.csr_test(square_points, nullatlas.Rectangle(0, 0, 1, 1), stats=["nnmean"], method="mc",
+                       n_sims=5, seed=1)
+    assert [(b.total, b.n) for b in _FakeNotebookBar.made] == [(5, 5)]
+
+
+def test_notebook_without_widgets_falls_back_to_the_text_bar(monkeypatch):
+    import tqdm.notebook
+    import tqdm.std
+
+    from nullatlas.lookup import progressbar
+
+    def no_widgets(*a, **k):
+        raise ImportError("IProgress not found")
+
+    monkeypatch.setattr(progressbar, "in_notebook", lambda: True)
+    monkeypatch.setattr(tqdm.notebook, "tqdm", no_widgets)
+    bar = progressbar.progress_bar(3, "null simulations", "sim", None)
+    assert type(bar) is tqdm.std.tqdm and not bar.disable
+    bar.close()
+    monkeypatch.setattr(progressbar, "in_notebook", lambda: False)
+    bar = progressbar.progress_bar(3, "null simulations", "sim", None)       # pytest: no terminal
+    assert bar.disable
+    assert not progressbar.progress_bar(3, "x", "y", True).disable
