@@ -144,36 +144,87 @@ def power_study(window, n: int, alternatives: list[str], strengths, reps: int, *
             "seed": int(seed), "alpha": alpha, "rows": rows}
 
 
-def plot_power(res: dict, path: str) -> str:
-    """Power against strength, one panel per alternative, one line per statistic."""
-    import matplotlib
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
+_MARKERS = "osD^v<>PXh*p"
 
-    from nullatlas.lookup.plots import check_plot_path, save_figure
 
-    check_plot_path(path)
+def _dodge(strengths: list, k: int) -> float:
+    """Horizontal offset between neighbouring statistics: 2.5% of the
+    strength range, so that lines on top of each other (power 1) stay apart."""
+    span = (max(strengths) - min(strengths)) if len(strengths) > 1 else 1.0
+    return 0.025 * span if k > 1 else 0.0
+
+
+def _power_panel(ax, res: dict, alt: str, stats: list, dx: float) -> None:
+    """One alternative: power against strength, one dodged line per statistic."""
+    for j, s in enumerate(stats):
+        rs = sorted((r for r in res["rows"] if r["alternative"] == alt and r["statistic"] == s),
+                    key=lambda r: r["strength"])
+        off = (j - (len(stats) - 1) / 2) * dx
+        x = [r["strength"] + off for r in rs]
+        y = [r["power"] for r in rs]
+        lo = [max(0.0, r["power"] - r["ci"][0]) for r in rs]
+        hi = [max(0.0, r["ci"][1] - r["power"]) for r in rs]
+        ls = "-" if rs and rs[0]["instant"] else "--"
+        ax.errorbar(x, y, yerr=[lo, hi], ls=ls, marker=_MARKERS[j % len(_MARKERS)], ms=4, capsize=2,
+                    lw=1.1, label=s + ("" if not rs or rs[0]["instant"] else " (baseline)"),
+                    color=f"C{j % 10}", mfc="none" if j % 2 else f"C{j % 10}")
+    ax.axhline(res["alpha"], color="k", lw=0.8, ls=":")
+    ax.set_ylim(-0.03, 1.05)
+    ax.set_title(alt, fontsize=9)
+
+
+def plot_power(res: dict, path: str | None = None):
+    """Power against strength: a grid of panels (3 per row), one per
+    alternative, one line per statistic, one legend below all panels.
+
+    Lines of different statistics are told apart by colour, marker and (Monte
+    Carlo baselines) dashes, and are dodged sideways by a small offset so that
+    lines lying on each other (e.g. at power 1) all stay visible.
+
+    Parameters
+    ----------
+    res : dict
+        The result of :func:`power_study`.
+    path : str, optional
+        Write the figure here (.png/.pdf/.svg) and return the path; without
+        it, return the Figure.
+
+    Returns
+    -------
+    str or matplotlib.figure.Figure
+    """
+    from nullatlas.lookup.plots import new_figure, save_figure
+
     alts = list(dict.fromkeys(r["alternative"] for r in res["rows"]))
     stats = list(dict.fromkeys(r["statistic"] for r in res["rows"]))
-    fig, axes = plt.subplots(1, len(alts), figsize=(4.6 * len(alts), 4), squeeze=False)
-    for ax, a in zip(axes[0], alts):
-        for j, s in enumerate(stats):
-            rs = sorted((r for r in res["rows"] if r["alternative"] == a and r["statistic"] == s),
-                        key=lambda r: r["strength"])
-            x = [r["strength"] for r in rs]
-            y = [r["power"] for r in rs]
-            lo = [max(0.0, r["power"] - r["ci"][0]) for r in rs]
-            hi = [max(0.0, r["ci"][1] - r["power"]) for r in rs]
-            ls = "-" if rs and rs[0]["instant"] else "--"
-            ax.errorbar(x, y, yerr=[lo, hi], ls=ls, marker="o", ms=3, capsize=2, label=s,
-                        color=f"C{j % 10}")
-        ax.axhline(res["alpha"], color="k", lw=0.8, ls=":")
-        ax.set_ylim(-0.02, 1.02)
-        ax.set_xlabel("strength (share of structured points)")
+    strengths = sorted({r["strength"] for r in res["rows"]})
+    ncol = min(3, len(alts))
+    nrow = -(-len(alts) // ncol)
+    spare = nrow * ncol > len(alts)          # the legend goes into an empty slot, else below
+    legend_h = 0.0 if spare else 0.3 * -(-len(stats) // 3) + 0.3
+    fig = new_figure(path, (4.4 * ncol, 3.3 * nrow + legend_h + 0.4))
+    axes = fig.subplots(nrow, ncol, squeeze=False, sharex=True, sharey=True)
+    dx = _dodge(strengths, len(stats))
+    for ax, a in zip(axes.ravel(), alts):
+        _power_panel(ax, res, a, stats, dx)
+    for ax in axes.ravel()[len(alts):]:
+        ax.set_visible(False)
+    for ax in axes[:, 0]:
         ax.set_ylabel(f"power at alpha = {res['alpha']:g}")
-        ax.set_title(a, fontsize=9)
-    axes[0][-1].legend(fontsize=7, loc="lower right")
-    fig.suptitle(f"power, n = {res['n']}, window {res['window']['kind']}, {res['reps']} patterns "
-                 "per point (solid: instant tests, dashed: Monte Carlo baselines)", fontsize=9)
-    fig.tight_layout()
-    return save_figure(fig, path)
+    for k, ax in enumerate(axes.ravel()[:len(alts)]):
+        if k + ncol >= len(alts):                    # lowest panel of its column
+            ax.set_xlabel("strength (share of structured points)")
+            ax.xaxis.set_tick_params(labelbottom=True)
+    fig.suptitle(f"power, n = {res['n']}, window {res['window']['kind']}, {res['reps']} patterns per "
+                 f"point, 95% Wilson intervals\nsolid: instant tests, dashed: baselines; dotted: alpha; "
+                 f"points dodged sideways by {dx:.3g} per statistic for legibility", fontsize=9)
+    fig.tight_layout(rect=(0, legend_h / (3.3 * nrow + legend_h + 0.4), 1, 1))
+    handles, labels = axes[0][0].get_legend_handles_labels()
+    if spare:
+        slot = fig.add_axes(axes.ravel()[len(alts)].get_position())
+        slot.set_axis_off()
+        slot.legend(handles, labels, loc="center", fontsize=8, frameon=False, title="statistic",
+                    ncol=2 if len(alts) % ncol == 1 and len(labels) > 6 else 1)
+    else:
+        fig.legend(handles, labels, loc="lower center", ncol=3, fontsize=8, frameon=False)
+    return fig if path is None else save_figure(fig, path)

@@ -24,6 +24,8 @@ _WHERE = {
     "Ball": "patterns.windows", "Box": "patterns.windows", "ConvexPolytope": "patterns.windows",
     "Disk": "patterns.windows", "PolygonWindow": "patterns.windows", "Rectangle": "patterns.windows",
     "Window": "patterns.windows", "parse_window": "patterns.windows",
+    "plot_result": "plots", "plot_diagram": "plots", "plot_curve": "plots", "plot_scalars": "plots",
+    "plot_batch": "plots",
 }
 __all__ = list(_WHERE)
 

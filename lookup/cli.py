@@ -188,42 +188,7 @@ def _fmt(v, width=10):
 
 
 def _print_table(res, alpha, out=None):
-    import numpy as np
-
-    out = out or sys.stdout
-    w = res.window
-    size = w.get("area", w.get("volume"))
-    out.write(f"n = {res.n} points in {res.dimension}D, window {w['kind']} "
-              f"({'area' if res.dimension == 2 else 'volume'} {size:.6g}, kappa {w['kappa']:.4g}), "
-              f"seed {res.seed}\n")
-    for msg in res.warnings:
-        out.write(f"warning: {msg}\n")
-    head = f"{'statistic':<12}{'kind':<9}{'observed':>10}{'null mean':>11}{'null sd':>10}" \
-           f"{'z':>8}{'p-value':>10}  method"
-    out.write(head + "\n" + "-" * len(head) + "\n")
-    for r in res.results:
-        name = r.name + ("*" if r.primary else "")
-        flag = "" if r.trusted else "  UNTRUSTED"
-        out.write(f"{name:<12}{r.kind:<9}{_fmt(r.observed)}{_fmt(r.null_mean, 11)}"
-                  f"{_fmt(r.null_sd)}{_fmt(r.z, 8)}{_fmt(r.pvalue)}  {r.method}{flag}\n")
-    out.write("* primary test; the others are secondary, p-values unadjusted. "
-              "Curves: observed = max |z| over the grid.\n")
-    for r in res.results:
-        if not r.trusted:
-            out.write(f"untrusted {r.name}: {r.reason}\n")
-    p = res.primary
-    null = "CSR" if getattr(res, "null", "csr") == "csr" else f"the null model {res.null}"
-    if null != "CSR":
-        out.write(f"null model: {res.null} (conditioned on n, Monte Carlo)\n")
-    if not np.isfinite(p.pvalue):
-        verdict = f"no p-value for the primary test {p.name} ({p.reason})"
-    elif p.pvalue <= alpha:
-        verdict = (f"{null} rejected at alpha = {alpha:g} by the primary test {p.name} "
-                   f"(p = {p.pvalue:.3g}{'' if p.trusted else ', UNTRUSTED'})")
-    else:
-        verdict = (f"no evidence against {null} at alpha = {alpha:g} from the primary test "
-                   f"{p.name} (p = {p.pvalue:.3g}{'' if p.trusted else ', UNTRUSTED'})")
-    out.write(f"Verdict: {verdict}.\n")
+    (out or sys.stdout).write(res.summary(alpha))
 
 
 def _cmd_test(a) -> int:

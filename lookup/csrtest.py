@@ -193,14 +193,15 @@ def check_budget(budget) -> None:
 
 def csr_test(points, window, stats=None, *, method="auto", n_sims=999, seed=None, jobs=1,
              alternative="two-sided", on_duplicates="error", alpha=0.05, columns=None,
-             progress=False, engine="fast", tables=None, use_shipped=True,
+             progress=None, engine="fast", tables=None, use_shipped=True,
              null="csr", fallback_budget=None, notify=None) -> CSRTestResult:
     """Test a point pattern for complete spatial randomness.
 
     Parameters
     ----------
-    points : ndarray of shape (n, d) or path
-        Coordinates, or a file readable by :func:`read_points`.
+    points : ndarray of shape (n, d), DataFrame or path
+        Coordinates, a pandas DataFrame (``columns`` picks the coordinates),
+        or a file readable by :func:`read_points`.
     window : Window, shapely Polygon/MultiPolygon, or str
         The observation window, a polygon, or a specification (see
         :func:`~nullatlas.lookup.patterns.windows.parse_window`).
@@ -228,9 +229,12 @@ def csr_test(points, window, stats=None, *, method="auto", n_sims=999, seed=None
     alpha : float
         Level of the envelopes and of the plain-text verdict.
     columns : list, optional
-        Coordinate columns when ``points`` is a file.
+        Coordinate columns when ``points`` is a file or a pandas DataFrame.
     progress : bool or None
-        Progress bar on standard error (None: only on a terminal).
+        Progress bar of the Monte Carlo simulations.  None (default): in a
+        Jupyter notebook (tqdm's notebook bar where ipywidgets is installed,
+        else its text bar) or when standard error is a terminal; True:
+        always; False: never.
     engine : {"fast", "gudhi"}
         Persistence engine: our exact kernels (default) or gudhi's generic
         path, the reference (see :func:`lookup.persistence.diagram.alpha_diagram`).

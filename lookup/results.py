@@ -23,7 +23,7 @@ def _clean(v):
     return v
 
 
-@dataclass
+@dataclass(repr=False)
 class StatResult:
     """The test of one statistic.
 
@@ -91,6 +91,10 @@ class StatResult:
     curve: dict | None = None
     details: dict | None = None
 
+    def __repr__(self) -> str:
+        return (f"StatResult({self.name}: statistic={self.statistic:.4g}, pvalue={self.pvalue:.4g}, "
+                f"method={self.method!r}{'' if self.trusted else ', UNTRUSTED'})")
+
     def as_dict(self, curves: bool = True) -> dict:
         d = {"statistic": self.name, "kind": self.kind, "observed": self.observed,
              "null_mean": self.null_mean, "null_sd": self.null_sd, "z": self.z,
@@ -104,7 +108,85 @@ class StatResult:
         return _clean(d)
 
 
-@dataclass
+_COLUMNS = ("statistic", "kind", "observed", "null_mean", "null_sd", "z", "p_value", "method",
+            "alternative", "trusted", "reason", "primary", "n_sims")
+
+
+def _fmt(v, width=10) -> str:
+    if v is None or (isinstance(v, float) and not np.isfinite(v)):
+        return "-".rjust(width)
+    return (" " + f"{v:.4g}").rjust(width)
+
+
+def _verdict(res, alpha: float) -> str:
+    p = res.primary
+    null = "CSR" if res.null == "csr" else f"the null model {res.null}"
+    if not np.isfinite(p.pvalue):
+        return f"no p-value for the primary test {p.name} ({p.reason})"
+    tail = f"(p = {p.pvalue:.3g}{'' if p.trusted else ', UNTRUSTED'})"
+    if p.pvalue <= alpha:
+        return f"{null} rejected at alpha = {alpha:g} by the primary test {p.name} {tail}"
+    return f"no evidence against {null} at alpha = {alpha:g} from the primary test {p.name} {tail}"
+
+
+def summary_text(res, alpha: float = 0.05) -> str:
+    """The table of a :class:`CSRTestResult` that the ``nullatlas test`` command prints."""
+    w = res.window
+    size = w.get("area", w.get("volume"))
+    lines = [f"n = {res.n} points in {res.dimension}D, window {w['kind']} "
+             f"({'area' if res.dimension == 2 else 'volume'} {size:.6g}, kappa {w['kappa']:.4g}), "
+             f"seed {res.seed}"]
+    lines += [f"warning: {msg}" for msg in res.warnings]
+    head = f"{'statistic':<12}{'kind':<9}{'observed':>10}{'null mean':>11}{'null sd':>10}" \
+           f"{'z':>8}{'p-value':>10}  method"
+    lines += [head, "-" * len(head)]
+    for r in res.results:
+        name = r.name + ("*" if r.primary else "")
+        flag = "" if r.trusted else "  UNTRUSTED"
+        lines.append(f"{name:<12}{r.kind:<9}{_fmt(r.observed)}{_fmt(r.null_mean, 11)}"
+                     f"{_fmt(r.null_sd)}{_fmt(r.z, 8)}{_fmt(r.pvalue)}  {r.method}{flag}")
+    lines.append("* primary test; the others are secondary, p-values unadjusted. "
+                 "Curves: observed = max |z| over the grid.")
+    lines += [f"untrusted {r.name}: {r.reason}" for r in res.results if not r.trusted]
+    if res.null != "csr":
+        lines.append(f"null model: {res.null} (conditioned on n, Monte Carlo)")
+    lines.append(f"Verdict: {_verdict(res, alpha)}.")
+    return "\n".join(lines) + "\n"
+
+
+def _html_cell(v) -> str:
+    import html
+
+    if isinstance(v, (float, np.floating)):
+        return "-" if not np.isfinite(v) else f"{v:.4g}"
+    return html.escape(str(v))
+
+
+def summary_html(res, alpha: float = 0.05) -> str:
+    """The same summary as an HTML table, for notebooks."""
+    import html
+
+    w = res.window
+    cols = ("statistic", "kind", "observed", "null_mean", "null_sd", "z", "p_value", "method", "trusted")
+    rows = []
+    for r in res.results:
+        d = {"statistic": r.name + ("*" if r.primary else ""), "kind": r.kind, "observed": r.observed,
+             "null_mean": r.null_mean, "null_sd": r.null_sd, "z": r.z, "p_value": r.pvalue,
+             "method": r.method, "trusted": "yes" if r.trusted else "UNTRUSTED"}
+        rows.append("<tr>" + "".join(f"<td>{_html_cell(d[c])}</td>" for c in cols) + "</tr>")
+    notes = "".join(f"<li>{html.escape(m)}</li>" for m in res.warnings) + "".join(
+        f"<li>untrusted {html.escape(r.name)}: {html.escape(r.reason)}</li>"
+        for r in res.results if not r.trusted)
+    return (f"<div><p>n = {res.n} points in {res.dimension}D, window {html.escape(str(w['kind']))} "
+            f"(kappa {w['kappa']:.4g}), seed {res.seed}</p>"
+            "<table><thead><tr>" + "".join(f"<th>{c}</th>" for c in cols) + "</tr></thead><tbody>"
+            + "".join(rows) + "</tbody></table>"
+            "<p>* primary test; the others are secondary, p-values unadjusted.</p>"
+            + (f"<ul>{notes}</ul>" if notes else "")
+            + f"<p><b>Verdict:</b> {html.escape(_verdict(res, alpha))}.</p></div>")
+
+
+@dataclass(repr=False)
 class CSRTestResult:
     """All results of one run on one pattern; ``statistic``/``pvalue`` are the primary test's.
 
@@ -180,6 +262,38 @@ class CSRTestResult:
             if r.name == name:
                 return r
         raise KeyError(name)
+
+    def summary(self, alpha: float = 0.05) -> str:
+        """The table that ``nullatlas test`` prints, with the verdict at ``alpha``."""
+        return summary_text(self, alpha)
+
+    def __repr__(self) -> str:
+        return self.summary()
+
+    def _repr_html_(self) -> str:
+        return summary_html(self)
+
+    def to_dataframe(self):
+        """All results as a pandas DataFrame, one row per statistic (primary first).
+
+        Returns
+        -------
+        pandas.DataFrame
+            Columns ``statistic, kind, observed, null_mean, null_sd, z, p_value,
+            method, alternative, trusted, reason, primary, n_sims``.
+
+        Raises
+        ------
+        ImportError
+            When pandas is not installed (it is optional).
+        """
+        try:
+            import pandas as pd
+        except ImportError:
+            raise ImportError("CSRTestResult.to_dataframe needs pandas, which is not installed: "
+                              "pip install pandas (or use as_dict())") from None
+        rows = [r.as_dict(curves=False) for r in self.results]
+        return pd.DataFrame([{c: row.get(c) for c in _COLUMNS} for row in rows], columns=list(_COLUMNS))
 
     def as_dict(self, curves: bool = True) -> dict:
         return _clean({

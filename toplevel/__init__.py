@@ -9,7 +9,10 @@ The main entry points, imported on first use so that ``import nullatlas``
   :class:`PolygonWindow`, :class:`Box`, :class:`Ball`,
   :class:`ConvexPolytope` (all :class:`Window`) and :func:`parse_window`;
 * :func:`read_points` -- read points from text, ``.npy`` or HDF5 files;
-* :class:`CSRTestResult` and :class:`NullAtlasError`.
+* :class:`CSRTestResult` and :class:`NullAtlasError`;
+* the figures :func:`plot_result`, :func:`plot_diagram`, :func:`plot_curve`,
+  :func:`plot_scalars` and :func:`plot_batch`: each draws into a matplotlib
+  ``Axes`` given, or returns a ``Figure``; a file path is optional.
 
 They live in the runtime package :mod:`nullatlas.lookup`; the offline stage
 that builds the null tables is :mod:`nullatlas.calibrate`.
@@ -28,7 +31,8 @@ import importlib
 
 _PUBLIC = ("csr_test", "read_points", "validate_pattern", "Window", "Rectangle", "Disk",
            "PolygonWindow", "Box", "Ball", "ConvexPolytope", "parse_window", "CSRTestResult",
-           "StatResult", "NullAtlasError")
+           "StatResult", "NullAtlasError", "plot_result", "plot_diagram", "plot_curve", "plot_scalars",
+           "plot_batch")
 __all__ = [*_PUBLIC, "__version__"]
 
 

@@ -56,7 +56,8 @@ def simulate_null(window, n: int, stats: list[Statistic], seeds, jobs: int = 1,
     jobs : int
         Worker processes (1 = in this process).
     progress : bool or None
-        Show a progress bar on standard error (None: only on a terminal).
+        Show a progress bar (None: in a Jupyter notebook, tqdm's notebook bar
+        where ipywidgets is installed, or on a terminal, the text bar).
     engine : {"fast", "gudhi"}
         Diagram engine (see :func:`lookup.persistence.diagram.alpha_diagram`).
 
@@ -64,13 +65,12 @@ def simulate_null(window, n: int, stats: list[Statistic], seeds, jobs: int = 1,
     -------
     dict name -> ndarray of shape (m,) or (m, k)
     """
-    from tqdm.auto import tqdm
+    from ..progressbar import progress_bar
 
     m = len(seeds)
     size = max(1, min(64, int(np.ceil(m / (max(jobs, 1) * 8)))))
     chunks = [seeds[i:i + size] for i in range(0, m, size)]
-    bar = tqdm(total=m, desc="null simulations", unit="sim",
-               disable=None if progress is None else not progress, leave=False)
+    bar = progress_bar(m, "null simulations", "sim", progress, leave=False)
     parts = []
     try:
         if jobs <= 1:

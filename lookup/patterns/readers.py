@@ -63,16 +63,15 @@ def _split_function(line: str):
     return None, (lambda s: s.split())
 
 
-def _select(arr: np.ndarray, names, columns, where: str) -> np.ndarray:
-    k = arr.shape[1]
+def _column_index(names, columns, k: int, where: str) -> list | None:
+    """Indices of the coordinate columns among ``k`` columns called ``names``
+    (None when there is no header); None means all of them."""
+    low = None if names is None else [str(n).strip().lower() for n in names]
     if columns is None:
-        if names is not None:
-            low = [str(n).strip().lower() for n in names]
-            if "x" in low and "y" in low:
-                idx = [low.index("x"), low.index("y")] + ([low.index("z")] if "z" in low else [])
-                return arr[:, idx]
+        if low is not None and "x" in low and "y" in low:
+            return [low.index("x"), low.index("y")] + ([low.index("z")] if "z" in low else [])
         if k in (2, 3):
-            return arr
+            return None
         raise PointsError(
             f"{where}: has {k} columns; choose the coordinate columns with --columns "
             "(names like x,y or 0-based indices like 0,1)")
@@ -83,13 +82,32 @@ def _select(arr: np.ndarray, names, columns, where: str) -> np.ndarray:
                 raise PointsError(f"{where}: column index {c} out of range (file has {k} columns)")
             idx.append(int(c))
         else:
-            if names is None:
+            if low is None:
                 raise PointsError(f"{where}: column '{c}' requested by name, but the file has no header")
-            low = [str(n).strip().lower() for n in names]
-            if c.lower() not in low:
+            if str(c).lower() not in low:
                 raise PointsError(f"{where}: no column named '{c}' (header: {', '.join(map(str, names))})")
-            idx.append(low.index(c.lower()))
-    return arr[:, idx]
+            idx.append(low.index(str(c).lower()))
+    return idx
+
+
+def _select(arr: np.ndarray, names, columns, where: str) -> np.ndarray:
+    idx = _column_index(names, columns, arr.shape[1], where)
+    return arr if idx is None else arr[:, idx]
+
+
+def _read_frame(frame, columns) -> np.ndarray:
+    """Coordinates from a data frame (pandas or alike): the named or numbered
+    ``columns``, else ``x, y[, z]``, else a frame of exactly 2 or 3 columns."""
+    names = [str(c) for c in frame.columns]
+    idx = _column_index(names, columns, len(names), "data frame")
+    chosen = frame.iloc[:, idx] if idx is not None else frame
+    try:
+        arr = chosen.to_numpy(dtype=float)
+    except (TypeError, ValueError):
+        raise PointsError("data frame: the coordinate columns "
+                          f"({', '.join(str(c) for c in chosen.columns)}) must hold numbers; "
+                          "choose them with columns=[...]") from None
+    return _read_array(arr, "data frame", None)
 
 
 def _read_text(path: str, columns) -> np.ndarray:
@@ -165,10 +183,12 @@ def read_points(source, columns=None) -> np.ndarray:
 
     Parameters
     ----------
-    source : str or path-like or ndarray
-        A text/CSV file, a ``.npy`` file, ``file.h5:/dataset``, or an array.
+    source : str or path-like or ndarray or DataFrame
+        A text/CSV file, a ``.npy`` file, ``file.h5:/dataset``, an array, or
+        a pandas DataFrame (other columns, e.g. labels, are ignored).
     columns : list of str or int, optional
         Coordinate columns to use (names need a header; ints are 0-based).
+        Without it, columns named ``x, y[, z]``, else all of exactly 2 or 3.
 
     Returns
     -------
@@ -219,6 +239,8 @@ def read_points(source, columns=None) -> np.ndarray:
     """
     if isinstance(columns, str):
         columns = parse_columns(columns)
+    if hasattr(source, "columns") and hasattr(source, "iloc"):
+        return _read_frame(source, columns)
     if not isinstance(source, (str, os.PathLike)):
         return _read_array(source, "points", columns)
     path = os.fspath(source)

@@ -618,18 +618,41 @@ class Cylinder(Window):
         return np.where((a > 0) & (b > 0), v, 0.0)
 
 
+def _polygon_from_vertices(vertices, source: str | None):
+    """A shapely Polygon from a sequence of at least 3 (x, y) vertices, or a WindowError."""
+    import shapely
+
+    where = source or "window"
+    try:
+        v = np.asarray(vertices, dtype=float)
+    except (TypeError, ValueError):
+        v = None
+    if v is None or v.ndim != 2 or v.shape[1] != 2 or len(v) < 3 or not np.isfinite(v).all():
+        raise WindowError(
+            f"{where}: a polygon window needs a shapely Polygon or MultiPolygon or a list of "
+            f"at least 3 finite (x, y) vertices, got a {type(vertices).__name__}"
+            + (f" of shape {v.shape}" if v is not None else ""))
+    return shapely.Polygon(v)
+
+
 class PolygonWindow(Window):
     """Polygon (possibly with holes, possibly several parts) in the plane.
 
     Parameters
     ----------
-    geometry : shapely Polygon or MultiPolygon
-        A valid polygonal geometry of positive area.
+    geometry : shapely Polygon or MultiPolygon, or sequence of (x, y)
+        A valid polygonal geometry of positive area, or the vertices of a
+        simple polygon in order (closing it is optional).
     source : str, optional
         Where the geometry came from (a file path), for ``spec``.
 
     Examples
     --------
+    A triangle from its vertices:
+
+    >>> PolygonWindow([(0, 0), (2, 0), (0, 2)]).measure
+    2.0
+
     A square plate with a square hole:
 
     >>> import numpy as np
@@ -651,10 +674,7 @@ class PolygonWindow(Window):
         import shapely
 
         if not isinstance(geometry, shapely.Geometry):
-            raise WindowError(
-                f"{source or 'window'}: a polygon window needs a shapely Polygon or "
-                f"MultiPolygon, got a {type(geometry).__name__} (for a list of vertices "
-                "use shapely.Polygon(vertices))")
+            geometry = _polygon_from_vertices(geometry, source)
         if geometry.geom_type not in ("Polygon", "MultiPolygon"):
             raise WindowError(
                 f"{source or 'window'}: geometry is a {geometry.geom_type}, "
@@ -1398,9 +1418,10 @@ def as_window(obj, points: np.ndarray | None = None) -> Window:
 
     Parameters
     ----------
-    obj : Window, shapely Polygon/MultiPolygon, or str
-        A window is returned as it is, a shapely polygonal geometry becomes a
-        :class:`PolygonWindow`, a string is parsed by :func:`parse_window`.
+    obj : Window, shapely Polygon/MultiPolygon, sequence of (x, y), or str
+        A window is returned as it is, a shapely polygonal geometry or a list
+        of polygon vertices becomes a :class:`PolygonWindow`, a string is
+        parsed by :func:`parse_window`.
     points : ndarray, optional
         The points, for the estimated windows ``bbox`` and ``hull``.
 
@@ -1416,6 +1437,8 @@ def as_window(obj, points: np.ndarray | None = None) -> Window:
     import shapely
 
     if isinstance(obj, shapely.Geometry):
+        return PolygonWindow(obj)
+    if isinstance(obj, (list, tuple, np.ndarray)):
         return PolygonWindow(obj)
     raise WindowError(f"cannot use a {type(obj).__name__!r} object as a window: give a Window, "
                       "a shapely Polygon/MultiPolygon or a specification string")
