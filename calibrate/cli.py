@@ -284,6 +284,28 @@ def _refuse_shipped(path):
                           "(or --allow-shipped to regenerate the shipped tables)")
 
 
+def _num(v, fmt):
+    """``v`` formatted, or None when it is missing."""
+    return None if v is None else format(v, fmt)
+
+
+def _holdout_line(shape, stat, v):
+    """One line on how well the model fitted without ``shape`` predicts it.
+
+    The error in pattern sd is measured only at the grid points the test
+    uses; a curve whose held-out cells have none says so instead of a number.
+    """
+    sd = _num(v.get("max_abs_sd"), ".3f")
+    sd = (f" = {sd} pattern sd" if sd is not None
+          else "; no grid point that the test uses, so no error in pattern sd")
+    nm = v.get("n_model")
+    within = (f"within 0.1 pattern sd from n = {nm}" if nm is not None
+              else "not shown within 0.1 pattern sd at any held-out n")
+    return (f"held-out {shape}: {stat} predicted with RMS error {v['rms_se']:.2f} SE "
+            f"(max {_num(v.get('max_abs_se'), '.2f')} SE{sd}) over {v['points']} cell grid "
+            f"points; {within}")
+
+
 def _print_summary(s, out=None):
     out = out or sys.stdout
     out.write(f"table {s['table']}: {s['dimension']}D, {s['cells']} cells, "
@@ -299,14 +321,12 @@ def _print_summary(s, out=None):
         out.write(f"model check, mean nearest-neighbour distance: mu = {nn['mu']:.4f} +- "
                   f"{nn['mu_se']:.4f} (CSR limit Gamma(4/3) (4 pi/3)^(-1/3) = 0.5540), boundary "
                   f"c = {nn['c']:.4f} +- {nn['c_se']:.4f}, chi2/dof = {nn['chi2']:.1f}/{nn['dof']}\n")
+    if s.get("model_missing"):
+        out.write(f"finite-window model: none ({s['model_missing']})\n")
     for stat, m in s["model"].items():
         for k, v in m.items():
             if k.startswith("holdout_") and v.get("rms_se") is not None:
-                nm = v.get("n_model")
-                out.write(f"held-out {k[8:]}: {stat} predicted with RMS error {v['rms_se']:.2f} SE "
-                          f"(max {v['max_abs_se']:.2f} SE = {v.get('max_abs_sd', float('nan')):.3f} "
-                          f"pattern sd) over {v['points']} cell grid points; within 0.1 sd from "
-                          f"n = {'-' if nm is None else nm}\n")
+                out.write(_holdout_line(k[8:], stat, v) + "\n")
     out.write("n_min (smallest calibrated n from which the asymptotic test holds; - = none):\n")
     for shape, per in s["n_min"].items():
         items = []
@@ -315,6 +335,20 @@ def _print_summary(s, out=None):
         out.write(f"  {shape}: " + "; ".join(items) + "\n")
     if s.get("note"):
         out.write(f"note: {s['note']}\n")
+
+
+def _rendered_first(a):
+    """A ``before_write`` hook for the table commands: render the report the
+    command will print (text or ``--json``) before the table is written, so
+    that a report that cannot be made fails the command with nothing written."""
+    import io
+
+    def render(summary):
+        if a.json:
+            json.dumps(_clean(summary), allow_nan=False)
+        else:
+            _print_summary(summary, io.StringIO())
+    return render
 
 
 def _cmd_build(a):
@@ -326,7 +360,7 @@ def _cmd_build(a):
     seed = build.DEFAULT_SEED if a.seed is None else a.seed
     return build.build_table(a.out, _targets(a), a.n, a.reps, stats=a.stat, root_seed=seed,
                              jobs=_jobs(a.jobs), scheduler=a.dask_scheduler, progress=a.progress,
-                             n_fit=a.n_fit, holdout=a.holdout)
+                             n_fit=a.n_fit, holdout=a.holdout, before_write=_rendered_first(a))
 
 
 def _cmd_extend(a):
@@ -337,7 +371,8 @@ def _cmd_extend(a):
     if a.n and targets is None:
         raise OptionError("--n needs --shape or --window")
     return build.extend_table(a.table, a.reps, targets=targets, ns=a.n, jobs=_jobs(a.jobs),
-                              scheduler=a.dask_scheduler, progress=a.progress)
+                              scheduler=a.dask_scheduler, progress=a.progress,
+                              before_write=_rendered_first(a))
 
 
 def _cmd_check(a):
@@ -459,7 +494,8 @@ def _cmd_fit(a):
         if k < 4:
             raise OptionError(f"--n-fit {a.n_fit} leaves {k} cell(s) with n >= {a.n_fit}; the "
                               "model needs at least 4 (nothing was changed)")
-    s = build.refit_table(a.table, n_fit=a.n_fit, holdout=a.holdout)
+    s = build.refit_table(a.table, n_fit=a.n_fit, holdout=a.holdout,
+                          before_write=_rendered_first(a))
     if a.plot:
         from .modelplot import plot_model
         plot_model(a.table, a.plot)
