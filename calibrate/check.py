@@ -24,9 +24,9 @@ import numpy as np
 from scipy import stats as _st
 
 from nullatlas.lookup.errors import OptionError
-from nullatlas.lookup.inference.asymptotic import asymptotic_result, verdict
+from nullatlas.lookup.inference.asymptotic import asymptotic_result, instant_moments
 from nullatlas.lookup.inference.montecarlo import _alternative_for, simulate_null
-from nullatlas.lookup.inference.nullmoments import TableSet, default_tables, null_moments
+from nullatlas.lookup.inference.nullmoments import TableSet, default_tables
 from nullatlas.lookup.summaries.statistics import resolve_stats
 
 __all__ = ["ALPHAS", "wilson", "check_window", "CHECK_SEED"]
@@ -72,8 +72,7 @@ def check_window(window, ns, reps: int, *, stats=None, tables=None, seed: int = 
         vals = simulate_null(window, n, chosen, ss.spawn(reps), jobs=jobs, progress=progress)
         for st in chosen:
             alt, _ = _alternative_for(st, "two-sided")
-            nm = null_moments(tset, window, n, st.name)
-            trusted, why = verdict(nm, st, n, window, alt)
+            nm, trusted, why = instant_moments(tset, window, n, st, alt)
             row = {"n": int(n), "statistic": st.name, "kind": st.kind,
                    "trusted": trusted, "reason": "; ".join(why)}
             if nm is None:

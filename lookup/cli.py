@@ -208,9 +208,11 @@ def _print_table(res, alpha, out=None):
                   f"{_fmt(r.null_sd)}{_fmt(r.z, 8)}{_fmt(r.pvalue)}  {r.method}{flag}\n")
     out.write("* primary test; the others are secondary, p-values unadjusted. "
               "Curves: observed = max |z| over the grid.\n")
-    for r in res.results:
-        if not r.trusted:
-            out.write(f"untrusted {r.name}: {r.reason}\n")
+    from .results import group_causes
+
+    for cause, names in group_causes((r.name, (r.details or {}).get("reasons") or [r.reason])
+                                     for r in res.results if not r.trusted):
+        out.write(f"untrusted {', '.join(names)}: {cause}\n")
     p = res.primary
     null = "CSR" if getattr(res, "null", "csr") == "csr" else f"the null model {res.null}"
     if null != "CSR":

@@ -77,7 +77,7 @@ def _nm_model(trust):
     from nullatlas.lookup.inference.nullmoments import NullMoments
     nm = NullMoments("total0", "scalar", np.array([0.3]), np.array([[1e-4]]), None, None,
                      "model", [], None, {"two_sided": 50, "lower": 50, "upper": 50},
-                     (3.5, 7.0), (50, 100000))
+                     (3.5, 7.0), (50, 100000), replicates=2000)
     nm.extra["trust"] = trust
     return nm
 
