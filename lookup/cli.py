@@ -305,6 +305,9 @@ def _cmd_batch(a) -> int:
         raise OptionError("--resume needs the --out of the interrupted batch")
     items = collect_inputs(a.inputs, a.window, a.columns, a.manifest, a.allow_absolute)
     journal = a.out + ".journal.jsonl" if a.out else None
+    if a.resume and not os.path.exists(journal):
+        sys.stderr.write(f"{PROG}: note: --resume: {_no_journal(a.out, journal)}; every file "
+                         "is tested again\n")
     res = run_batch(items, stats=a.stat, method=a.method, n_sims=a.sims, seed=a.seed,
                     jobs=a.jobs, alternative=a.alternative, on_duplicates=a.on_duplicates,
                     alpha=a.alpha, engine=a.engine, tables=a.table, progress=a.progress,
@@ -326,6 +329,14 @@ def _cmd_batch(a) -> int:
     return _batch_status(res)
 
 
+def _no_journal(out, journal) -> str:
+    """Why ``--resume`` finds nothing to resume from."""
+    if os.path.exists(out):
+        return (f"there is no journal {journal}: the batch that wrote {out} had finished (the "
+                "journal is removed once the results are written), so nothing was interrupted")
+    return f"there is no journal {journal}: no batch with --out {out} was interrupted"
+
+
 def _batch_status(res) -> int:
     """0: every file tested; 1: some failed; 2: all failed (``BATCH_STATUS``),
     with one line on standard error when not 0."""
@@ -344,9 +355,8 @@ def _batch_status(res) -> int:
 
 def _print_batch(res, a) -> None:
     if a.json:
-        from .results import _clean
-        json.dump({"seed": res.seed, "files": len(res.rows), "failed": len(res.failed),
-                   "rows": _clean(res.rows)}, sys.stdout, indent=1, allow_nan=False)
+        from .batch import results_document
+        json.dump(results_document(res), sys.stdout, indent=1, allow_nan=False)
         sys.stdout.write("\n")
         return
     w = sys.stdout.write
