@@ -226,6 +226,8 @@ def _finish(out, dimension, root_seed, stat_names, records, n_fit, holdout, extr
     summary = {"table": os.fspath(out), "dimension": dimension, "root_seed": int(root_seed),
                "cells": len(records), "replicates": int(sum(r["replicates"] for r in records)),
                "n_min": nmin_summary, "model": model_summary,
+               "labels": {r["shape"]: r["geometry"]["label"] for r in records
+                          if isinstance(r.get("geometry"), dict) and r["geometry"].get("label")},
                "model_missing": None if models else (why_not[0] if why_not else
                                                      "no statistic could be fitted"),
                "note": ("the model route of this table is not validated (never trusted) until "
@@ -360,7 +362,7 @@ def _simulate(out, plans, stat_names, root_seed, jobs, scheduler, progress, on_d
 def build_table(out, targets: list, ns: list, reps: int, *, stats=None,
                 root_seed: int = DEFAULT_SEED, jobs: int = 1, scheduler: str | None = None,
                 progress=None, n_fit: int = 200, holdout: str | None = None,
-                keep_parts: bool = False, before_write=None) -> dict:
+                keep_parts: bool = False, before_write=None, labels: dict | None = None) -> dict:
     """Simulate a new table.
 
     Parameters
@@ -381,6 +383,9 @@ def build_table(out, targets: list, ns: list, reps: int, *, stats=None,
     before_write : callable, optional
         Called with the summary before the table is written (see ``_finish``);
         if it raises, no table is written and the checkpoints are kept.
+    labels : dict, optional
+        Shape name -> readable name (e.g. the window file's name), stored in
+        the cells' geometry and shown by ``nullatlas tables``.
 
     Returns
     -------
@@ -404,7 +409,7 @@ def build_table(out, targets: list, ns: list, reps: int, *, stats=None,
     stat_names = [s.name for s in resolve_stats(stats or DEFAULT_STATS[dim], dim)]
     plans = _plans(targets, sorted(set(int(n) for n in ns)), reps, dim)
     refuse_endless(plans, reps)
-    desc = {name: w.describe() for name, w in targets}
+    desc = _descriptions(targets, labels)
     records = []
     t0 = time.perf_counter()
 
@@ -421,6 +426,15 @@ def build_table(out, targets: list, ns: list, reps: int, *, stats=None,
     summary["seconds"] = time.perf_counter() - t0
     summary["simulation_seconds"] = secs
     return summary
+
+
+def _descriptions(targets, labels=None) -> dict:
+    """Shape name -> stored geometry, with the readable label where given."""
+    desc = {name: w.describe() for name, w in targets}
+    for name, label in (labels or {}).items():
+        if name in desc and label:
+            desc[name]["label"] = str(label)
+    return desc
 
 
 def _load_records(path):
@@ -441,7 +455,7 @@ def _load_records(path):
 def extend_table(path, reps: int, *, targets: list | None = None, ns: list | None = None,
                  jobs: int = 1, scheduler: str | None = None, progress=None,
                  n_fit: int | None = None, holdout: str | None = None,
-                 keep_parts: bool = False, before_write=None) -> dict:
+                 keep_parts: bool = False, before_write=None, labels: dict | None = None) -> dict:
     """Add ``reps`` replicates to every cell (or to the cells of ``targets`` x
     ``ns``, creating missing ones) and rewrite the table atomically
     (``before_write`` as in :func:`build_table`)."""
@@ -464,9 +478,7 @@ def extend_table(path, reps: int, *, targets: list | None = None, ns: list | Non
         first = {k: (r["chunks"], r["chunk_size"]) for k, r in by.items()}
         plans = _plans(targets, sorted(set(int(n) for n in ns)), reps, dim, first)
     refuse_endless(plans, reps)
-    desc = {}
-    if targets:
-        desc = {name: w.describe() for name, w in targets}
+    desc = _descriptions(targets, labels) if targets else {}
     t0 = time.perf_counter()
 
     def done(plan, assembled):

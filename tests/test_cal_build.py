@@ -419,3 +419,54 @@ def test_fit_that_cannot_make_a_model_says_why_before_writing(tmp_path, capsys):
         assert err.count("\n") == 1 and "no finite-window model can be fitted" in err
         assert "at least 4 cells" in err and "nothing was changed" in err
     assert out.read_bytes() == before and not (tmp_path / "fig.png").exists()
+
+
+def test_every_option_has_a_help_line_and_jobs_says_what_it_keeps():
+    """Issue 14: every option of every subcommand of both commands has a
+    help line; check/power/validate do not claim a table for --jobs and have
+    no --dask-scheduler that they would ignore."""
+    import argparse
+
+    from nullatlas.lookup import cli as lcli
+    missing = []
+    subs = {}
+    for mod in (lcli, cli):
+        for act in mod.build_parser()._actions:
+            if isinstance(act, argparse._SubParsersAction):
+                for name, sp in act.choices.items():
+                    subs[(mod.PROG, name)] = sp
+                    missing += [(mod.PROG, name, x.dest) for x in sp._actions if not x.help]
+    assert missing == []
+    for name in ("check", "power", "validate"):
+        sp = subs[("nullatlas-calibrate", name)]
+        jobs = next(x for x in sp._actions if x.dest == "jobs")
+        assert "table" not in jobs.help
+        assert all(x.dest != "dask_scheduler" for x in sp._actions)
+
+
+def test_build_counts_patterns_and_names_a_users_window_by_its_file(tmp_path, monkeypatch, capsys):
+    """Issue 14: the build progress bar counts patterns; a window given as a
+    file is named after it in the build summary and in 'nullatlas tables',
+    whose n_min lines name their tests."""
+    bars = []
+    real = runner._progress
+
+    def spy(total, enabled, desc):
+        bars.append(real(total, enabled, desc))
+        return bars[-1]
+
+    monkeypatch.setattr(runner, "_progress", spy)
+    poly = tmp_path / "lshape.wkt"
+    poly.write_text("POLYGON((0 0, 30 0, 30 10, 10 10, 10 30, 0 30, 0 0))")
+    out = tmp_path / "mine.h5"
+    assert cli.main(["build", "--window", str(poly), "--n", "40,80", "--reps", "24",
+                     "--out", str(out), "--stat", "euler,nnmean", "--n-fit", "10",
+                     "--progress"]) == 0
+    assert bars[0].unit == "pattern" and bars[0].total == 48 and bars[0].n == 48
+    text = capsys.readouterr().out
+    assert "  lshape (polygon-" in text and "nnmean (lower tail " in text and "two-sided " in text
+    from nullatlas.lookup import cli as lcli
+    assert lcli.main(["tables", str(out)]) == 0
+    text = capsys.readouterr().out
+    assert "  lshape (shape polygon-" in text
+    assert "euler      max |z| " in text and "Mahalanobis" in text
