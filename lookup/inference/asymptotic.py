@@ -134,7 +134,10 @@ def _model_trust(nm: NullMoments, stat, n: int, window, key: str) -> list:
         return [f"the table ({nm.table}) predates the validated geometric model (schema "
                 f"version {nm.extra.get('schema_version', 1)}); rebuild it or use the shipped "
                 "tables"]
-    per = (nm.extra.get("trust") or {}).get(key)
+    if not nm.extra.get("trust"):       # one cause for every statistic of the table
+        return [f"the model route of {_table_name(nm)} was not validated on held-out windows "
+                "(run 'nullatlas-calibrate validate' on it)"]
+    per = nm.extra["trust"].get(key)
     if not per:
         return [f"the model route of '{stat.name}' ({key} test) was not validated on held-out "
                 "windows in this table"]
@@ -234,7 +237,7 @@ def verdict(nm: NullMoments | None, stat, n: int, window, alternative: str,
 def _table_name(nm: NullMoments) -> str:
     import os
 
-    return os.path.basename(str(nm.table))
+    return os.path.basename(str(nm.table or "")) or "this table"
 
 
 def instant_moments(tables, window, n: int, stat, alternative: str, n_duplicates: int = 0,
