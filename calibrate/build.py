@@ -144,14 +144,23 @@ def _merge_item(old: dict, new: dict, n: int) -> dict:
     return item
 
 
-def _finish(out, dimension, root_seed, stat_names, records, n_fit, holdout, extra_attrs):
-    """n_min, model, holdout; write the table. Returns the summary dict."""
+def _finish(out, dimension, root_seed, stat_names, records, n_fit, holdout, extra_attrs,
+            before_write=None):
+    """n_min, model, holdout; write the table. Returns the summary dict.
+
+    ``before_write(summary)``, when given, is called with the summary before
+    anything is written: whatever it raises leaves the table untouched (the
+    command line renders its report there, so a report that cannot be made
+    never follows a rewritten table).  The summary's ``model_missing`` is
+    None, or why no finite-window model could be fitted.
+    """
     kinds = {s: STATISTICS[s].kind for s in stat_names}
     records = sorted(records, key=lambda r: (r["shape"], r["n"]))
     nmin = n_min_table([{"shape": r["shape"], "n": r["n"],
                          "audit": {s: it.get("audit", {}) for s, it in r["stats"].items()}}
                         for r in records], kinds)
     models, holdouts, model_summary = {}, {}, {}
+    why_not = []
 
     def cellrows(stat, recs):
         rows = []
@@ -171,7 +180,8 @@ def _finish(out, dimension, root_seed, stat_names, records, n_fit, holdout, extr
         rows = cellrows(stat, records)
         try:
             models[stat] = fit_model(rows, dimension, n_fit)
-        except ValueError:
+        except ValueError as exc:
+            why_not.append(str(exc))
             continue
         f = models[stat]
         model_summary[stat] = {"chi2_per_dof_median": float(np.nanmedian(f.mean_chi2 / max(f.dof, 1))),
@@ -211,15 +221,22 @@ def _finish(out, dimension, root_seed, stat_names, records, n_fit, holdout, extr
     attrs = {"stats": json.dumps(list(stat_names)), "model_n_fit": int(n_fit),
              "holdout": str(holdout or ""), "geomodel_n_fit": int(GEO_N_FIT)}
     attrs.update(extra_attrs or {})
-    write_table(out, dimension=dimension, root_seed=root_seed, grids=table_grids(), cells=records,
-                nmin=nmin, models=models, holdouts=holdouts, attrs=attrs, geomodels=geomodels)
     nmin_summary = {shape: {s: dict(zip(t, (int(x) if x >= 0 else None for x in v)))
                             for s, (t, v) in per.items()} for shape, per in nmin.items()}
-    return {"table": os.fspath(out), "dimension": dimension, "root_seed": int(root_seed),
-            "cells": len(records), "replicates": int(sum(r["replicates"] for r in records)),
-            "n_min": nmin_summary, "model": model_summary,
-            "note": ("the model route of this table is not validated (never trusted) until "
-                     f"'nullatlas-calibrate validate {os.fspath(out)}' has run")}
+    summary = {"table": os.fspath(out), "dimension": dimension, "root_seed": int(root_seed),
+               "cells": len(records), "replicates": int(sum(r["replicates"] for r in records)),
+               "n_min": nmin_summary, "model": model_summary,
+               "labels": {r["shape"]: r["geometry"]["label"] for r in records
+                          if isinstance(r.get("geometry"), dict) and r["geometry"].get("label")},
+               "model_missing": None if models else (why_not[0] if why_not else
+                                                     "no statistic could be fitted"),
+               "note": ("the model route of this table is not validated (never trusted) until "
+                        f"'nullatlas-calibrate validate {os.fspath(out)}' has run")}
+    if before_write is not None:
+        before_write(summary)
+    write_table(out, dimension=dimension, root_seed=root_seed, grids=table_grids(), cells=records,
+                nmin=nmin, models=models, holdouts=holdouts, attrs=attrs, geomodels=geomodels)
+    return summary
 
 
 #: Smallest n of the cells the geometric model is fitted on.
@@ -345,7 +362,7 @@ def _simulate(out, plans, stat_names, root_seed, jobs, scheduler, progress, on_d
 def build_table(out, targets: list, ns: list, reps: int, *, stats=None,
                 root_seed: int = DEFAULT_SEED, jobs: int = 1, scheduler: str | None = None,
                 progress=None, n_fit: int = 200, holdout: str | None = None,
-                keep_parts: bool = False) -> dict:
+                keep_parts: bool = False, before_write=None, labels: dict | None = None) -> dict:
     """Simulate a new table.
 
     Parameters
@@ -363,6 +380,12 @@ def build_table(out, targets: list, ns: list, reps: int, *, stats=None,
         Also fit the model without this shape and store its prediction errors.
     keep_parts : bool
         Keep the chunk checkpoints (``<out>.parts``) after writing the table.
+    before_write : callable, optional
+        Called with the summary before the table is written (see ``_finish``);
+        if it raises, no table is written and the checkpoints are kept.
+    labels : dict, optional
+        Shape name -> readable name (e.g. the window file's name), stored in
+        the cells' geometry and shown by ``nullatlas tables``.
 
     Returns
     -------
@@ -386,7 +409,7 @@ def build_table(out, targets: list, ns: list, reps: int, *, stats=None,
     stat_names = [s.name for s in resolve_stats(stats or DEFAULT_STATS[dim], dim)]
     plans = _plans(targets, sorted(set(int(n) for n in ns)), reps, dim)
     refuse_endless(plans, reps)
-    desc = {name: w.describe() for name, w in targets}
+    desc = _descriptions(targets, labels)
     records = []
     t0 = time.perf_counter()
 
@@ -397,12 +420,21 @@ def build_table(out, targets: list, ns: list, reps: int, *, stats=None,
     with _chunks_kept(out):
         ck, secs = _simulate(out, plans, stat_names, root_seed, jobs, scheduler, progress, done)
         summary = _finish(out, dim, root_seed, stat_names, records, n_fit, holdout,
-                          {"simulation_seconds": float(secs)})
+                          {"simulation_seconds": float(secs)}, before_write)
     if not keep_parts:
         ck.remove()
     summary["seconds"] = time.perf_counter() - t0
     summary["simulation_seconds"] = secs
     return summary
+
+
+def _descriptions(targets, labels=None) -> dict:
+    """Shape name -> stored geometry, with the readable label where given."""
+    desc = {name: w.describe() for name, w in targets}
+    for name, label in (labels or {}).items():
+        if name in desc and label:
+            desc[name]["label"] = str(label)
+    return desc
 
 
 def _load_records(path):
@@ -423,9 +455,10 @@ def _load_records(path):
 def extend_table(path, reps: int, *, targets: list | None = None, ns: list | None = None,
                  jobs: int = 1, scheduler: str | None = None, progress=None,
                  n_fit: int | None = None, holdout: str | None = None,
-                 keep_parts: bool = False) -> dict:
+                 keep_parts: bool = False, before_write=None, labels: dict | None = None) -> dict:
     """Add ``reps`` replicates to every cell (or to the cells of ``targets`` x
-    ``ns``, creating missing ones) and rewrite the table atomically."""
+    ``ns``, creating missing ones) and rewrite the table atomically
+    (``before_write`` as in :func:`build_table`)."""
     if reps < 20:
         raise OptionError(f"--reps must be at least 20, got {reps}")
     info, records, stat_names = _load_records(path)
@@ -445,9 +478,7 @@ def extend_table(path, reps: int, *, targets: list | None = None, ns: list | Non
         first = {k: (r["chunks"], r["chunk_size"]) for k, r in by.items()}
         plans = _plans(targets, sorted(set(int(n) for n in ns)), reps, dim, first)
     refuse_endless(plans, reps)
-    desc = {}
-    if targets:
-        desc = {name: w.describe() for name, w in targets}
+    desc = _descriptions(targets, labels) if targets else {}
     t0 = time.perf_counter()
 
     def done(plan, assembled):
@@ -471,7 +502,7 @@ def extend_table(path, reps: int, *, targets: list | None = None, ns: list | Non
                           n_fit if n_fit is not None else int(info.attrs.get("model_n_fit", 200)),
                           holdout if holdout is not None else (info.attrs.get("holdout") or None),
                           {"simulation_seconds": float(info.attrs.get("simulation_seconds", 0.0))
-                           + secs})
+                           + secs}, before_write)
     if not keep_parts:
         ck.remove()
     summary["seconds"] = time.perf_counter() - t0
@@ -479,16 +510,33 @@ def extend_table(path, reps: int, *, targets: list | None = None, ns: list | Non
     return summary
 
 
-def refit_table(path, *, n_fit: int | None = None, holdout: str | None = None) -> dict:
-    """Recompute n_min and the finite-window model of a table (no simulation)."""
+def refit_table(path, *, n_fit: int | None = None, holdout: str | None = None,
+                before_write=None) -> dict:
+    """Recompute n_min and the finite-window model of a table (no simulation).
+
+    Raises
+    ------
+    OptionError
+        No finite-window model can be fitted (the reason, e.g. too few
+        cells); the table is left untouched.
+    """
     info, records, stat_names = _load_records(path)
     if holdout and holdout not in {r["shape"] for r in records}:
         raise OptionError(f"--holdout {holdout}: the table has no such shape "
                           f"(it has {', '.join(info.shapes())})")
     extra = {k: info.attrs[k] for k in ("simulation_seconds",) if k in info.attrs}
+
+    def check(summary):
+        if summary["model_missing"]:
+            raise OptionError(f"{path}: no finite-window model can be fitted: "
+                              f"{summary['model_missing']} (nothing was changed)")
+        if before_write is not None:
+            before_write(summary)
+
     return _finish(path, info.dimension, info.root_seed, stat_names, records,
                    n_fit if n_fit is not None else int(info.attrs.get("model_n_fit", 200)),
-                   holdout if holdout is not None else (info.attrs.get("holdout") or None), extra)
+                   holdout if holdout is not None else (info.attrs.get("holdout") or None), extra,
+                   check)
 
 
 def refit_geomodel(path) -> dict:

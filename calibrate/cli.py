@@ -49,13 +49,17 @@ def _float_list(text):
     return vals
 
 
-def _add_run_options(p, need_out=False):
+def _add_run_options(p, what="the table", dask=True):
+    """--jobs (and, for the commands that build tables, --dask-scheduler),
+    the progress bar and --json; ``what`` names what --jobs does not change."""
     p.add_argument("--jobs", "-j", type=_int, default=1, metavar="N",
-                   help="worker processes, 0 = all cores (default: 1); the table does not "
+                   help=f"worker processes, 0 = all cores (default: 1); {what} does not "
                    "depend on it")
-    p.add_argument("--dask-scheduler", metavar="ADDR",
-                   help="run the chunks on a dask.distributed cluster (e.g. tcp://host:8786) "
-                   "through joblib's Dask backend; the table is the same as with --jobs")
+    if dask:
+        p.add_argument("--dask-scheduler", metavar="ADDR",
+                       help="run the chunks on a dask.distributed cluster (e.g. "
+                       "tcp://host:8786) through joblib's Dask backend; the table is the same "
+                       "as with --jobs")
     bar = p.add_mutually_exclusive_group()
     bar.add_argument("--progress", dest="progress", action="store_true", default=None,
                      help="always show the progress bar (default: only on a terminal)")
@@ -109,8 +113,10 @@ def build_parser() -> argparse.ArgumentParser:
     e.add_argument("--reps", type=_int, required=True, metavar="R",
                    help=f"replicates to add per cell (20 to {MAX_REPS:,})")
     g = e.add_mutually_exclusive_group()
-    g.add_argument("--shape", metavar="NAME[,NAME...]")
-    g.add_argument("--window", metavar="SPEC")
+    g.add_argument("--shape", metavar="NAME[,NAME...]",
+                   help="only the cells of these named shapes (with --n: create missing ones)")
+    g.add_argument("--window", metavar="SPEC",
+                   help="only the cells of this window (as given to build --window)")
     e.add_argument("--n", type=_int_list, metavar="LIST",
                    help=f"point counts of the cells to extend or create (10 to {MAX_N:,} each)")
     e.add_argument("--allow-shipped", action="store_true",
@@ -131,7 +137,8 @@ def build_parser() -> argparse.ArgumentParser:
                    help=f"fresh CSR patterns per n (default: 1000, at most {MAX_REPS:,})")
     c.add_argument("--stat", action="append", metavar="NAME",
                    help="statistics (default: those of 'nullatlas test')")
-    c.add_argument("--table", action="append", metavar="FILE", help="your own table(s)")
+    c.add_argument("--table", action="append", metavar="FILE",
+                   help="your own table(s), consulted before the shipped ones")
     c.add_argument("--seed", type=_int, default=None, metavar="S",
                    help="seed of the fresh patterns (default: fixed, not the tables' seed)")
     c.add_argument("--pattern", metavar="FILE",
@@ -139,7 +146,7 @@ def build_parser() -> argparse.ArgumentParser:
     c.add_argument("--sims", type=_int, default=999, metavar="M",
                    help=f"Monte Carlo simulations for --pattern (default: 999, at most {MAX_SIMS:,})")
     c.add_argument("--plot", metavar="FILE", help="QQ plots and size against n")
-    _add_run_options(c)
+    _add_run_options(c, "the check's result (every pattern has its own seed)", dask=False)
 
     pw = sub.add_parser("power", help="power of every statistic against alternatives",
                         description="Empirical power at alpha = 0.05 of every statistic "
@@ -148,8 +155,8 @@ def build_parser() -> argparse.ArgumentParser:
                         "alternatives, as a function of their strength (share of structured "
                         "points; 0 = CSR).")
     g = pw.add_mutually_exclusive_group(required=True)
-    g.add_argument("--window", metavar="SPEC")
-    g.add_argument("--shape", metavar="NAME")
+    g.add_argument("--window", metavar="SPEC", help="the window (any spec)")
+    g.add_argument("--shape", metavar="NAME", help="a calibrated shape (unit area/volume)")
     pw.add_argument("--n", type=_int, required=True, metavar="N",
                     help=f"points per pattern (4 to {MAX_N:,})")
     pw.add_argument("--alt", action="append", required=True, metavar="NAME[:k=v,...]",
@@ -162,16 +169,19 @@ def build_parser() -> argparse.ArgumentParser:
     pw.add_argument("--sims", type=_int, default=199, metavar="M",
                     help=f"CSR simulations of the Monte Carlo baselines (default: 199, at most "
                     f"{MAX_SIMS:,})")
-    pw.add_argument("--stat", action="append", metavar="NAME")
-    pw.add_argument("--table", action="append", metavar="FILE")
-    pw.add_argument("--seed", type=_int, default=None, metavar="S")
+    pw.add_argument("--stat", action="append", metavar="NAME",
+                    help="statistics (default: those of 'nullatlas test'; repeatable)")
+    pw.add_argument("--table", action="append", metavar="FILE",
+                    help="your own table(s), consulted before the shipped ones")
+    pw.add_argument("--seed", type=_int, default=None, metavar="S",
+                    help="seed of the patterns (default: fixed)")
     pw.add_argument("--plot", metavar="FILE", help="power against strength")
-    _add_run_options(pw)
+    _add_run_options(pw, "the power", dask=False)
 
     f = sub.add_parser("fit", help="refit the finite-window model and n_min",
                        description="Recompute n_min and the finite-window model of a table "
                        "from its stored moments and audits (no simulation).")
-    f.add_argument("table")
+    f.add_argument("table", help="HDF5 table to refit (rewritten atomically)")
     f.add_argument("--n-fit", type=_int, default=None, metavar="N",
                    help="smallest n used in the fit (default: as stored)")
     f.add_argument("--holdout", metavar="SHAPE",
@@ -179,7 +189,7 @@ def build_parser() -> argparse.ArgumentParser:
     f.add_argument("--plot", metavar="FILE",
                    help="figure: cell means against the model for the mean nearest-neighbour "
                    "distance and the Euler curve")
-    f.add_argument("--json", action="store_true")
+    f.add_argument("--json", action="store_true", help="print a JSON summary")
     f.add_argument("--allow-shipped", action="store_true",
                    help="allow rewriting a table shipped with nullatlas (for regenerating them)")
 
@@ -205,7 +215,7 @@ def build_parser() -> argparse.ArgumentParser:
     v.add_argument("--plot", metavar="FILE",
                    help="figure: size at 0.05 against n on every held-out window, trusted or not, "
                    "for the default statistics")
-    _add_run_options(v)
+    _add_run_options(v, "the validation", dask=False)
     return p
 
 
@@ -236,6 +246,17 @@ def _jobs(j):
         sys.stderr.write(f"warning: --jobs {j} on {cores} cores; using {JOBS_PER_CORE * cores}\n")
         return JOBS_PER_CORE * cores
     return j or cores
+
+
+def _labels(a, targets):
+    """A readable name for a window given as a file: the file's name without
+    its extension (``lshape.wkt`` -> ``lshape``); none for other specs."""
+    import os
+
+    spec = getattr(a, "window", None)
+    if not spec or not targets or not os.path.isfile(spec):
+        return None
+    return {targets[0][0]: os.path.splitext(os.path.basename(spec))[0]}
 
 
 def _refuse_endless(ns, reps, dim, sims=None):
@@ -284,6 +305,28 @@ def _refuse_shipped(path):
                           "(or --allow-shipped to regenerate the shipped tables)")
 
 
+def _num(v, fmt):
+    """``v`` formatted, or None when it is missing."""
+    return None if v is None else format(v, fmt)
+
+
+def _holdout_line(shape, stat, v):
+    """One line on how well the model fitted without ``shape`` predicts it.
+
+    The error in pattern sd is measured only at the grid points the test
+    uses; a curve whose held-out cells have none says so instead of a number.
+    """
+    sd = _num(v.get("max_abs_sd"), ".3f")
+    sd = (f" = {sd} pattern sd" if sd is not None
+          else "; no grid point that the test uses, so no error in pattern sd")
+    nm = v.get("n_model")
+    within = (f"within 0.1 pattern sd from n = {nm}" if nm is not None
+              else "not shown within 0.1 pattern sd at any held-out n")
+    return (f"held-out {shape}: {stat} predicted with RMS error {v['rms_se']:.2f} SE "
+            f"(max {_num(v.get('max_abs_se'), '.2f')} SE{sd}) over {v['points']} cell grid "
+            f"points; {within}")
+
+
 def _print_summary(s, out=None):
     out = out or sys.stdout
     out.write(f"table {s['table']}: {s['dimension']}D, {s['cells']} cells, "
@@ -299,22 +342,36 @@ def _print_summary(s, out=None):
         out.write(f"model check, mean nearest-neighbour distance: mu = {nn['mu']:.4f} +- "
                   f"{nn['mu_se']:.4f} (CSR limit Gamma(4/3) (4 pi/3)^(-1/3) = 0.5540), boundary "
                   f"c = {nn['c']:.4f} +- {nn['c_se']:.4f}, chi2/dof = {nn['chi2']:.1f}/{nn['dof']}\n")
+    if s.get("model_missing"):
+        out.write(f"finite-window model: none ({s['model_missing']})\n")
     for stat, m in s["model"].items():
         for k, v in m.items():
             if k.startswith("holdout_") and v.get("rms_se") is not None:
-                nm = v.get("n_model")
-                out.write(f"held-out {k[8:]}: {stat} predicted with RMS error {v['rms_se']:.2f} SE "
-                          f"(max {v['max_abs_se']:.2f} SE = {v.get('max_abs_sd', float('nan')):.3f} "
-                          f"pattern sd) over {v['points']} cell grid points; within 0.1 sd from "
-                          f"n = {'-' if nm is None else nm}\n")
+                out.write(_holdout_line(k[8:], stat, v) + "\n")
+    from nullatlas.lookup.cli import nmin_text
+
     out.write("n_min (smallest calibrated n from which the asymptotic test holds; - = none):\n")
+    labels = s.get("labels") or {}
     for shape, per in s["n_min"].items():
-        items = []
-        for stat, tests in per.items():
-            items.append(stat + " " + "/".join("-" if v is None else str(v) for v in tests.values()))
-        out.write(f"  {shape}: " + "; ".join(items) + "\n")
+        name = f"{labels[shape]} ({shape})" if shape in labels else shape
+        out.write(f"  {name}: " + "; ".join(f"{stat} ({nmin_text(tests)})"
+                                             for stat, tests in per.items()) + "\n")
     if s.get("note"):
         out.write(f"note: {s['note']}\n")
+
+
+def _rendered_first(a):
+    """A ``before_write`` hook for the table commands: render the report the
+    command will print (text or ``--json``) before the table is written, so
+    that a report that cannot be made fails the command with nothing written."""
+    import io
+
+    def render(summary):
+        if a.json:
+            json.dumps(_clean(summary), allow_nan=False)
+        else:
+            _print_summary(summary, io.StringIO())
+    return render
 
 
 def _cmd_build(a):
@@ -324,9 +381,11 @@ def _cmd_build(a):
         raise OptionError(f"--n-fit must be at least 10, got {a.n_fit}")
     _check_table_out(a.out)
     seed = build.DEFAULT_SEED if a.seed is None else a.seed
-    return build.build_table(a.out, _targets(a), a.n, a.reps, stats=a.stat, root_seed=seed,
+    targets = _targets(a)
+    return build.build_table(a.out, targets, a.n, a.reps, stats=a.stat, root_seed=seed,
+                             labels=_labels(a, targets),
                              jobs=_jobs(a.jobs), scheduler=a.dask_scheduler, progress=a.progress,
-                             n_fit=a.n_fit, holdout=a.holdout)
+                             n_fit=a.n_fit, holdout=a.holdout, before_write=_rendered_first(a))
 
 
 def _cmd_extend(a):
@@ -337,7 +396,8 @@ def _cmd_extend(a):
     if a.n and targets is None:
         raise OptionError("--n needs --shape or --window")
     return build.extend_table(a.table, a.reps, targets=targets, ns=a.n, jobs=_jobs(a.jobs),
-                              scheduler=a.dask_scheduler, progress=a.progress)
+                              scheduler=a.dask_scheduler, progress=a.progress,
+                              labels=_labels(a, targets), before_write=_rendered_first(a))
 
 
 def _cmd_check(a):
@@ -377,7 +437,7 @@ def _print_check(s, out=None):
     out.write(f"check of the instant test: window {w['kind']} (kappa {w['kappa']:.4g}), "
               f"{s['reps']} fresh CSR patterns per n, seed {s['seed']}\n")
     out.write(f"{'n':>7}  {'statistic':<10}{'size@.05':>9} {'95% CI':<15}{'tails@.025':<14}"
-              f"{'KS':>7}{'z mean':>8}{'z sd':>7}  {'trusted':<8}verdict\n")
+              f"{'KS':>7}{'z mean':>8}{'z sd':>7}  {'trusted':<8}holds size\n")
     for r in s["results"]:
         if "size" not in r:
             out.write(f"{r['n']:>7}  {r['statistic']:<10}no table: {r['reason']}\n")
@@ -390,7 +450,7 @@ def _print_check(s, out=None):
         out.write(f"{r['n']:>7}  {r['statistic']:<10}{r['size'][1]:>9.3f} {ci:<15}{tails:<14}"
                   f"{ks:>7.3f}{'' if zm is None else format(zm, '8.3f'):>8}"
                   f"{'' if zs is None else format(zs, '7.3f'):>7}  {str(r['trusted']):<8}"
-                  f"{'agrees' if r['agrees'] else 'does not agree'}\n")
+                  f"{'yes' if r['holds_size'] else 'NO'}\n")
     if "pattern" in s:
         pt = s["pattern"]
         out.write(f"pattern {pt['file']} (n = {pt['n']}): instant vs Monte Carlo p-values\n")
@@ -399,7 +459,9 @@ def _print_check(s, out=None):
                       f"{'' if r['instant_trusted'] else ' (untrusted)'}   Monte Carlo "
                       f"{r['mc_p']:.4g} ({r['mc_sims']} sims)\n")
     out.write("KS: to N(0,1) for scalars, of the p-values to U(0,1) for curves and extremes. "
-              "Tails: lower/upper at 0.025 (scalars).\n")
+              "Tails: lower/upper at 0.025 (scalars). Holds size: the size at 0.05 is within "
+              "0.05 +- 0.01 and, for scalars, each tail within 0.025 +- 0.005, allowing two "
+              "binomial standard errors of this check.\n")
 
 
 def _cmd_power(a):
@@ -459,7 +521,8 @@ def _cmd_fit(a):
         if k < 4:
             raise OptionError(f"--n-fit {a.n_fit} leaves {k} cell(s) with n >= {a.n_fit}; the "
                               "model needs at least 4 (nothing was changed)")
-    s = build.refit_table(a.table, n_fit=a.n_fit, holdout=a.holdout)
+    s = build.refit_table(a.table, n_fit=a.n_fit, holdout=a.holdout,
+                          before_write=_rendered_first(a))
     if a.plot:
         from .modelplot import plot_model
         plot_model(a.table, a.plot)

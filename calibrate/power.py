@@ -27,9 +27,9 @@ import numpy as np
 
 from nullatlas.lookup.errors import OptionError
 from nullatlas.lookup.inference import ranks
-from nullatlas.lookup.inference.asymptotic import asymptotic_result, verdict
+from nullatlas.lookup.inference.asymptotic import asymptotic_result, instant_moments
 from nullatlas.lookup.inference.montecarlo import _alternative_for, simulate_null
-from nullatlas.lookup.inference.nullmoments import TableSet, default_tables, null_moments
+from nullatlas.lookup.inference.nullmoments import TableSet, default_tables
 from nullatlas.lookup.processes.csr import csr
 from nullatlas.lookup.processes.registry import FAMILIES, parse_model, simulate
 from nullatlas.lookup.summaries.statistics import STATISTICS, compute, resolve_stats
@@ -89,9 +89,10 @@ def power_study(window, n: int, alternatives: list[str], strengths, reps: int, *
     chosen = resolve_stats(stats, window.dim)
     base = [STATISTICS["lfunc"], STATISTICS["gfunc"]]
     allstats = chosen + [b for b in base if b not in chosen]
-    nms = {st.name: null_moments(tset, window, n, st.name) for st in chosen}
-    trust = {st.name: verdict(nms[st.name], st, n, window, _alternative_for(st, "two-sided")[0])
-             for st in chosen}
+    answers = {st.name: instant_moments(tset, window, n, st, _alternative_for(st, "two-sided")[0])
+               for st in chosen}
+    nms = {k: v[0] for k, v in answers.items()}
+    trust = {k: v[1:] for k, v in answers.items()}
     root = np.random.SeedSequence(int(seed))
     null_ss, rep_ss = root.spawn(2)
     null = simulate_null(window, n, base, null_ss.spawn(sims), jobs=jobs)

@@ -108,7 +108,7 @@ class Checkpoints:
 def _progress(total, enabled, desc):
     from tqdm.auto import tqdm
 
-    return tqdm(total=total, desc=desc, unit="pt", unit_scale=True, smoothing=0.05,
+    return tqdm(total=total, desc=desc, unit="pattern", smoothing=0.05,
                 disable=None if enabled is None else not enabled, leave=False)
 
 
@@ -159,8 +159,7 @@ def run_chunks(plans: list[CellPlan], stat_names: list, root_seed: int, *, jobs:
                 todo.append((p, idx, cnt))
             else:
                 pending[p.name][idx] = d
-    total_pts = sum(p.n * cnt for p, _, cnt in todo)
-    bar = _progress(total_pts, progress, f"calibration {dim}D")
+    bar = _progress(sum(cnt for _, _, cnt in todo), progress, f"calibration {dim}D")
 
     def complete(p):
         """Hand over a cell whose chunks are all there."""
@@ -188,7 +187,7 @@ def run_chunks(plans: list[CellPlan], stat_names: list, root_seed: int, *, jobs:
         if scheduler is None and jobs == 1:
             for (p, idx, cnt), a in zip(todo, args):
                 finished(p, idx, cnt, simulate_chunk(*a))
-                bar.update(p.n * cnt)
+                bar.update(cnt)
         else:
             from joblib import Parallel, delayed
 
@@ -203,7 +202,7 @@ def run_chunks(plans: list[CellPlan], stat_names: list, root_seed: int, *, jobs:
                 for i, d in par(delayed(tagged)(i, a) for i, a in enumerate(args)):
                     p, idx, cnt = todo[i]
                     finished(p, idx, cnt, d)
-                    bar.update(p.n * cnt)
+                    bar.update(cnt)
     finally:
         bar.close()
     out["_seconds"] = time.perf_counter() - t0

@@ -487,17 +487,24 @@ def run_batch(items: list[BatchItem], *, stats=None, method="auto", n_sims=999, 
     return res
 
 
+def results_document(res: BatchResult) -> dict:
+    """The JSON form of a batch: what ``--json`` prints and ``--out FILE.json``
+    writes (the same keys: ``seed``, ``files``, ``failed``, ``rows``)."""
+    from .results import _clean
+
+    return {"seed": getattr(res, "seed", None), "files": len(res.rows),
+            "failed": len(res.failed), "rows": _clean(res.rows)}
+
+
 def write_results(res: BatchResult, path: str) -> None:
     """Write the rows to ``path`` (.csv or .json), atomically."""
     from .atomic import atomic_path
-    from .results import _clean
 
     ext = os.path.splitext(path)[1].lower()
     with atomic_path(path) as tmp:
         if ext == ".json":
             with open(tmp, "w", encoding="utf-8") as fh:
-                json.dump({"seed": getattr(res, "seed", None), "rows": _clean(res.rows)}, fh,
-                          indent=1, allow_nan=False)
+                json.dump(results_document(res), fh, indent=1, allow_nan=False)
         else:
             keys = ["file", "window", "n", "statistic", "value", "p_value", "p_holm", "p_bh",
                     "method", "trusted", "reason", "error", "seed"]

@@ -143,11 +143,14 @@ def build_parser() -> argparse.ArgumentParser:
                    "FILE.journal.jsonl holds the finished files; a file changed since it was "
                    "tested, in size, time or content, is tested again)")
     b.add_argument("--stat", action="append", metavar="NAME", help="as for 'test'")
-    b.add_argument("--method", default="auto", choices=["auto", "asymptotic", "mc"])
+    b.add_argument("--method", default="auto", choices=["auto", "asymptotic", "mc"],
+                   help="as for 'test': instant where trusted, else Monte Carlo (default: auto)")
     b.add_argument("--fallback-budget", type=_float, default=None, metavar="SECONDS",
                    help="as for 'test', per file")
-    b.add_argument("--table", action="append", metavar="FILE")
-    b.add_argument("--sims", type=_int, default=999, metavar="M")
+    b.add_argument("--table", action="append", metavar="FILE",
+                   help="as for 'test': your own null table(s), consulted first")
+    b.add_argument("--sims", type=_int, default=999, metavar="M",
+                   help="as for 'test': Monte Carlo simulations per file (default: 999)")
     b.add_argument("--seed", type=_int, default=None, metavar="S",
                    help="batch seed: file i uses its i-th child (default: fresh, reported)")
     b.add_argument("--jobs", "-j", type=_int, default=1, metavar="N",
@@ -155,16 +158,23 @@ def build_parser() -> argparse.ArgumentParser:
     b.add_argument("--dask-scheduler", metavar="ADDR",
                    help="run the files on a dask.distributed cluster (e.g. tcp://host:8786); "
                    "the workers must see the files at the same paths")
-    b.add_argument("--alternative", default="two-sided", choices=["two-sided", "clustered", "regular"])
-    b.add_argument("--alpha", type=_float, default=0.05)
-    b.add_argument("--columns", metavar="COLS")
-    b.add_argument("--on-duplicates", default="error", choices=["error", "drop", "jitter"])
-    b.add_argument("--engine", default="fast", choices=["fast", "gudhi"])
+    b.add_argument("--alternative", default="two-sided", choices=["two-sided", "clustered", "regular"],
+                   help="as for 'test' (default: two-sided)")
+    b.add_argument("--alpha", type=_float, default=0.05,
+                   help="level of each file's test and false discovery rate of the summary line "
+                   "(default: 0.05)")
+    b.add_argument("--columns", metavar="COLS", help="as for 'test', for every file")
+    b.add_argument("--on-duplicates", default="error", choices=["error", "drop", "jitter"],
+                   help="as for 'test' (default: error)")
+    b.add_argument("--engine", default="fast", choices=["fast", "gudhi"],
+                   help="as for 'test' (default: fast)")
     b.add_argument("--plot", metavar="FILE", help="summary figure (.png, .pdf or .svg)")
     b.add_argument("--json", action="store_true", help="print the rows as JSON")
     bbar = b.add_mutually_exclusive_group()
-    bbar.add_argument("--progress", dest="progress", action="store_true", default=None)
-    bbar.add_argument("--no-progress", dest="progress", action="store_false")
+    bbar.add_argument("--progress", dest="progress", action="store_true", default=None,
+                      help="always show the progress bar (default: only on a terminal)")
+    bbar.add_argument("--no-progress", dest="progress", action="store_false",
+                      help="never show the progress bar")
 
     tb = sub.add_parser("tables", help="list what the null tables cover",
                         description="List the cells of null tables (shape, n, replicates) and "
@@ -268,6 +278,9 @@ def _cmd_batch(a) -> int:
         raise OptionError("--resume needs the --out of the interrupted batch")
     items = collect_inputs(a.inputs, a.window, a.columns, a.manifest, a.allow_absolute)
     journal = a.out + ".journal.jsonl" if a.out else None
+    if a.resume and not os.path.exists(journal):
+        sys.stderr.write(f"{PROG}: note: --resume: {_no_journal(a.out, journal)}; every file "
+                         "is tested again\n")
     res = run_batch(items, stats=a.stat, method=a.method, n_sims=a.sims, seed=a.seed,
                     jobs=a.jobs, alternative=a.alternative, on_duplicates=a.on_duplicates,
                     alpha=a.alpha, engine=a.engine, tables=a.table, progress=a.progress,
@@ -289,6 +302,14 @@ def _cmd_batch(a) -> int:
     return _batch_status(res)
 
 
+def _no_journal(out, journal) -> str:
+    """Why ``--resume`` finds nothing to resume from."""
+    if os.path.exists(out):
+        return (f"there is no journal {journal}: the batch that wrote {out} had finished (the "
+                "journal is removed once the results are written), so nothing was interrupted")
+    return f"there is no journal {journal}: no batch with --out {out} was interrupted"
+
+
 def _batch_status(res) -> int:
     """0: every file tested; 1: some failed; 2: all failed (``BATCH_STATUS``),
     with one line on standard error when not 0."""
@@ -307,9 +328,8 @@ def _batch_status(res) -> int:
 
 def _print_batch(res, a) -> None:
     if a.json:
-        from .results import _clean
-        json.dump({"seed": res.seed, "files": len(res.rows), "failed": len(res.failed),
-                   "rows": _clean(res.rows)}, sys.stdout, indent=1, allow_nan=False)
+        from .batch import results_document
+        json.dump(results_document(res), sys.stdout, indent=1, allow_nan=False)
         sys.stdout.write("\n")
         return
     w = sys.stdout.write
@@ -337,6 +357,8 @@ def _table_summary(path) -> dict:
     shapes = {}
     for c in info.cells:
         sh = shapes.setdefault(c.shape, {"kappa": c.kappa, "cells": []})
+        if c.label:
+            sh["label"] = c.label
         sh["cells"].append({"n": c.n, "replicates": c.replicates})
     for shape, sh in shapes.items():
         sh["n_min"] = {stat: {t: (None if v < 0 else v) for t, v in tests.items()}
@@ -346,6 +368,16 @@ def _table_summary(path) -> dict:
             "statistics": sorted({s for c in info.cells for s in c.stats}),
             "model": list(info.models), "geometric_model": list(info.geomodels),
             "validated_model_route": info.trust, "shapes": shapes}
+
+
+#: Readable names of the audited tests (the keys of n_min).
+TEST_LABELS = {"two_sided": "two-sided", "lower": "lower tail", "upper": "upper tail",
+               "maxabs": "max |z|", "mahalanobis": "Mahalanobis"}
+
+
+def nmin_text(tests: dict) -> str:
+    """n_min of one statistic, each test named: ``two-sided 200, upper tail -``."""
+    return ", ".join(f"{TEST_LABELS.get(k, k)} {'-' if v is None else v}" for k, v in tests.items())
 
 
 def _cmd_tables(a) -> int:
@@ -366,11 +398,13 @@ def _cmd_tables(a) -> int:
         for shape, sh in t["shapes"].items():
             ns = [c["n"] for c in sh["cells"]]
             reps = sorted({c["replicates"] for c in sh["cells"]})
-            w(f"  {shape} (kappa {sh['kappa']:.4g}): {len(ns)} cells, n = {min(ns)}..{max(ns)}, "
+            name = f"{sh['label']} (shape {shape}, " if sh.get("label") else f"{shape} ("
+            w(f"  {name}kappa {sh['kappa']:.4g}): {len(ns)} cells, n = {min(ns)}..{max(ns)}, "
               f"R = {'/'.join(map(str, reps))}\n")
+            if sh["n_min"]:
+                w("    n_min by statistic and test (smallest calibrated n from which it holds):\n")
             for stat, tests in sh["n_min"].items():
-                txt = ", ".join(f"{k} {'-' if v is None else v}" for k, v in tests.items())
-                w(f"      n_min {stat:<10} {txt}\n")
+                w(f"      {stat:<10} {nmin_text(tests)}\n")
         if t["validated_model_route"]:
             w("  model route (any other window) validated on held-out windows: trusted for n in "
               "this range and window measures up to these:\n")

@@ -90,10 +90,17 @@ class FallbackPlan:
             return [f"Monte Carlo fallback for {names} not run: {self.sims} simulations, "
                     f"{self.words()}, beyond --fallback-budget {self.budget:g} s; their instant "
                     "answers are reported UNTRUSTED (no p-value where there is none)"]
+        from .results import group_causes
+
         out = []
-        for i, (r, why) in untrusted.items():
-            what = "instant test not trusted" if r is not None else "no instant test"
-            out.append(f"{chosen[i].name}: {what} ({'; '.join(why)}); Monte Carlo used instead")
+        for what, has in (("instant test not trusted", True), ("no instant test", False)):
+            items = [(chosen[i].name, why) for i, (r, why) in untrusted.items()
+                     if (r is not None) == has]
+            out += [f"{what} for {', '.join(names)}: {cause}"
+                    for cause, names in group_causes(items)]
+        if untrusted:
+            out.append("Monte Carlo used instead for "
+                       + ", ".join(chosen[i].name for i in untrusted))
         return out
 
 
@@ -343,8 +350,8 @@ def csr_test(points, window, stats=None, *, method="auto", n_sims=999, seed=None
     results = [None] * len(chosen)
     untrusted = {}          # auto: index -> (untrusted instant answer or None, reasons)
     if method in ("auto", "asymptotic"):
-        from .inference.asymptotic import asymptotic_result, verdict
-        from .inference.nullmoments import TableSet, default_tables, null_moments
+        from .inference.asymptotic import asymptotic_result, instant_moments
+        from .inference.nullmoments import TableSet, default_tables
 
         if tables:
             from .inference.tablereader import open_table
@@ -354,9 +361,8 @@ def csr_test(points, window, stats=None, *, method="auto", n_sims=999, seed=None
             else default_tables()
         for i, st in enumerate(chosen):
             alt, note = montecarlo._alternative_for(st, alternative)
-            nm = null_moments(tset, window, n, st.name)
-            ok, why = verdict(nm, st, n, window, alt, report.n_duplicates,
-                              n_input=report.n_input)
+            nm, ok, why = instant_moments(tset, window, n, st, alt, report.n_duplicates,
+                                          n_input=report.n_input)
             if nm is None:
                 if method == "auto":
                     untrusted[i] = (None, why)

@@ -5,7 +5,35 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-__all__ = ["StatResult", "CSRTestResult"]
+__all__ = ["StatResult", "CSRTestResult", "group_causes"]
+
+
+def group_causes(items) -> list:
+    """Each cause once, with the statistics it affects.
+
+    Parameters
+    ----------
+    items : iterable of (str, list of str)
+        Statistic name and its reasons.
+
+    Returns
+    -------
+    list of (str, list of str)
+        (cause, statistic names), causes in the order they first appear.
+
+    Examples
+    --------
+    >>> from nullatlas.lookup.results import group_causes
+    >>> group_causes([("a", ["few replicates", "n small"]), ("b", ["few replicates"])])
+    [('few replicates', ['a', 'b']), ('n small', ['a'])]
+    """
+    out: dict = {}
+    for name, reasons in items:
+        for cause in reasons:
+            names = out.setdefault(cause, [])
+            if name not in names:
+                names.append(name)
+    return list(out.items())
 
 
 def _clean(v):
@@ -147,7 +175,10 @@ def summary_text(res, alpha: float = 0.05) -> str:
                      f"{_fmt(r.null_sd)}{_fmt(r.z, 8)}{_fmt(r.pvalue)}  {r.method}{flag}")
     lines.append("* primary test; the others are secondary, p-values unadjusted. "
                  "Curves: observed = max |z| over the grid.")
-    lines += [f"untrusted {r.name}: {r.reason}" for r in res.results if not r.trusted]
+    # each cause once, with the statistics it affects
+    lines += [f"untrusted {', '.join(names)}: {cause}"
+              for cause, names in group_causes((r.name, (r.details or {}).get("reasons") or [r.reason])
+                                               for r in res.results if not r.trusted)]
     if res.null != "csr":
         lines.append(f"null model: {res.null} (conditioned on n, Monte Carlo)")
     lines.append(f"Verdict: {_verdict(res, alpha)}.")
@@ -226,7 +257,7 @@ class CSRTestResult:
     >>> res.statistic == res.primary.statistic == res.results[0].statistic
     True
     >>> res["total1"].method, res.primary.reason
-    ('asymptotic-normal', 'instant test from the null table (cell: square-n00000200)')
+    ('asymptotic-normal', 'instant test from the null table null2d.h5 (cell: square-n00000200)')
     >>> sorted(json.loads(json.dumps(res.as_dict())))
     ['dimension', 'elapsed_s', 'engine', 'method', 'n', 'null', 'results', 'seed',
      'validation', 'warnings', 'window']

@@ -310,3 +310,21 @@ def test_resume_retests_files_changed_after_the_kill(tmp_path, monkeypatch, caps
     assert err.count("older nullatlas") == 1 and "3 row(s)" in err
     assert len(calls) == 4
     assert json.loads(out.read_text())["rows"] == json.loads((tmp_path / "ref.json").read_text())["rows"]
+
+
+def test_resume_of_a_finished_batch_says_why_it_retests(tmp_path, capsys):
+    """Issue 14: --resume on a batch that finished (its journal removed) says
+    so instead of silently recomputing; --out JSON has the keys of --json."""
+    _files(tmp_path / "in", 2)
+    out = tmp_path / "run.json"
+    args = ["batch", str(tmp_path / "in"), "-w", "rect:0,0,1,1", "--stat", "nnmean", "--method",
+            "mc", "--sims", "9", "--seed", "4", "--no-progress", "--json", "--out", str(out)]
+    assert cli.main(args) == 0
+    printed = json.loads(capsys.readouterr().out)
+    written = json.loads(out.read_text())
+    assert set(written) == set(printed) and written == printed
+    assert cli.main(args + ["--resume"]) == 0
+    err = capsys.readouterr().err
+    assert "had finished" in err and "every file is tested again" in err
+    assert cli.main(args[:-1] + [str(tmp_path / "new.json"), "--resume"]) == 0
+    assert "was interrupted" in capsys.readouterr().err

@@ -368,3 +368,105 @@ def test_runs_that_cannot_finish_are_refused_before_any_work(tmp_path, monkeypat
     with pytest.raises(SystemExit):
         cli.main(["build", "--help"])
     assert f"{MAX_REPS:,}" in capsys.readouterr().out
+
+
+def test_report_of_a_holdout_without_usable_grid_points_is_true(capsys):
+    """Issue 14: a held-out curve with no grid point the test uses (its error
+    in pattern sd is None) is reported in words, not with a traceback."""
+    s = {"table": "t.h5", "dimension": 2, "cells": 6, "replicates": 600, "root_seed": 1,
+         "model": {"betti1": {"holdout_disk": {"rms_se": 0.93, "max_abs_se": 3.04,
+                                               "max_abs_sd": None, "n_model": None,
+                                               "points": 114}}},
+         "n_min": {}, "model_missing": None}
+    import io
+    buf = io.StringIO()
+    cli._print_summary(s, buf)
+    text = buf.getvalue()
+    assert "no grid point that the test uses" in text and "None" not in text
+    assert "not shown within 0.1 pattern sd at any held-out n" in text
+
+
+def test_a_report_that_cannot_be_made_writes_no_table(tmp_path):
+    """Issue 14: the report is rendered before the table is written; when it
+    fails, no table exists and the checkpoints are kept for a rerun."""
+    out = tmp_path / "t.h5"
+
+    def fail(summary):
+        assert summary["cells"] == 2
+        raise RuntimeError("report failed")
+
+    with pytest.raises(RuntimeError):
+        build.build_table(str(out), [("square", shapes.shape_window("square"))], [30, 60], 20,
+                          stats=["nnmean"], root_seed=7, progress=False, n_fit=10,
+                          before_write=fail)
+    assert not out.exists() and os.path.isdir(str(out) + ".parts")
+
+
+def test_fit_that_cannot_make_a_model_says_why_before_writing(tmp_path, capsys):
+    """Issue 14: a table of one's own window with two cells has no
+    finite-window model; build says so, and fit (with or without --plot)
+    refuses with the reason, leaving table and figure unwritten."""
+    poly = tmp_path / "lshape.wkt"
+    poly.write_text("POLYGON((0 0, 30 0, 30 10, 10 10, 10 30, 0 30, 0 0))")
+    out = tmp_path / "mine.h5"
+    assert cli.main(["build", "--window", str(poly), "--n", "40,80", "--reps", "20",
+                     "--out", str(out), "--stat", "nnmean", "--no-progress"]) == 0
+    assert "finite-window model: none (the model needs at least 4 cells" in capsys.readouterr().out
+    before = out.read_bytes()
+    for extra in ([], ["--plot", str(tmp_path / "fig.png")]):
+        assert cli.main(["fit", str(out)] + extra) == 2
+        err = capsys.readouterr().err
+        assert err.count("\n") == 1 and "no finite-window model can be fitted" in err
+        assert "at least 4 cells" in err and "nothing was changed" in err
+    assert out.read_bytes() == before and not (tmp_path / "fig.png").exists()
+
+
+def test_every_option_has_a_help_line_and_jobs_says_what_it_keeps():
+    """Issue 14: every option of every subcommand of both commands has a
+    help line; check/power/validate do not claim a table for --jobs and have
+    no --dask-scheduler that they would ignore."""
+    import argparse
+
+    from nullatlas.lookup import cli as lcli
+    missing = []
+    subs = {}
+    for mod in (lcli, cli):
+        for act in mod.build_parser()._actions:
+            if isinstance(act, argparse._SubParsersAction):
+                for name, sp in act.choices.items():
+                    subs[(mod.PROG, name)] = sp
+                    missing += [(mod.PROG, name, x.dest) for x in sp._actions if not x.help]
+    assert missing == []
+    for name in ("check", "power", "validate"):
+        sp = subs[("nullatlas-calibrate", name)]
+        jobs = next(x for x in sp._actions if x.dest == "jobs")
+        assert "table" not in jobs.help
+        assert all(x.dest != "dask_scheduler" for x in sp._actions)
+
+
+def test_build_counts_patterns_and_names_a_users_window_by_its_file(tmp_path, monkeypatch, capsys):
+    """Issue 14: the build progress bar counts patterns; a window given as a
+    file is named after it in the build summary and in 'nullatlas tables',
+    whose n_min lines name their tests."""
+    bars = []
+    real = runner._progress
+
+    def spy(total, enabled, desc):
+        bars.append(real(total, enabled, desc))
+        return bars[-1]
+
+    monkeypatch.setattr(runner, "_progress", spy)
+    poly = tmp_path / "lshape.wkt"
+    poly.write_text("POLYGON((0 0, 30 0, 30 10, 10 10, 10 30, 0 30, 0 0))")
+    out = tmp_path / "mine.h5"
+    assert cli.main(["build", "--window", str(poly), "--n", "40,80", "--reps", "24",
+                     "--out", str(out), "--stat", "euler,nnmean", "--n-fit", "10",
+                     "--progress"]) == 0
+    assert bars[0].unit == "pattern" and bars[0].total == 48 and bars[0].n == 48
+    text = capsys.readouterr().out
+    assert "  lshape (polygon-" in text and "nnmean (lower tail " in text and "two-sided " in text
+    from nullatlas.lookup import cli as lcli
+    assert lcli.main(["tables", str(out)]) == 0
+    text = capsys.readouterr().out
+    assert "  lshape (shape polygon-" in text
+    assert "euler      max |z| " in text and "Mahalanobis" in text

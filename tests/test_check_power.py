@@ -22,7 +22,7 @@ def test_check_agrees_in_a_shipped_cell_and_not_far_below_n_min():
     w = windows.Rectangle(0, 0, 2, 2)          # the square shape at any size
     good = check.check_window(w, [1000], 600, stats=["total0", "nnmean"], jobs=2, progress=False)
     for r in good["results"]:
-        assert r["trusted"] and r["agrees"], r
+        assert r["trusted"] and r["holds_size"], r
         assert 0.3 < r["z_sd"] ** 2 * 3 < 3.3 and abs(r["z_mean"]) < 0.2
     bad = check.check_window(w, [12], 1500, stats=["euler", "maxpers1"], jobs=2, progress=False)
     by = {r["statistic"]: r for r in bad["results"]}
@@ -31,7 +31,7 @@ def test_check_agrees_in_a_shipped_cell_and_not_far_below_n_min():
     assert "outside the n where" in by["euler"]["reason"] or "below" in by["euler"]["reason"]
     # the largest loop at n = 12 is far from its n >= 50 null: the check must see the disagreement
     size = by["maxpers1"]["size"][1]
-    assert by["maxpers1"]["agrees"] is False and not 0.03 < size < 0.07, by["maxpers1"]
+    assert by["maxpers1"]["holds_size"] is False and not 0.03 < size < 0.07, by["maxpers1"]
 
 
 def test_check_cli_json_and_plot(tmp_path, capsys):
@@ -42,7 +42,7 @@ def test_check_cli_json_and_plot(tmp_path, capsys):
     d = json.loads(capsys.readouterr().out)
     assert [r["n"] for r in d["results"]] == [200, 400]
     r = d["results"][0]
-    assert {"size", "size_ci", "tails", "ks", "z_mean", "z_sd", "agrees", "trusted"} <= set(r)
+    assert {"size", "size_ci", "tails", "ks", "z_mean", "z_sd", "holds_size", "trusted"} <= set(r)
     assert len(r["size"]) == 3 and fig.stat().st_size > 1000
 
 
@@ -85,3 +85,18 @@ def test_bad_power_and_check_input(argv, frag, capsys):
 
 def test_shape_window_is_unit_area():
     assert abs(shape_window("rect4").measure - 1) < 1e-12
+
+
+def test_check_output_says_holds_size():
+    """Issue 14: check's last column says whether the instant test holds its
+    size (not 'agrees'), and the footer says what that means."""
+    import io
+    row = {"n": 400, "statistic": "total0", "size": [0.01, 0.08, 0.1],
+           "size_ci": [[0, 0.02], [0.06, 0.1], [0.08, 0.12]], "ks": 0.03, "z_mean": 0.1,
+           "z_sd": 1.0, "trusted": True, "holds_size": False}
+    s = {"window": {"kind": "disk", "kappa": 3.5}, "reps": 1000, "seed": 1, "results": [row]}
+    buf = io.StringIO()
+    cli._print_check(s, buf)
+    text = buf.getvalue()
+    assert "holds size" in text.splitlines()[1] and text.splitlines()[2].endswith(" NO")
+    assert "agree" not in text and "Holds size: the size at 0.05 is within 0.05 +- 0.01" in text

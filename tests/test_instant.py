@@ -178,14 +178,60 @@ def test_trusted_result_fields_and_json(capsys, tmp_path):
 def test_users_table_takes_precedence(tmp_path):
     from nullatlas.calibrate import build, shapes
     out = tmp_path / "mine.h5"
-    build.build_table(str(out), [("disk", shapes.shape_window("disk"))], [300, 600], 60,
+    build.build_table(str(out), [("disk", shapes.shape_window("disk"))], [300, 600], 480,
                       stats=["nnmean"], root_seed=5, progress=False, n_fit=10)
     w = windows.Disk(5, 5, 2)
     pts = w.sample(300, np.random.default_rng(2))
     r = csr_test(pts, w, ["nnmean"], method="asymptotic", tables=[str(out)])
-    assert r.primary.details["table"] == str(out)
+    assert r.primary.trusted and r.primary.details["table"] == str(out)
+    assert "mine.h5" in r.primary.reason
     r2 = csr_test(pts, w, ["nnmean"], method="asymptotic")
     assert r2.primary.details["table"] != str(out)
+
+
+def test_replicate_rule_of_the_trust_verdict():
+    """Issue 14: the Monte Carlo error of a table's moments and of its audit
+    limit trust: 200 replicates fail both parts of the rule, 500 pass."""
+    from nullatlas.lookup.inference.asymptotic import replicate_reasons
+    few = replicate_reasons(200)
+    assert len(few) == 2 and "200 replicates" in few[0] and "0.0707 pattern sd" in few[0]
+    assert "binomial standard error of 0.0154" in few[1]
+    assert replicate_reasons(500) == [] and replicate_reasons(5000) == []
+    assert len(replicate_reasons(450)) == 1          # mean fine, audit too noisy (R < 475)
+
+
+def test_a_table_of_few_replicates_is_not_trusted(tmp_path):
+    """Issue 14: a user table of 60 replicates per cell is not trusted like
+    one of thousands, and says why (alone, without the shipped tables)."""
+    from nullatlas.calibrate import build, shapes
+    out = tmp_path / "few.h5"
+    build.build_table(str(out), [("disk", shapes.shape_window("disk"))], [300, 600], 60,
+                      stats=["nnmean"], root_seed=5, progress=False, n_fit=10)
+    w = windows.Disk(5, 5, 2)
+    pts = w.sample(300, np.random.default_rng(2))
+    r = csr_test(pts, w, ["nnmean"], method="asymptotic", tables=[str(out)], use_shipped=False)
+    assert not r.primary.trusted and r.primary.details["table"] == str(out)
+    assert "only 60 replicates" in r.primary.reason and "cannot have checked" in r.primary.reason
+
+
+def test_a_users_table_never_makes_the_answer_worse(tmp_path):
+    """Issue 14: a table of the square at n = 200, 500 cannot answer n = 600
+    for the extreme maxpers1 (beyond its cells, no model); the shipped table
+    can, so it answers, and the reason says which table answered and why the
+    user's did not (a true reason: n outside its cells, not 'nearest kappa')."""
+    from nullatlas.calibrate import build, shapes
+    out = tmp_path / "sq.h5"
+    build.build_table(str(out), [("square", shapes.shape_window("square"))], [200, 500], 480,
+                      stats=["maxpers1"], root_seed=5, progress=False, n_fit=10)
+    w = windows.Rectangle(0, 0, 1, 1)
+    pts = w.sample(600, np.random.default_rng(4))
+    mine = csr_test(pts, w, ["maxpers1"], method="asymptotic", tables=[str(out)])
+    shipped = csr_test(pts, w, ["maxpers1"], method="asymptotic")
+    r = mine.primary
+    assert shipped.primary.trusted and r.trusted and r.pvalue == shipped.primary.pvalue
+    assert "null2d.h5" in r.reason and "sq.h5 could not give a trusted answer" in r.reason
+    assert "outside the table's cells of this window's shape (n 200..500)" in r.reason
+    assert "nearest kappa" not in r.reason
 
 
 def test_interpolation_between_cells_is_between_them():
@@ -382,3 +428,28 @@ def test_fallback_estimate_keeps_its_replicate_and_the_lower_bound_simulates_not
     plan = csrtest.plan_fallback(w, 10_000, resolve_stats(["nnmean"], 2),
                                  np.random.SeedSequence(1).spawn(999), 1, "fast", None, 1.0)
     assert plan.skip and plan.lower_bound and plan.first is None and plan.seconds > 1.0
+
+
+def test_each_cause_is_printed_once_with_its_statistics(tmp_path):
+    """Issue 14: a cause shared by several statistics (too few replicates in
+    the table) is one warning and one 'untrusted' line naming them all."""
+    import io
+
+    from nullatlas.calibrate import build, shapes
+    from nullatlas.lookup import cli as lcli
+    out = tmp_path / "few.h5"
+    build.build_table(str(out), [("disk", shapes.shape_window("disk"))], [300, 600], 60,
+                      stats=["nnmean", "total0"], root_seed=5, progress=False, n_fit=10)
+    w = windows.Disk(5, 5, 2)
+    pts = w.sample(300, np.random.default_rng(2))
+    kw = dict(tables=[str(out)], use_shipped=False, seed=1)
+    r = csr_test(pts, w, ["nnmean", "total0"], method="auto", n_sims=19, **kw)
+    few = [m for m in r.warnings if "only 60 replicates" in m]
+    assert len(few) == 1 and "nnmean, total0" in few[0]
+    assert sum("Monte Carlo used instead" in m for m in r.warnings) == 1
+    r = csr_test(pts, w, ["nnmean", "total0"], method="asymptotic", **kw)
+    buf = io.StringIO()
+    lcli._print_table(r, 0.05, buf)
+    lines = [x for x in buf.getvalue().splitlines() if "only 60 replicates" in x]
+    assert lines == [x for x in lines if x.startswith("untrusted nnmean, total0: ")]
+    assert len(lines) == 1

@@ -77,7 +77,7 @@ def _nm_model(trust):
     from nullatlas.lookup.inference.nullmoments import NullMoments
     nm = NullMoments("total0", "scalar", np.array([0.3]), np.array([[1e-4]]), None, None,
                      "model", [], None, {"two_sided": 50, "lower": 50, "upper": 50},
-                     (3.5, 7.0), (50, 100000))
+                     (3.5, 7.0), (50, 100000), replicates=2000)
     nm.extra["trust"] = trust
     return nm
 
@@ -163,3 +163,19 @@ def test_heldout_cell_extends_to_more_patterns_with_the_same_seeds(tmp_path):
         np.testing.assert_array_equal(a[k], b[k])
         np.testing.assert_array_equal(a[k][:3], part[k])
     assert not np.array_equal(a["total1"][:1], a["total1"][1:2])    # distinct patterns
+
+
+def test_an_unvalidated_table_is_one_cause_for_every_statistic():
+    """Issue 14: a table whose model route was never validated gives the same
+    reason for every statistic, so that it is printed once with their list."""
+    from nullatlas.lookup.inference.asymptotic import verdict
+    from nullatlas.lookup.patterns.windows import Rectangle
+    from nullatlas.lookup.summaries.statistics import STATISTICS
+
+    sq = Rectangle(0, 0, 2, 1)
+    nm = _nm_model(None)
+    nm.table = "/x/mine.h5"
+    _, a = verdict(nm, STATISTICS["total0"], 2000, sq, "two-sided")
+    _, b = verdict(nm, STATISTICS["nnmean"], 2000, sq, "two-sided")
+    assert a == b == ["the model route of mine.h5 was not validated on held-out windows "
+                      "(run 'nullatlas-calibrate validate' on it)"]

@@ -20,7 +20,9 @@ For an observed summary S with tabled null mean m and covariance C
 
 Trust verdict (:func:`verdict`): a result is untrusted when there is no
 table for the dimension or statistic, n is below the audited n_min of the
-test (or no calibrated n passed the audit), the answer comes from the
+test (or no calibrated n passed the audit), the table's cells have too few
+replicates for their mean or their audit to hold the size
+(:func:`replicate_reasons`), the answer comes from the
 finite-window model (a window that is not a calibrated shape, or n beyond
 the shape's cells) outside the range where the model was validated on
 held-out windows (n, share of the window near its boundary, share in
@@ -39,7 +41,8 @@ from . import globaltests as gt
 from .extremes import GumbelTail
 from .nullmoments import NullMoments
 
-__all__ = ["P_FLOOR", "N_GAUSS", "DUPLICATE_LIMIT", "test_key", "verdict", "asymptotic_result"]
+__all__ = ["P_FLOOR", "N_GAUSS", "DUPLICATE_LIMIT", "test_key", "verdict", "instant_moments",
+           "asymptotic_result"]
 
 #: Smallest p-value reported: below it a normal or Gumbel tail underflows in
 #: double precision, and the p-value is reported as this upper bound.
@@ -48,6 +51,60 @@ P_FLOOR = float(np.finfo(float).tiny)
 N_GAUSS = 10_000
 #: Fraction of handled duplicate points above which no asymptotic answer is trusted.
 DUPLICATE_LIMIT = 0.01
+#: Largest error of the size of a 0.05 test that a trusted answer may carry.
+SIZE_TOLERANCE = 0.01
+#: Level at which the replicate rule (:func:`replicate_reasons`) is judged.
+SIZE_LEVEL = 0.05
+
+
+def replicate_reasons(replicates: int, alpha: float = SIZE_LEVEL,
+                      tol: float = SIZE_TOLERANCE) -> list:
+    """Reasons against trusting moments estimated from ``replicates`` patterns.
+
+    Two Monte Carlo errors of a table limit what it can promise:
+
+    1. The tabled mean has standard error 1/sqrt(R) pattern sd.  A mean off
+       by e pattern sd moves the size of a one-sided test at level alpha by
+       about phi(z_(1-alpha)) |e| (0.103 |e| at 0.05, the steepest case: a
+       two-sided test moves only to second order).  Within its 95 % bound,
+       |e| <= 2/sqrt(R), the shift must stay within ``tol``:
+       2 phi(z_(1-alpha)) / sqrt(R) <= tol, i.e. R >= 425 at 0.05 and 0.01.
+    2. The audit that set n_min estimated the size from the same R patterns,
+       with binomial standard error sqrt(alpha (1 - alpha) / R); when that
+       exceeds ``tol`` the audit could not tell a size of alpha from one of
+       alpha + tol even at one standard error, so it has not checked the
+       size: R >= 475 at 0.05 and 0.01.
+
+    Tables of 500 or more replicates per cell (the shipped ones) pass both;
+    a table of 200 does not.
+
+    Parameters
+    ----------
+    replicates : int
+        Replicates behind the moments (smallest over the cells used).
+    alpha, tol : float
+        Level and tolerance of the size.
+
+    Returns
+    -------
+    list of str
+        Empty when the replicates suffice.
+    """
+    from scipy.stats import norm
+
+    r = max(int(replicates), 1)
+    out = []
+    shift = 2 * float(norm.pdf(norm.isf(alpha))) / np.sqrt(r)
+    if shift > tol:
+        out.append(f"the table's cells have only {r} replicates: the standard error of the "
+                   f"tabled mean ({1 / np.sqrt(r):.3g} pattern sd) could shift the size of a "
+                   f"{alpha:g} test by up to {shift:.4f} (95% bound; tolerance {tol:g})")
+    se = float(np.sqrt(alpha * (1 - alpha) / r))
+    if se > tol:
+        out.append(f"the audit of {r} replicates has a binomial standard error of {se:.4f} at "
+                   f"size {alpha:g}, more than the tolerance {tol:g}: it cannot have checked the "
+                   "size")
+    return out
 
 
 def test_key(kind: str, alternative: str, curve_test: str = "maxabs") -> str:
@@ -77,7 +134,10 @@ def _model_trust(nm: NullMoments, stat, n: int, window, key: str) -> list:
         return [f"the table ({nm.table}) predates the validated geometric model (schema "
                 f"version {nm.extra.get('schema_version', 1)}); rebuild it or use the shipped "
                 "tables"]
-    per = (nm.extra.get("trust") or {}).get(key)
+    if not nm.extra.get("trust"):       # one cause for every statistic of the table
+        return [f"the model route of {_table_name(nm)} was not validated on held-out windows "
+                "(run 'nullatlas-calibrate validate' on it)"]
+    per = nm.extra["trust"].get(key)
     if not per:
         return [f"the model route of '{stat.name}' ({key} test) was not validated on held-out "
                 "windows in this table"]
@@ -164,6 +224,7 @@ def verdict(nm: NullMoments | None, stat, n: int, window, alternative: str,
     elif n < nmin:
         reasons.append(f"n = {n} is below n_min = {nmin} of the {key} test of '{stat.name}' "
                        f"for {where}")
+    reasons += replicate_reasons(nm.replicates)
     if nm.kind == "curve" and (nm.usable is None or not np.any(nm.usable)):
         reasons.append(f"no grid point of '{stat.name}' has a near-normal null at this n")
     # one rule for 'drop' and 'jitter': the share of the points read
@@ -171,6 +232,56 @@ def verdict(nm: NullMoments | None, stat, n: int, window, alternative: str,
         reasons.append(f"{n_duplicates} duplicate points were dropped or jittered "
                        f"(more than {DUPLICATE_LIMIT:.0%})")
     return (not reasons), reasons
+
+
+def _table_name(nm: NullMoments) -> str:
+    import os
+
+    return os.path.basename(str(nm.table or "")) or "this table"
+
+
+def instant_moments(tables, window, n: int, stat, alternative: str, n_duplicates: int = 0,
+                    curve_test: str = "maxabs", n_input: int | None = None):
+    """The null moments of the first table, in order, whose instant answer is trusted.
+
+    A table given by the user comes before the shipped ones; when it cannot
+    give a trusted answer (e.g. n beyond its cells, no validated model) and a
+    later table can, the later one answers, so that a table of one's own
+    never makes the answer worse than the shipped tables would.  When no
+    table gives a trusted answer, the first table's answer is kept, with
+    its reasons.
+
+    Parameters
+    ----------
+    tables : TableSet
+    window, n, stat, alternative, n_duplicates, curve_test, n_input
+        As for :func:`verdict`.
+
+    Returns
+    -------
+    (NullMoments or None, bool, list of str)
+        The moments, whether trusted, and the reasons against them; each
+        reason names the table it comes from when several tables were asked,
+        and an answer by a later table says why the earlier ones did not give it.
+    """
+    from .nullmoments import null_moments_each
+
+    tried = []
+    for nm in null_moments_each(tables, window, n, stat.name):
+        ok, why = verdict(nm, stat, n, window, alternative, n_duplicates, curve_test, n_input)
+        if ok:
+            if tried:
+                nm.extra["passed_over"] = [
+                    f"{_table_name(m)} could not give a trusted answer ({'; '.join(w)})"
+                    for m, w in tried]
+            return nm, True, []
+        tried.append((nm, why))
+    if not tried:
+        return (None,) + verdict(None, stat, n, window, alternative)
+    nm, why = tried[0]
+    if len(tables.for_dimension(window.dim)) > 1:
+        why = [f"{_table_name(nm)}: {w}" for w in why]
+    return nm, False, why
 
 
 _NULL_CACHE: dict = {}
@@ -274,7 +385,13 @@ def asymptotic_result(stat, observed, nm: NullMoments, alternative: str, n: int,
         details["p_value_floor"] = P_FLOOR
         p = P_FLOOR
     reason = "; ".join(([note] if note else []) + reasons) if not trusted else \
-        (note or f"instant test from the null table ({nm.route}: {', '.join(nm.cells)})")
+        (note or f"instant test from the null table {_table_name(nm)} ({nm.route}: "
+         f"{', '.join(nm.cells)})")
+    if not trusted:
+        details["reasons"] = ([note] if note else []) + list(reasons)
+    if trusted and nm.extra.get("passed_over"):
+        reason += "; " + "; ".join(nm.extra["passed_over"])
+        details["passed_over"] = list(nm.extra["passed_over"])
     return StatResult(name=stat.name, kind=stat.kind, statistic=statistic, pvalue=p,
                       observed=statistic, null_mean=mu_s, null_sd=sd_s, z=zz, method=method,
                       alternative=alt, trusted=trusted, reason=reason, primary=primary,

@@ -44,7 +44,7 @@ from ..summaries.statistics import STATISTICS
 from .extremequantiles import extreme_design, quantile_sample
 from .tablereader import open_table, read_m2, shipped_tables
 
-__all__ = ["NullMoments", "TableSet", "null_moments", "default_tables"]
+__all__ = ["NullMoments", "TableSet", "null_moments", "null_moments_each", "default_tables"]
 
 
 @dataclass
@@ -226,6 +226,16 @@ class TableSet:
             for d, p in sorted(shipped_tables().items()):
                 if os.path.realpath(p) not in have:
                     self.tables.append(_Table(p))
+
+    def for_dimension(self, d: int) -> list:
+        return [t for t in self.tables if t.d == d]
+
+
+class _OneTable:
+    """A view of one table of a :class:`TableSet` (``null_moments_each``)."""
+
+    def __init__(self, table: _Table):
+        self.tables = [table]
 
     def for_dimension(self, d: int) -> list:
         return [t for t in self.tables if t.d == d]
@@ -458,6 +468,24 @@ def _nearest_cells(t: _Table, stat: str, kap: float, n: int, prefer: str | None 
     return near_shape, br
 
 
+def null_moments_each(tables: TableSet, window, n: int, stat: str):
+    """The answer of every table that has one, in the order of ``tables``.
+
+    :func:`null_moments` takes the first of these; the caller that weighs
+    trust (``asymptotic.instant_moments``) may prefer a later table (the
+    shipped one) when the first cannot give a trusted answer.
+
+    Yields
+    ------
+    NullMoments
+        One per table of the window's dimension that can answer.
+    """
+    for t in tables.for_dimension(window.dim):
+        nm = null_moments(_OneTable(t), window, n, stat)
+        if nm is not None:
+            yield nm
+
+
 def null_moments(tables: TableSet, window, n: int, stat: str) -> NullMoments | None:
     """Null moments of ``stat`` for ``n`` points in ``window``.
 
@@ -554,8 +582,15 @@ def null_moments(tables: TableSet, window, n: int, stat: str) -> NullMoments | N
                 if st.kind == "extreme":
                     nn = n if len(br) == 2 else br[0].n
                     mom = _from_cells(t, stat, br, nn, d)
-                    approx = (f"no valid finite-window model for the extreme '{stat}' here: null "
-                              f"of the calibrated shape with the nearest kappa ({near_shape})")
+                    if near_shape == shape:
+                        approx = (f"n = {n} is outside the table's cells of this window's "
+                                  f"shape (n {ns[0]}..{ns[1]}) and the table has no valid "
+                                  f"finite-window model for the extreme '{stat}': null of its "
+                                  f"cell at n = {br[0].n}, not of n = {n}")
+                    else:
+                        approx = (f"no valid finite-window model for the extreme '{stat}' here: "
+                                  "null of the calibrated shape with the nearest kappa "
+                                  f"({near_shape})")
                     route = "nearest-shape"
                 else:
                     mom = _model_moments(t, stat, n, kap, d, br)

@@ -74,6 +74,16 @@ class CellInfo:
     spec: str = ""
     chunk_size: int = 0
     chunks: int = 0
+    label: str = ""     # readable name of a user's window (its file name), "" if none
+
+
+def _label(g) -> str:
+    """The readable name stored in a cell's geometry (``build --window FILE``)."""
+    try:
+        geo = json.loads(g.attrs.get("geometry", "{}"))
+    except (TypeError, ValueError):
+        return ""
+    return str(geo.get("label", "")) if isinstance(geo, dict) else ""
 
 
 @dataclass
@@ -176,7 +186,7 @@ def open_table(path, dimension: int | None = None) -> TableInfo:
                     replicates=int(_attr(g, "replicates", where)),
                     kappa=float(_attr(g, "kappa", where)), stats=stats,
                     spec=str(g.attrs.get("spec", "")), chunk_size=int(g.attrs.get("chunk_size", 0)),
-                    chunks=int(g.attrs.get("chunks", 0))))
+                    chunks=int(g.attrs.get("chunks", 0)), label=_label(g)))
             for shape, sg in fh.get("nmin", {}).items():
                 info.nmin[shape] = {}
                 for sname, ds in sg.items():
