@@ -254,7 +254,7 @@ def _one(item: BatchItem, opts: dict, seed: int) -> dict:
         return row
     p = res.primary
     row.update({"n": res.n, "statistic": p.name, "value": p.statistic, "p_value": p.pvalue,
-                "method": p.method, "trusted": p.trusted, "reason": p.reason,
+                "method": p.method, "n_sims": p.n_sims, "trusted": p.trusted, "reason": p.reason,
                 "secondary": {r.name: r.pvalue for r in res.results[1:]}})
     return row
 

@@ -327,6 +327,8 @@ def _batch_status(res) -> int:
 
 
 def _print_batch(res, a) -> None:
+    from .results import method_label
+
     if a.json:
         from .batch import results_document
         json.dump(results_document(res), sys.stdout, indent=1, allow_nan=False)
@@ -342,7 +344,7 @@ def _print_batch(res, a) -> None:
             continue
         flag = "" if r["trusted"] else "  UNTRUSTED"
         w(f"{name:<36}{r['n']:>8}  {r['statistic']:<10}{_fmt(r['p_value'])}{_fmt(r['p_holm'])}"
-          f"{_fmt(r['p_bh'])}  {r['method']}{flag}\n")
+          f"{_fmt(r['p_bh'])}  {method_label(r['method'], r.get('n_sims'))}{flag}\n")
     rej = sum(1 for r in res.rows if r["p_bh"] is not None and r["p_bh"] <= a.alpha)
     w(f"{rej} file(s) with CSR rejected at a false discovery rate of {a.alpha:g} "
       "(Benjamini-Hochberg over the primary test)\n")

@@ -123,6 +123,11 @@ class StatResult:
         return (f"StatResult({self.name}: statistic={self.statistic:.4g}, pvalue={self.pvalue:.4g}, "
                 f"method={self.method!r}{'' if self.trusted else ', UNTRUSTED'})")
 
+    @property
+    def method_label(self) -> str:
+        """The method in plain words (``method`` keeps the precise label)."""
+        return method_label(self.method, self.n_sims)
+
     def as_dict(self, curves: bool = True) -> dict:
         d = {"statistic": self.name, "kind": self.kind, "observed": self.observed,
              "null_mean": self.null_mean, "null_sd": self.null_sd, "z": self.z,
@@ -134,6 +139,47 @@ class StatResult:
         if curves and self.curve is not None:
             d["curve"] = self.curve
         return _clean(d)
+
+
+_PLAIN = {
+    "asymptotic-normal": "instant, normal z",
+    "asymptotic-maxabs": "instant, max |z| over the curve",
+    "table-empirical-gumbel-tail": "instant, tabled null with Gumbel tail",
+    "mc-rank": "simulation, {n}rank",
+    "mc-erl-envelope": "simulation, {n}envelope",
+    "none": "no test",
+    "untested": "no test",
+}
+
+
+def method_label(method, n_sims=None) -> str:
+    """Plain words for a method label, for the printed tables.
+
+    Parameters
+    ----------
+    method : str or None
+        The precise label kept in JSON and in ``StatResult.method``.
+    n_sims : int, optional
+        Simulated patterns behind a Monte Carlo answer, said when known.
+
+    Returns
+    -------
+    str
+        For example ``"instant, normal z"`` or ``"simulation, 999 patterns, rank"``;
+        an unknown label is returned unchanged.
+
+    Examples
+    --------
+    >>> from nullatlas.lookup.results import method_label
+    >>> method_label("mc-rank", 999)
+    'simulation, 999 patterns, rank'
+    >>> method_label("asymptotic-maxabs")
+    'instant, max |z| over the curve'
+    """
+    if method is None:
+        return "-"
+    text = _PLAIN.get(method, method)
+    return text.format(n=f"{n_sims} patterns, " if n_sims else "")
 
 
 _COLUMNS = ("statistic", "kind", "observed", "null_mean", "null_sd", "z", "p_value", "method",
@@ -172,7 +218,7 @@ def summary_text(res, alpha: float = 0.05) -> str:
         name = r.name + ("*" if r.primary else "")
         flag = "" if r.trusted else "  UNTRUSTED"
         lines.append(f"{name:<12}{r.kind:<9}{_fmt(r.observed)}{_fmt(r.null_mean, 11)}"
-                     f"{_fmt(r.null_sd)}{_fmt(r.z, 8)}{_fmt(r.pvalue)}  {r.method}{flag}")
+                     f"{_fmt(r.null_sd)}{_fmt(r.z, 8)}{_fmt(r.pvalue)}  {r.method_label}{flag}")
     lines.append("* primary test; the others are secondary, p-values unadjusted. "
                  "Curves: observed = max |z| over the grid.")
     # each cause once, with the statistics it affects

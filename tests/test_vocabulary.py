@@ -1,0 +1,56 @@
+"""Issue 14, one vocabulary: plain words in printed tables, help texts, shared option syntax."""
+import json
+import os
+
+import pytest
+
+from nullatlas.lookup.cli import main
+from nullatlas.lookup.results import method_label
+
+EX = os.path.join(os.path.dirname(os.path.dirname(os.path.abspath(__file__))), "examples")
+WAFER = "disk:0,0,150"
+JARGON = ("asymptotic-", "table-empirical", "mc-rank", "mc-erl")
+
+
+def _last_column_ok(text):
+    """No jargon label anywhere in a printed table."""
+    assert not any(j in text for j in JARGON), text
+
+
+def test_printed_table_says_plain_words_json_keeps_labels(capsys):
+    path = os.path.join(EX, "wafer_lot_clustered.csv")
+    assert main(["test", path, "--window", WAFER, "--method", "asymptotic", "--no-progress"]) in (0, 1)
+    text = capsys.readouterr().out
+    _last_column_ok(text)
+    assert "instant, max |z| over the curve" in text
+    assert main(["test", path, "--window", WAFER, "--method", "asymptotic", "--no-progress",
+                 "--json"]) in (0, 1)
+    methods = {r["method"] for r in json.loads(capsys.readouterr().out)["results"]}
+    assert "asymptotic-maxabs" in methods
+
+
+def test_printed_table_monte_carlo_says_patterns(capsys):
+    path = os.path.join(EX, "wafer_lot_random.csv")
+    assert main(["test", path, "--window", WAFER, "--method", "mc", "--sims", "19", "--seed", "3",
+                 "--stat", "nnmean", "--no-progress"]) in (0, 1)
+    text = capsys.readouterr().out
+    _last_column_ok(text)
+    assert "simulation, 19 patterns, rank" in text
+
+
+def test_batch_table_says_plain_words(capsys):
+    files = [os.path.join(EX, f) for f in ("wafer_lot_random.csv", "wafer_lot_regular.csv")]
+    assert main(["batch", *files, "--window", WAFER, "--method", "asymptotic",
+                 "--no-progress"]) in (0, 1)
+    text = capsys.readouterr().out
+    _last_column_ok(text)
+    assert "instant, max |z| over the curve" in text
+
+
+@pytest.mark.parametrize("label,n,words", [
+    ("asymptotic-normal", 0, "instant, normal z"),
+    ("table-empirical-gumbel-tail", 0, "instant, tabled null with Gumbel tail"),
+    ("mc-erl-envelope", 999, "simulation, 999 patterns, envelope"),
+    ("something-new", 0, "something-new")])
+def test_method_label_words(label, n, words):
+    assert method_label(label, n) == words
