@@ -46,6 +46,13 @@ FALLBACK_HELP = (
     "their instant answer, flagged UNTRUSTED with the estimate in the reason (no p-value "
     "where there is none); 0 never runs it. Default: no budget, the fallback always runs")
 
+#: What the "kappa" of the printed header means (``nullatlas test --help``).
+KAPPA_HELP = (
+    "kappa, printed with the window, is its boundary measure / content^((d-1)/d) in d "
+    "dimensions (perimeter / sqrt(area) in 2D, surface / volume^(2/3) in 3D): a scale-free "
+    "shape factor, 3.54 for a disk, 4 for a square, 6 for a cube; the larger it is, the more "
+    "of the window lies near its boundary.")
+
 #: Exit statuses of ``nullatlas batch`` (its --help and the README say the same).
 BATCH_STATUS = (
     "Exit status: 0 every file was tested; 1 some files failed (each failed row carries its "
@@ -67,7 +74,7 @@ def build_parser() -> argparse.ArgumentParser:
 
     t = sub.add_parser("test", help="test one point pattern against CSR",
                        description="Test one point pattern against CSR (binomial null "
-                       "conditional on the number of points).")
+                       "conditional on the number of points).", epilog=KAPPA_HELP)
     t.add_argument("points", help="points file: CSV/TSV/whitespace text (header optional), "
                    ".npy, or FILE.h5:/dataset")
     t.add_argument("--window", "-w", required=True, metavar="SPEC",

@@ -54,3 +54,17 @@ def test_batch_table_says_plain_words(capsys):
     ("something-new", 0, "something-new")])
 def test_method_label_words(label, n, words):
     assert method_label(label, n) == words
+
+
+def test_test_help_explains_kappa(capsys):
+    with pytest.raises(SystemExit):
+        main(["test", "--help"])
+    text = " ".join(capsys.readouterr().out.split())
+    assert "kappa" in text and "scale-free shape factor" in text
+    assert "3.54 for a disk, 4 for a square, 6 for a cube" in text
+
+
+def test_readme_explains_kappa_at_first_mention():
+    readme = open(os.path.join(os.path.dirname(EX), "README.md"), encoding="utf-8").read()
+    first = readme.lower().index("kappa")
+    assert "scale-free shape factor" in " ".join(readme[first:first + 300].split())
