@@ -21,6 +21,23 @@ PROG = "nullatlas-calibrate"
 
 
 def _int_list(text):
+    """The one parser of ``--n`` in every command (build, extend, check, power).
+
+    Parameters
+    ----------
+    text : str
+        Whole numbers separated by commas (or semicolons), spaces around them
+        allowed: ``200``, ``200,500``, ``"200, 500"``; ``1e4`` is a whole number.
+
+    Returns
+    -------
+    list of int
+
+    Raises
+    ------
+    argparse.ArgumentTypeError
+        A value that is not a whole number, or no value at all.
+    """
     vals = []
     for v in (t.strip() for t in text.replace(";", ",").split(",")):
         if not v:
@@ -157,8 +174,9 @@ def build_parser() -> argparse.ArgumentParser:
     g = pw.add_mutually_exclusive_group(required=True)
     g.add_argument("--window", metavar="SPEC", help="the window (any spec)")
     g.add_argument("--shape", metavar="NAME", help="a calibrated shape (unit area/volume)")
-    pw.add_argument("--n", type=_int, required=True, metavar="N",
-                    help=f"points per pattern (4 to {MAX_N:,})")
+    pw.add_argument("--n", type=_int_list, required=True, metavar="LIST",
+                    help=f"points per pattern, e.g. 200 or 200,500 (4 to {MAX_N:,} each; "
+                    "one study per value)")
     pw.add_argument("--alt", action="append", required=True, metavar="NAME[:k=v,...]",
                     help="alternative: thomas, matern, hardcore, strauss, lattice, "
                     "inhom:EXPR (repeatable)")
@@ -474,13 +492,16 @@ def _cmd_power(a):
         check_plot_path(a.plot)
     if a.sims < 19:
         raise OptionError(f"--sims must be at least 19, got {a.sims}")
-    if a.n < 4:
-        raise OptionError(f"--n must be at least 4 points (as for nullatlas test), got {a.n}")
+    small = [n for n in a.n if n < 4]
+    if small:
+        raise OptionError(f"--n must be at least 4 points (as for nullatlas test), got {small[0]}")
     w = shapes.shape_window(a.shape) if a.shape else parse_window(a.window)
-    _refuse_endless([a.n], a.reps, w.dim, a.sims)
-    res = power.power_study(w, a.n, a.alt, a.strength, a.reps, stats=a.stat, tables=a.table,
-                            sims=a.sims, seed=power.POWER_SEED if a.seed is None else a.seed,
-                            jobs=_jobs(a.jobs), progress=a.progress)
+    _refuse_endless(a.n, a.reps, w.dim, a.sims)
+    studies = [power.power_study(w, n, a.alt, a.strength, a.reps, stats=a.stat, tables=a.table,
+                                 sims=a.sims, seed=power.POWER_SEED if a.seed is None else a.seed,
+                                 jobs=_jobs(a.jobs), progress=a.progress)
+               for n in dict.fromkeys(a.n)]
+    res = power.merge_studies(studies)
     if a.plot:
         power.plot_power(res, a.plot)
         res["plot"] = a.plot
@@ -489,7 +510,12 @@ def _cmd_power(a):
 
 
 def _print_power(s, out=None):
+    """Print a power study, one block per n when it has several."""
     out = out or sys.stdout
+    if isinstance(s["n"], list):
+        for n in s["n"]:
+            _print_power(dict(s, n=n, rows=[r for r in s["rows"] if r["n"] == n]), out)
+        return
     out.write(f"power at alpha = {s['alpha']:g}: n = {s['n']}, window {s['window']['kind']}, "
               f"{s['reps']} patterns per cell, seed {s['seed']}\n")
     alts = list(dict.fromkeys(r["alternative"] for r in s["rows"]))

@@ -145,6 +145,39 @@ def power_study(window, n: int, alternatives: list[str], strengths, reps: int, *
             "seed": int(seed), "alpha": alpha, "rows": rows}
 
 
+def merge_studies(studies: list) -> dict:
+    """One result from the studies of several n (one study is returned unchanged).
+
+    Parameters
+    ----------
+    studies : list of dict
+        Results of :func:`power_study` on the same window and alternatives.
+
+    Returns
+    -------
+    dict
+        With several studies: ``n`` is the list of n and every row carries
+        its ``n``; the other keys are the first study's.
+    """
+    if len(studies) == 1:
+        return studies[0]
+    rows = [dict(r, n=s["n"]) for s in studies for r in s["rows"]]
+    return dict(studies[0], n=[s["n"] for s in studies], rows=rows)
+
+
+def _ns_text(n) -> str:
+    """``200`` or ``200, 500``."""
+    return ", ".join(str(x) for x in n) if isinstance(n, list) else str(n)
+
+
+def _rows_for_plot(res: dict) -> dict:
+    """A merged study with one panel per alternative and n."""
+    if not isinstance(res["n"], list):
+        return res
+    rows = [dict(r, alternative=f"{r['alternative']}, n = {r['n']}") for r in res["rows"]]
+    return dict(res, rows=rows)
+
+
 _MARKERS = "osD^v<>PXh*p"
 
 
@@ -196,6 +229,7 @@ def plot_power(res: dict, path: str | None = None):
     """
     from nullatlas.lookup.plots import new_figure, save_figure
 
+    res = _rows_for_plot(res)
     alts = list(dict.fromkeys(r["alternative"] for r in res["rows"]))
     stats = list(dict.fromkeys(r["statistic"] for r in res["rows"]))
     strengths = sorted({r["strength"] for r in res["rows"]})
@@ -216,7 +250,8 @@ def plot_power(res: dict, path: str | None = None):
         if k + ncol >= len(alts):                    # lowest panel of its column
             ax.set_xlabel("strength (share of structured points)")
             ax.xaxis.set_tick_params(labelbottom=True)
-    fig.suptitle(f"power, n = {res['n']}, window {res['window']['kind']}, {res['reps']} patterns per "
+    fig.suptitle(f"power, n = {_ns_text(res['n'])}, window {res['window']['kind']}, "
+                 f"{res['reps']} patterns per "
                  f"point, 95% Wilson intervals\nsolid: instant tests, dashed: baselines; dotted: alpha; "
                  f"points dodged sideways by {dx:.3g} per statistic for legibility", fontsize=9)
     fig.tight_layout(rect=(0, legend_h / (3.3 * nrow + legend_h + 0.4), 1, 1))

@@ -68,3 +68,55 @@ def test_readme_explains_kappa_at_first_mention():
     readme = open(os.path.join(os.path.dirname(EX), "README.md"), encoding="utf-8").read()
     first = readme.lower().index("kappa")
     assert "scale-free shape factor" in " ".join(readme[first:first + 300].split())
+
+
+# --n in nullatlas-calibrate: one parser, one syntax in every command
+CAL_ARGS = {"build": ["build", "--out", "t.h5", "--shape", "square", "--reps", "100"],
+            "extend": ["extend", "t.h5", "--shape", "square", "--reps", "100"],
+            "check": ["check", "--shape", "square"],
+            "power": ["power", "--shape", "square", "--alt", "thomas"]}
+
+
+def _subparsers(parser):
+    import argparse
+
+    act = next(a for a in parser._actions if isinstance(a, argparse._SubParsersAction))
+    return act.choices
+
+
+def test_every_n_option_uses_the_one_list_parser():
+    from nullatlas.calibrate import cli as cal
+
+    subs = _subparsers(cal.build_parser())
+    users = [name for name, sp in subs.items()
+             for a in sp._actions if "--n" in a.option_strings]
+    assert set(users) >= set(CAL_ARGS)
+    for name in users:
+        n_opt = next(a for a in subs[name]._actions if "--n" in a.option_strings)
+        assert n_opt.type is cal._int_list, name
+
+
+@pytest.mark.parametrize("command", sorted(CAL_ARGS))
+@pytest.mark.parametrize("text,ns", [("200", [200]), ("200,500", [200, 500]),
+                                     ("200, 500", [200, 500])])
+def test_n_list_syntax_in_every_command(command, text, ns):
+    from nullatlas.calibrate import cli as cal
+
+    assert cal.build_parser().parse_args(CAL_ARGS[command] + ["--n", text]).n == ns
+
+
+def test_power_runs_one_study_per_n(capsys, tmp_path):
+    from nullatlas.calibrate import cli as cal
+
+    fig = tmp_path / "power.png"
+    assert cal.main(["power", "--shape", "square", "--n", "30,40", "--alt", "thomas",
+                     "--strength", "0", "--reps", "20", "--sims", "19", "--stat", "nnmean",
+                     "--plot", str(fig)]) == 0
+    text = capsys.readouterr().out
+    assert "n = 30," in text and "n = 40," in text
+    assert fig.stat().st_size > 1000
+    assert cal.main(["power", "--shape", "square", "--n", "30,40", "--alt", "thomas",
+                     "--strength", "0", "--reps", "20", "--sims", "19", "--stat", "nnmean",
+                     "--json"]) == 0
+    d = json.loads(capsys.readouterr().out)
+    assert d["n"] == [30, 40] and {r["n"] for r in d["rows"]} == {30, 40}
