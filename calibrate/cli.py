@@ -16,6 +16,7 @@ import sys
 from nullatlas.lookup.cli import _int, _Parser, guarded
 from nullatlas.lookup.errors import OptionError
 from nullatlas.lookup.limits import MAX_N, MAX_POINTS_TOTAL, MAX_REPS, MAX_SIMS
+from nullatlas.lookup.processes.modelspec import models_help
 
 PROG = "nullatlas-calibrate"
 
@@ -53,6 +54,11 @@ def _int_list(text):
     if not vals:
         raise argparse.ArgumentTypeError("empty list of n values")
     return vals
+
+
+def _pct(text: str) -> str:
+    """Escape ``%`` for an argparse help string."""
+    return text.replace("%", "%%")
 
 
 def _float_list(text):
@@ -178,8 +184,8 @@ def build_parser() -> argparse.ArgumentParser:
                     help=f"points per pattern, e.g. 200 or 200,500 (4 to {MAX_N:,} each; "
                     "one study per value)")
     pw.add_argument("--alt", action="append", required=True, metavar="NAME[:k=v,...]",
-                    help="alternative: thomas, matern, hardcore, strauss, lattice, "
-                    "inhom:EXPR (repeatable)")
+                    help="alternative (repeatable), given as NAME or NAME:key=value,...; lengths "
+                    f"in mean spacings, defaults shown: {_pct(models_help())}")
     pw.add_argument("--strength", type=_float_list, default=[0.0, 0.25, 0.5, 0.75, 1.0],
                     metavar="LIST", help="strengths in [0, 1] (default: 0,0.25,0.5,0.75,1)")
     pw.add_argument("--reps", type=_int, default=200, metavar="R",

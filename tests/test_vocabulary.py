@@ -120,3 +120,17 @@ def test_power_runs_one_study_per_n(capsys, tmp_path):
                      "--json"]) == 0
     d = json.loads(capsys.readouterr().out)
     assert d["n"] == [30, 40] and {r["n"] for r in d["rows"]} == {30, 40}
+
+
+def test_power_help_lists_every_registered_alternative(capsys):
+    from nullatlas.calibrate import cli as cal
+    from nullatlas.lookup.processes import registry
+
+    with pytest.raises(SystemExit):
+        cal.main(["power", "--help"])
+    text = " ".join(capsys.readouterr().out.split())
+    assert registry.alternatives()
+    for name in registry.alternatives():
+        assert f"{name}:" in text, name
+        for key in registry.FAMILIES[name]:
+            assert f"{key}=" in text and f"{key} in " in text, (name, key)

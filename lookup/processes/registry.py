@@ -34,31 +34,12 @@ import numpy as np
 from ..errors import OptionError
 from . import alternatives as alt
 from .csr import csr
+from .modelspec import FAMILIES, RANGES, SUMMARIES, alternatives, models_help
 
-__all__ = ["FAMILIES", "parse_model", "simulate", "describe"]
+__all__ = ["FAMILIES", "RANGES", "SUMMARIES", "alternatives", "models_help", "parse_model",
+           "simulate", "describe"]
 
-FAMILIES = {
-    "csr": {},
-    "thomas": {"parents": 0.05, "sigma": 0.25},
-    "matern": {"parents": 0.05, "radius": 0.5},
-    "hardcore": {"r": 0.4},
-    "strauss": {"gamma": 0.2, "r": 0.7},
-    "lattice": {"jitter": 0.5},
-    "voids": {"fraction": 0.3, "radius": 3.0},
-    "inhom": {},
-}
-
-
-#: Accepted range (low, high, low inclusive, high inclusive) of every
-#: parameter, in the normalised units of the model (lengths in mean
-#: spacings; ``parents`` per point): a simulation outside them is empty,
-#: degenerate or too large to make (a judgement, stated in --help).
-RANGES = {
-    "parents": (0.0, 1.0, False, True), "sigma": (0.0, 1000.0, False, True),
-    "radius": (0.0, 1000.0, False, True), "r": (0.0, 10.0, False, True),
-    "gamma": (0.0, 1.0, True, True), "jitter": (0.0, 100.0, True, True),
-    "fraction": (0.0, 0.95, True, False),
-}
+# the model table lives in the numpy-free modelspec (for fast --help texts)
 
 _NUMBER = re.compile(r"^[+-]?(\d+(\.\d*)?|\.\d+)([eE][+-]?\d+)?$")
 
