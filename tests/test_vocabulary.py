@@ -134,3 +134,24 @@ def test_power_help_lists_every_registered_alternative(capsys):
         assert f"{name}:" in text, name
         for key in registry.FAMILIES[name]:
             assert f"{key}=" in text and f"{key} in " in text, (name, key)
+
+
+def _quick_start():
+    readme = open(os.path.join(os.path.dirname(EX), "README.md"), encoding="utf-8").read()
+    block = readme.split("## Quick start", 1)[1].split("```bash", 1)[1].split("```", 1)[0]
+    return [line for line in block.strip().splitlines() if line.strip()]
+
+
+def test_readme_quick_start_is_two_minimal_true_commands(capsys, monkeypatch):
+    import shlex
+
+    lines = _quick_start()
+    assert len(lines) == 2 and lines[1].endswith("python -m pytest")
+    install, _, run = lines[0].partition(" && ")
+    assert install == "pip install ." and "--sims" not in run and "--seed" not in run
+    argv = shlex.split(run)
+    assert argv[0] == "nullatlas"
+    monkeypatch.chdir(os.path.dirname(EX))
+    assert main(argv[1:] + ["--no-progress"]) in (0, 1)
+    out = capsys.readouterr().out
+    assert "Verdict:" in out and "simulation" not in out       # the answer is instant
