@@ -155,3 +155,16 @@ def test_readme_quick_start_is_two_minimal_true_commands(capsys, monkeypatch):
     assert main(argv[1:] + ["--no-progress"]) in (0, 1)
     out = capsys.readouterr().out
     assert "Verdict:" in out and "simulation" not in out       # the answer is instant
+
+
+def test_shipped_wafer_manifest_has_no_error_row(capsys):
+    manifest = os.path.join(EX, "wafers.manifest")
+    assert main(["batch", "--manifest", manifest, "--no-progress", "--json"]) == 0
+    d = json.loads(capsys.readouterr().out)
+    assert len(d["rows"]) == 4 and not d["failed"]
+    assert all(not r["error"] and r["p_value"] is not None for r in d["rows"])
+
+
+def test_readme_shows_the_wafer_manifest():
+    readme = open(os.path.join(os.path.dirname(EX), "README.md"), encoding="utf-8").read()
+    assert "nullatlas batch --manifest examples/wafers.manifest" in readme
