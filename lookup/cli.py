@@ -478,11 +478,29 @@ def _sigterm_as_interrupt():
         signal.signal(signal.SIGTERM, old)
 
 
+# After Ctrl-C or SIGTERM the aborted worker pool may leave a semaphore for
+# joblib's resource tracker to clean up; the tracker (a helper process started
+# with this interpreter's -W options) then warns about it on our standard
+# error, after our one line.  The clean-up is what we want; the warning is noise.
+_TRACKER_QUIET = ("ignore::UserWarning:joblib.externals.loky.backend.resource_tracker",
+                  "ignore::UserWarning:multiprocessing.resource_tracker")
+
+
+def _quiet_resource_tracker() -> None:
+    """Pass warning filters to the resource trackers (joblib's and the standard
+    library's), which are started with :data:`sys.warnoptions`
+    (``subprocess._args_from_interpreter_flags``)."""
+    for option in _TRACKER_QUIET:
+        if option not in sys.warnoptions:
+            sys.warnoptions.append(option)
+
+
 def guarded(prog: str, run, hint: str = "") -> int:
     """Run ``run()`` the way every nullatlas command ends: an input error is one
     line on standard error and status 2; a closed output pipe (``| head``) is
     not an error; Ctrl-C is status 130, SIGTERM status 143 (worker processes
     ended with the command in both cases); ``hint`` follows those two messages."""
+    _quiet_resource_tracker()
     try:
         with _sigterm_as_interrupt():
             rc = run()
