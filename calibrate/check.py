@@ -73,7 +73,7 @@ def check_window(window, ns, reps: int, *, stats=None, tables=None, seed: int = 
         for st in chosen:
             alt, _ = _alternative_for(st, "two-sided")
             nm, trusted, why = instant_moments(tset, window, n, st, alt)
-            row = {"n": int(n), "statistic": st.name, "kind": st.kind,
+            row = {"n": int(n), "name": st.name, "kind": st.kind,
                    "trusted": trusted, "reason": "; ".join(why)}
             if nm is None:
                 row.update({"holds_size": None})
@@ -119,7 +119,7 @@ def plot_check(res: dict, path: str) -> str:
 
     check_plot_path(path)
     rows = [r for r in res["results"] if "qq" in r]
-    names = list(dict.fromkeys(r["statistic"] for r in rows))
+    names = list(dict.fromkeys(r["name"] for r in rows))
     ns = sorted({r["n"] for r in rows})
     nplot = len(names) + (1 if len(ns) > 1 else 0)
     ncol = min(3, max(nplot, 1))
@@ -127,7 +127,7 @@ def plot_check(res: dict, path: str) -> str:
     fig, axes = plt.subplots(nrow, ncol, figsize=(4.4 * ncol, 3.8 * nrow), squeeze=False)
     axes = axes.ravel()
     for ax, name in zip(axes, names):
-        for r in (x for x in rows if x["statistic"] == name):
+        for r in (x for x in rows if x["name"] == name):
             q = np.asarray(r["qq"])
             m = len(q)
             pp = (np.arange(1, m + 1) - 0.5) / m
@@ -146,7 +146,7 @@ def plot_check(res: dict, path: str) -> str:
     if len(ns) > 1:
         ax = axes[len(names)]
         for name in names:
-            rs = sorted((x for x in rows if x["statistic"] == name), key=lambda r: r["n"])
+            rs = sorted((x for x in rows if x["name"] == name), key=lambda r: r["n"])
             s = [r["size"][1] for r in rs]
             lo = [max(0.0, r["size"][1] - r["size_ci"][1][0]) for r in rs]
             hi = [max(0.0, r["size_ci"][1][1] - r["size"][1]) for r in rs]

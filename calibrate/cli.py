@@ -444,8 +444,8 @@ def _cmd_check(a):
         inst = csr_test(a.pattern, w, method="asymptotic", **kw)
         mc = csr_test(a.pattern, w, method="mc", n_sims=a.sims, jobs=_jobs(a.jobs), **kw)
         res["pattern"] = {"file": a.pattern, "n": inst.n, "rows": [
-            {"statistic": r.name, "instant_p": r.pvalue, "instant_trusted": r.trusted,
-             "mc_p": q.pvalue, "mc_sims": q.n_sims} for r, q in zip(inst.results, mc.results)]}
+            {"name": r.name, "instant_pvalue": r.pvalue, "instant_trusted": r.trusted,
+             "mc_pvalue": q.pvalue, "mc_sims": q.n_sims} for r, q in zip(inst.results, mc.results)]}
     if a.plot:
         check.plot_check(res, a.plot)
         res["plot"] = a.plot
@@ -460,18 +460,18 @@ def _print_check(s, out=None):
     w = s["window"]
     out.write(f"check of the instant test: window {w['kind']} (kappa {w['kappa']:.4g}), "
               f"{s['reps']} fresh CSR patterns per n, seed {s['seed']}\n")
-    out.write(f"{'n':>7}  {'statistic':<10}{'size@.05':>9} {'95% CI':<15}{'tails@.025':<14}"
+    out.write(f"{'n':>7}  {'name':<10}{'size@.05':>9} {'95% CI':<15}{'tails@.025':<14}"
               f"{'KS':>7}{'z mean':>8}{'z sd':>7}  {'trusted':<8}holds size\n")
     for r in s["results"]:
         if "size" not in r:
-            out.write(f"{r['n']:>7}  {r['statistic']:<10}no table: {r['reason']}\n")
+            out.write(f"{r['n']:>7}  {r['name']:<10}no table: {r['reason']}\n")
             continue
         ci = "[%.3f, %.3f]" % tuple(r["size_ci"][1])
         tails = ("%.3f/%.3f" % (r["tails"]["lower"][1], r["tails"]["upper"][1])) if "tails" in r else "-"
         ks = r.get("ks", r.get("ks_pvalues"))
         zm = r.get("z_mean")
         zs = r.get("z_sd")
-        out.write(f"{r['n']:>7}  {r['statistic']:<10}{r['size'][1]:>9.3f} {ci:<15}{tails:<14}"
+        out.write(f"{r['n']:>7}  {r['name']:<10}{r['size'][1]:>9.3f} {ci:<15}{tails:<14}"
                   f"{ks:>7.3f}{'' if zm is None else format(zm, '8.3f'):>8}"
                   f"{'' if zs is None else format(zs, '7.3f'):>7}  {str(r['trusted']):<8}"
                   f"{'yes' if r['holds_size'] else 'NO'}\n")
@@ -479,9 +479,9 @@ def _print_check(s, out=None):
         pt = s["pattern"]
         out.write(f"pattern {pt['file']} (n = {pt['n']}): instant vs Monte Carlo p-values\n")
         for r in pt["rows"]:
-            out.write(f"  {r['statistic']:<10} instant {r['instant_p']:.4g}"
+            out.write(f"  {r['name']:<10} instant {r['instant_pvalue']:.4g}"
                       f"{'' if r['instant_trusted'] else ' (untrusted)'}   Monte Carlo "
-                      f"{r['mc_p']:.4g} ({r['mc_sims']} sims)\n")
+                      f"{r['mc_pvalue']:.4g} ({r['mc_sims']} sims)\n")
     out.write("KS: to N(0,1) for scalars, of the p-values to U(0,1) for curves and extremes. "
               "Tails: lower/upper at 0.025 (scalars). Holds size: the size at 0.05 is within "
               "0.05 +- 0.01 and, for scalars, each tail within 0.025 +- 0.005, allowing two "
@@ -525,13 +525,13 @@ def _print_power(s, out=None):
     out.write(f"power at alpha = {s['alpha']:g}: n = {s['n']}, window {s['window']['kind']}, "
               f"{s['reps']} patterns per cell, seed {s['seed']}\n")
     alts = list(dict.fromkeys(r["alternative"] for r in s["rows"]))
-    stats = list(dict.fromkeys(r["statistic"] for r in s["rows"]))
+    stats = list(dict.fromkeys(r["name"] for r in s["rows"]))
     for a in alts:
         strengths = sorted({r["strength"] for r in s["rows"] if r["alternative"] == a})
-        out.write(f"{a}\n  {'statistic':<13}" + "".join(f"{'s=' + format(x, 'g'):>9}" for x in strengths)
+        out.write(f"{a}\n  {'name':<13}" + "".join(f"{'s=' + format(x, 'g'):>9}" for x in strengths)
                   + "\n")
         for st in stats:
-            rs = {r["strength"]: r for r in s["rows"] if r["alternative"] == a and r["statistic"] == st}
+            rs = {r["strength"]: r for r in s["rows"] if r["alternative"] == a and r["name"] == st}
             mark = "" if not rs or list(rs.values())[0]["trusted"] in (True, None) else " (untrusted)"
             out.write(f"  {st + mark:<13}" + "".join(f"{rs[x]['power']:>9.3f}" if x in rs else f"{'-':>9}"
                                                      for x in strengths) + "\n")
@@ -624,7 +624,7 @@ def _print_validate(s, out=None):
         def f(k):
             v = r.get(k)
             return f"{v:6.3f}" if isinstance(v, float) else f"{'':6s}"
-        out.write(f"{r['window']:14s} {r['n']:6d} {r['statistic']:10s} {r['route']:6s} "
+        out.write(f"{r['window']:14s} {r['n']:6d} {r['name']:10s} {r['route']:6s} "
                   f"{r['mean_err_sd']:+8.3f} {f('size')} {f('lower')} {f('upper')}  "
                   f"{'yes' if r['passed'] else 'NO'}\n")
     out.write("validated range of the model route (trusted inside): upper bounds on the share "
@@ -664,7 +664,8 @@ def main(argv=None) -> int:
              "check": _cmd_check, "power": _cmd_power, "validate": _cmd_validate}[a.command](a)
         kind = s.pop("_kind", "table")
         if a.json:
-            json.dump(_clean(s), sys.stdout, indent=2, allow_nan=False)
+            from nullatlas.lookup.results import SCHEMA
+            json.dump(_clean({"schema": SCHEMA, **s}), sys.stdout, indent=2, allow_nan=False)
             sys.stdout.write("\n")
         elif kind == "check":
             _print_check(s)

@@ -138,7 +138,7 @@ def power_study(window, n: int, alternatives: list[str], strengths, reps: int, *
             k, m = int(np.sum(hits)), len(hits)
             tr = trust.get(stat)
             rows.append({"alternative": alternatives[ai], "strength": strengths[si],
-                         "statistic": stat, "power": k / m, "ci": wilson(k, m), "reps": m,
+                         "name": stat, "power": k / m, "ci": wilson(k, m), "reps": m,
                          "instant": stat in trust,
                          "trusted": None if tr is None else bool(tr[0])})
     return {"window": window.describe(), "n": int(n), "reps": int(reps), "sims": int(sims),
@@ -191,7 +191,7 @@ def _dodge(strengths: list, k: int) -> float:
 def _power_panel(ax, res: dict, alt: str, stats: list, dx: float) -> None:
     """One alternative: power against strength, one dodged line per statistic."""
     for j, s in enumerate(stats):
-        rs = sorted((r for r in res["rows"] if r["alternative"] == alt and r["statistic"] == s),
+        rs = sorted((r for r in res["rows"] if r["alternative"] == alt and r["name"] == s),
                     key=lambda r: r["strength"])
         off = (j - (len(stats) - 1) / 2) * dx
         x = [r["strength"] + off for r in rs]
@@ -231,7 +231,7 @@ def plot_power(res: dict, path: str | None = None):
 
     res = _rows_for_plot(res)
     alts = list(dict.fromkeys(r["alternative"] for r in res["rows"]))
-    stats = list(dict.fromkeys(r["statistic"] for r in res["rows"]))
+    stats = list(dict.fromkeys(r["name"] for r in res["rows"]))
     strengths = sorted({r["strength"] for r in res["rows"]})
     ncol = min(3, len(alts))
     nrow = -(-len(alts) // ncol)

@@ -70,9 +70,11 @@ class BatchResult:
     Attributes
     ----------
     rows : list of dict
-        ``file``, ``n``, ``statistic`` (primary), ``value``, ``p_value``,
-        ``method``, ``trusted``, ``reason``, ``p_holm``, ``p_bh``, ``error``,
-        ``secondary`` (name -> p-value, unadjusted).
+        ``file``, ``window``, ``n``, ``name`` (of the primary statistic),
+        ``statistic`` (its value), ``pvalue``, ``pvalue_is_bound``, ``method``,
+        ``n_sims``, ``trusted``, ``reason``, ``pvalue_holm``, ``pvalue_bh``,
+        ``error``, ``secondary`` (name -> p-value, unadjusted), ``seed``:
+        the names of the results' attributes (schema 2).
     statistic, pvalue : ndarray
         Primary statistics and raw p-values (NaN for failed files).
     """
@@ -81,11 +83,12 @@ class BatchResult:
 
     @property
     def pvalue(self) -> np.ndarray:
-        return np.array([r["p_value"] if r["p_value"] is not None else np.nan for r in self.rows])
+        return np.array([r["pvalue"] if r["pvalue"] is not None else np.nan for r in self.rows])
 
     @property
     def statistic(self) -> np.ndarray:
-        return np.array([r["value"] if r["value"] is not None else np.nan for r in self.rows])
+        return np.array([r["statistic"] if r["statistic"] is not None else np.nan
+                         for r in self.rows])
 
     @property
     def failed(self) -> list:
@@ -182,7 +185,7 @@ def check_options(opts: dict) -> None:
     from .summaries.statistics import STATISTICS
 
     _check_options(opts["method"], opts["n_sims"], 1, opts["alternative"], opts["alpha"],
-                   opts["engine"])
+                   opts["engine"], opts.get("curve_test", "maxabs"))
     check_budget(opts.get("fallback_budget"))
     for raw in opts.get("stats") or ():
         for name in str(raw).split(","):
@@ -235,8 +238,9 @@ def _one(item: BatchItem, opts: dict, seed: int) -> dict:
 
     from .csrtest import csr_test
 
-    row = {"file": item.path, "window": item.window, "n": None, "statistic": None, "value": None,
-           "p_value": None, "method": None, "trusted": None, "reason": "", "error": "",
+    row = {"file": item.path, "window": item.window, "n": None, "name": None, "statistic": None,
+           "pvalue": None, "pvalue_is_bound": None, "method": None, "trusted": None, "reason": "",
+           "error": "",
            "secondary": {}, "seed": seed,
            # identity before reading: a file changed meanwhile is retested on resume
            "_input": input_identity(item)}
@@ -248,13 +252,15 @@ def _one(item: BatchItem, opts: dict, seed: int) -> dict:
                            alternative=opts["alternative"], on_duplicates=opts["on_duplicates"],
                            alpha=opts["alpha"], columns=parse_columns(item.columns),
                            progress=False, engine=opts["engine"], tables=opts.get("tables"),
-                           fallback_budget=opts.get("fallback_budget"))
+                           fallback_budget=opts.get("fallback_budget"),
+                           curve_test=opts.get("curve_test", "maxabs"))
     except NullAtlasError as exc:
         row["error"] = str(exc)
         return row
     p = res.primary
-    row.update({"n": res.n, "statistic": p.name, "value": p.statistic, "p_value": p.pvalue,
-                "method": p.method, "n_sims": p.n_sims, "trusted": p.trusted, "reason": p.reason,
+    row.update({"n": res.n, "name": p.name, "statistic": p.statistic, "pvalue": p.pvalue,
+                "pvalue_is_bound": p.pvalue_is_bound, "method": p.method, "n_sims": p.n_sims,
+                "trusted": p.trusted, "reason": p.reason,
                 "secondary": {r.name: r.pvalue for r in res.results[1:]}})
     return row
 
@@ -290,8 +296,10 @@ def input_identity(item: BatchItem) -> dict:
     return out
 
 
-#: Journal format: 2 records each row's input identity (version 1 did not).
-JOURNAL_VERSION = 2
+#: Journal format: 2 records each row's input identity (version 1 did not);
+#: 3 names the row's keys as the results do (schema 2: ``name``, ``statistic``,
+#: ``pvalue``); rows of older journals are tested again.
+JOURNAL_VERSION = 3
 
 
 def _journal_header(items, opts, seed):
@@ -313,7 +321,7 @@ def _read_journal(path, items, opts, seed, notify):
         raise OptionError(f"{path}: unreadable batch journal; remove it to start afresh") from None
     if not isinstance(head, dict) or head.get("journal") != "nullatlas-batch":
         raise OptionError(f"{path}: not a nullatlas batch journal")
-    if head.get("version") not in (1, JOURNAL_VERSION):
+    if head.get("version") not in (1, 2, JOURNAL_VERSION):
         raise OptionError(f"{path}: batch journal of another nullatlas version "
                           f"({head.get('version')}); remove it to start afresh")
     want = _journal_header(items, opts, head["seed"] if seed is None else seed)
@@ -326,6 +334,8 @@ def _read_journal(path, items, opts, seed, notify):
             r = json.loads(ln)
         except json.JSONDecodeError:
             break                      # a line cut by the interruption: recompute from here
+        if head.get("version") != JOURNAL_VERSION:
+            r.pop("_input", None)                    # other keys: tested again
         last[int(r.pop("_index"))] = r          # a row tested again is written again, later
     return head["seed"], _unchanged(path, items, last, notify)
 
@@ -391,7 +401,8 @@ def run_batch(items: list[BatchItem], *, stats=None, method="auto", n_sims=999, 
               jobs=1, alternative="two-sided", on_duplicates="error", alpha=0.05,
               engine="fast", tables=None, progress=None, journal: str | None = None,
               resume: bool = False, scheduler: str | None = None,
-              notify=None, fallback_budget: float | None = None) -> BatchResult:
+              notify=None, fallback_budget: float | None = None,
+              curve_test: str = "maxabs") -> BatchResult:
     """Test every item; see the module docstring.
 
     Parameters
@@ -405,7 +416,7 @@ def run_batch(items: list[BatchItem], *, stats=None, method="auto", n_sims=999, 
         Told, as soon as known, what the resume does differently (changed
         files, rows of an older journal); the messages are also in
         ``result.notes``.
-    fallback_budget : float, optional
+    fallback_budget, curve_test
         As for :func:`lookup.csr_test`, for every file.
     scheduler : str, optional
         Run the files on this dask.distributed scheduler (through joblib's
@@ -425,6 +436,8 @@ def run_batch(items: list[BatchItem], *, stats=None, method="auto", n_sims=999, 
             "on_duplicates": on_duplicates, "alpha": alpha, "engine": engine, "tables": tables}
     if fallback_budget is not None:     # only then: journals of older versions still match
         opts["fallback_budget"] = fallback_budget
+    if curve_test != "maxabs":
+        opts["curve_test"] = curve_test
     check_options(opts)
     notes = []
 
@@ -475,12 +488,12 @@ def run_batch(items: list[BatchItem], *, stats=None, method="auto", n_sims=999, 
             with contextlib.suppress(OSError):      # a full disk was reported already
                 jfh.close()
     rows = [done[i] for i in range(len(items))]
-    p = np.array([r["p_value"] if r["p_value"] is not None and np.isfinite(r["p_value"])
+    p = np.array([r["pvalue"] if r["pvalue"] is not None and np.isfinite(r["pvalue"])
                   else np.nan for r in rows])
     ph, pb = holm(p), benjamini_hochberg(p)
     for r, a, b in zip(rows, ph, pb):
-        r["p_holm"] = None if not np.isfinite(a) else float(a)
-        r["p_bh"] = None if not np.isfinite(b) else float(b)
+        r["pvalue_holm"] = None if not np.isfinite(a) else float(a)
+        r["pvalue_bh"] = None if not np.isfinite(b) else float(b)
     res = BatchResult(rows)
     res.seed = int(seed)
     res.notes = notes
@@ -490,9 +503,9 @@ def run_batch(items: list[BatchItem], *, stats=None, method="auto", n_sims=999, 
 def results_document(res: BatchResult) -> dict:
     """The JSON form of a batch: what ``--json`` prints and ``--out FILE.json``
     writes (the same keys: ``seed``, ``files``, ``failed``, ``rows``)."""
-    from .results import _clean
+    from .results import SCHEMA, _clean
 
-    return {"seed": getattr(res, "seed", None), "files": len(res.rows),
+    return {"schema": SCHEMA, "seed": getattr(res, "seed", None), "files": len(res.rows),
             "failed": len(res.failed), "rows": _clean(res.rows)}
 
 
@@ -506,12 +519,12 @@ def write_results(res: BatchResult, path: str) -> None:
             with open(tmp, "w", encoding="utf-8") as fh:
                 json.dump(results_document(res), fh, indent=1, allow_nan=False)
         else:
-            keys = ["file", "window", "n", "statistic", "value", "p_value", "p_holm", "p_bh",
-                    "method", "trusted", "reason", "error", "seed"]
+            keys = ["file", "window", "n", "name", "statistic", "pvalue", "pvalue_is_bound",
+                    "pvalue_holm", "pvalue_bh", "method", "trusted", "reason", "error", "seed"]
             sec = sorted({k for r in res.rows for k in r["secondary"]})
             with open(tmp, "w", newline="", encoding="utf-8") as fh:
                 w = csv.writer(fh)
-                w.writerow(keys + [f"p_{s}" for s in sec])
+                w.writerow(keys + [f"pvalue_{s}" for s in sec])
                 for r in res.rows:
                     w.writerow([("" if r.get(k) is None else r.get(k)) for k in keys]
                                + [("" if r["secondary"].get(s) is None else r["secondary"][s])

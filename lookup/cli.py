@@ -63,6 +63,12 @@ BATCH_STATUS = (
     "terminated (SIGTERM).")
 
 
+CURVE_TEST_HELP = ("global test of a curve: maxabs = the studentised maximum max |z| over the "
+                   "usable grid points, the same test on the instant and the Monte Carlo route "
+                   "(default); erl = the extreme rank length envelope, a different test, Monte "
+                   "Carlo only")
+
+
 def build_parser() -> argparse.ArgumentParser:
     from .patterns.windowspec import SPEC_HELP
 
@@ -91,6 +97,8 @@ def build_parser() -> argparse.ArgumentParser:
                    "always the instant test, untrusted results flagged; mc = always Monte Carlo")
     t.add_argument("--fallback-budget", type=_float, default=None, metavar="SECONDS",
                    help=FALLBACK_HELP)
+    t.add_argument("--curve-test", default="maxabs", choices=["maxabs", "erl"],
+                   help=CURVE_TEST_HELP)
     t.add_argument("--null", default="csr", metavar="MODEL",
                    help="null model: csr (default), or a model such as "
                    "thomas:parents=0.05,sigma=0.3, matern, hardcore, strauss, lattice, voids, "
@@ -154,6 +162,8 @@ def build_parser() -> argparse.ArgumentParser:
                    help="as for 'test': instant where trusted, else Monte Carlo (default: auto)")
     b.add_argument("--fallback-budget", type=_float, default=None, metavar="SECONDS",
                    help="as for 'test', per file")
+    b.add_argument("--curve-test", default="maxabs", choices=["maxabs", "erl"],
+                   help=CURVE_TEST_HELP)
     b.add_argument("--table", action="append", metavar="FILE",
                    help="as for 'test': your own null table(s), consulted first")
     b.add_argument("--sims", type=_int, default=999, metavar="M",
@@ -227,7 +237,7 @@ def _cmd_test(a) -> int:
     res = csr_test(pts, window, a.stat, method=a.method, n_sims=a.sims, seed=a.seed,
                    jobs=a.jobs, alternative=a.alternative, on_duplicates=a.on_duplicates,
                    alpha=a.alpha, progress=a.progress, engine=a.engine, tables=a.table,
-                   null=a.null, fallback_budget=a.fallback_budget,
+                   null=a.null, fallback_budget=a.fallback_budget, curve_test=a.curve_test,
                    notify=lambda msg: sys.stderr.write(f"{PROG}: note: {msg}\n"))
     res.warnings[:0] = [str(w.message) for w in caught]
     if a.plot:
@@ -292,7 +302,7 @@ def _cmd_batch(a) -> int:
                     jobs=a.jobs, alternative=a.alternative, on_duplicates=a.on_duplicates,
                     alpha=a.alpha, engine=a.engine, tables=a.table, progress=a.progress,
                     journal=journal, resume=a.resume, scheduler=a.dask_scheduler,
-                    fallback_budget=a.fallback_budget,
+                    fallback_budget=a.fallback_budget, curve_test=a.curve_test,
                     notify=lambda msg: sys.stderr.write(f"{PROG}: note: {msg}\n"))
     if a.out:
         try:
@@ -334,7 +344,7 @@ def _batch_status(res) -> int:
 
 
 def _print_batch(res, a) -> None:
-    from .results import method_label
+    from .results import format_pvalue, method_label
 
     if a.json:
         from .batch import results_document
@@ -343,16 +353,17 @@ def _print_batch(res, a) -> None:
         return
     w = sys.stdout.write
     w(f"{len(res.rows)} files, {len(res.failed)} failed, seed {res.seed}\n")
-    w(f"{'file':<36}{'n':>8}  {'statistic':<10}{'p-value':>10}{'Holm':>10}{'BH':>10}  method\n")
+    w(f"{'file':<36}{'n':>8}  {'name':<10}{'pvalue':>10}{'holm':>10}{'bh':>10}  method\n")
     for r in res.rows:
         name = os.path.basename(r["file"])[:35]
         if r["error"]:
             w(f"{name:<36}{'-':>8}  error: {r['error']}\n")
             continue
         flag = "" if r["trusted"] else "  UNTRUSTED"
-        w(f"{name:<36}{r['n']:>8}  {r['statistic']:<10}{_fmt(r['p_value'])}{_fmt(r['p_holm'])}"
-          f"{_fmt(r['p_bh'])}  {method_label(r['method'], r.get('n_sims'))}{flag}\n")
-    rej = sum(1 for r in res.rows if r["p_bh"] is not None and r["p_bh"] <= a.alpha)
+        pv = format_pvalue(r["pvalue"], r.get("pvalue_is_bound"), r.get("n_sims") or 0)
+        w(f"{name:<36}{r['n']:>8}  {r['name']:<10}{pv:>10}{_fmt(r['pvalue_holm'])}"
+          f"{_fmt(r['pvalue_bh'])}  {method_label(r['method'], r.get('n_sims'))}{flag}\n")
+    rej = sum(1 for r in res.rows if r["pvalue_bh"] is not None and r["pvalue_bh"] <= a.alpha)
     w(f"{rej} file(s) with CSR rejected at a false discovery rate of {a.alpha:g} "
       "(Benjamini-Hochberg over the primary test)\n")
     if a.out:
@@ -397,7 +408,8 @@ def _cmd_tables(a) -> int:
         raise OptionError("no shipped tables are installed; give a table file")
     out = [_table_summary(f) for f in files]
     if a.json:
-        json.dump({"tables": out}, sys.stdout, indent=2)
+        from .results import SCHEMA
+        json.dump({"schema": SCHEMA, "tables": out}, sys.stdout, indent=2)
         sys.stdout.write("\n")
         return 0
     w = sys.stdout.write

@@ -27,7 +27,17 @@ JOBS_PER_CORE = 4
 ALTERNATIVES = ("two-sided", "clustered", "regular")
 
 
-def _check_options(method, n_sims, jobs, alternative, alpha, engine="fast"):
+#: Curve tests: the studentised maximum on both routes, or the Monte Carlo
+#: route's extreme rank length envelope.
+CURVE_TESTS = ("maxabs", "erl")
+
+
+def _check_options(method, n_sims, jobs, alternative, alpha, engine="fast", curve_test="maxabs"):
+    if curve_test not in CURVE_TESTS:
+        raise OptionError(f"curve test must be one of {', '.join(CURVE_TESTS)}, got '{curve_test}'")
+    if curve_test == "erl" and method == "asymptotic":
+        raise OptionError("the rank envelope curve test (erl) needs simulations: use --method mc "
+                          "or auto with it, or the default curve test maxabs")
     if engine not in ENGINES:
         raise OptionError(f"engine must be one of {', '.join(ENGINES)}, got '{engine}'")
     if method not in METHODS:
@@ -201,7 +211,8 @@ def check_budget(budget) -> None:
 def csr_test(points, window, stats=None, *, method="auto", n_sims=999, seed=None, jobs=1,
              alternative="two-sided", on_duplicates="error", alpha=0.05, columns=None,
              progress=None, engine="fast", tables=None, use_shipped=True,
-             null="csr", fallback_budget=None, notify=None) -> CSRTestResult:
+             null="csr", fallback_budget=None, notify=None,
+             curve_test="maxabs") -> CSRTestResult:
     """Test a point pattern for complete spatial randomness.
 
     Parameters
@@ -266,6 +277,16 @@ def csr_test(points, window, stats=None, *, method="auto", n_sims=999, seed=None
     notify : callable(str), optional
         Told before a fallback estimated at more than a minute starts (the
         command line prints it on standard error).
+    curve_test : {"maxabs", "erl"}
+        The global test of a curve.  ``"maxabs"`` (default): the studentised
+        maximum max_k |z_k| over the usable grid points, the same test on
+        both routes (the instant route standardises by the table's moments
+        and refers to their Gaussian limit; the Monte Carlo route
+        standardises by the simulations' moments and ranks the observed
+        maximum among theirs, ``lookup.inference.ranks.maxabs_test``), so
+        the two routes answer the same question.  ``"erl"``: the extreme
+        rank length envelope test, Monte Carlo only (a different test; with
+        ``method="auto"`` the curves are simulated).
 
     Returns
     -------
@@ -312,7 +333,7 @@ def csr_test(points, window, stats=None, *, method="auto", n_sims=999, seed=None
     True
     """
     t0 = time.perf_counter()
-    _check_options(method, n_sims, jobs, alternative, alpha, engine)
+    _check_options(method, n_sims, jobs, alternative, alpha, engine, curve_test)
     check_budget(fallback_budget)
     from .processes.registry import describe, parse_model
     model = parse_model(null)
@@ -349,7 +370,9 @@ def csr_test(points, window, stats=None, *, method="auto", n_sims=999, seed=None
     observed = evaluate(summary, chosen)
     results = [None] * len(chosen)
     untrusted = {}          # auto: index -> (untrusted instant answer or None, reasons)
-    if method in ("auto", "asymptotic"):
+    usable = {}             # curve -> the table's usable grid points, for the Monte Carlo route
+    if method in ("auto", "asymptotic") or (model[0] == "csr" and curve_test == "maxabs"
+                                            and any(st.is_curve for st in chosen)):
         from .inference.asymptotic import asymptotic_result, instant_moments
         from .inference.nullmoments import TableSet, default_tables
 
@@ -360,9 +383,18 @@ def csr_test(points, window, stats=None, *, method="auto", n_sims=999, seed=None
         tset = TableSet(tables or (), use_shipped) if (tables or not use_shipped) \
             else default_tables()
         for i, st in enumerate(chosen):
+            if method == "mc" and not st.is_curve:
+                continue
             alt, note = montecarlo._alternative_for(st, alternative)
             nm, ok, why = instant_moments(tset, window, n, st, alt, report.n_duplicates,
                                           n_input=report.n_input)
+            if st.is_curve and nm is not None and nm.usable is not None:
+                usable[st.name] = np.asarray(nm.usable, bool)
+            if method == "mc":
+                continue
+            if st.is_curve and curve_test == "erl":        # auto: the envelope is simulated
+                untrusted[i] = (None, ["the rank envelope curve test needs simulations"])
+                continue
             if nm is None:
                 if method == "auto":
                     untrusted[i] = (None, why)
@@ -370,7 +402,7 @@ def csr_test(points, window, stats=None, *, method="auto", n_sims=999, seed=None
                     results[i] = montecarlo.untested_result(st, why, i == 0)
                 continue
             r = asymptotic_result(st, observed[st.name], nm, alt, n, ok, why, primary=(i == 0),
-                                  note=note)
+                                  note=note, asked=alternative)
             results[i] = r if (ok or method == "asymptotic") else None
             if not ok and method == "auto":
                 untrusted[i] = (r, why)
@@ -390,7 +422,8 @@ def csr_test(points, window, stats=None, *, method="auto", n_sims=999, seed=None
             first = plan.first
     if todo:
         sims = _simulate(window, n, stats_todo, seeds, first, int(jobs), progress, engine, mdl)
-        mc = montecarlo.mc_results(observed, sims, stats_todo, alternative=alternative, alpha=alpha)
+        mc = montecarlo.mc_results(observed, sims, stats_todo, alternative=alternative, alpha=alpha,
+                                   curve_test=curve_test, usable=usable, n=n)
         for i, r in zip(todo, mc):
             results[i] = r
             r.primary = (i == 0)

@@ -5,7 +5,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-__all__ = ["StatResult", "CSRTestResult", "group_causes"]
+__all__ = ["StatResult", "CSRTestResult", "group_causes", "format_pvalue", "SCHEMA", "RESULT_KEYS",
+           "P_FLOOR"]
 
 
 def group_causes(items) -> list:
@@ -57,24 +58,38 @@ class StatResult:
 
     Attributes
     ----------
-    statistic : float
-        The test statistic: the value of a scalar statistic, or for a curve
-        the largest standardised deviation max_k |z_k| over its grid.
-    pvalue : float
     name : str
         Statistic name (``--stat``).
     kind : {"curve", "scalar", "extreme"}
-    observed, null_mean, null_sd : float
-        Observed value of ``statistic`` and its null mean and sd.
+    statistic : float
+        The test statistic: the value of a scalar or extreme statistic, or
+        for a curve the studentised maximum max_k |z_k| over its usable grid
+        points (the same definition on both routes).
+    pvalue : float
+        Never 0; see ``pvalue_is_bound``.
+    null_mean, null_sd : float
+        Null mean and sd of ``statistic`` (NaN for curves: their grid points
+        are standardised one by one, see ``curve``).
     z : float
-        (observed - null_mean) / null_sd.
+        (statistic - null_mean) / null_sd; for a curve, its studentised
+        maximum (``statistic``).
     method : str
-        How the p-value was obtained, e.g. ``"mc-rank"`` or ``"mc-erl-envelope"``.
-    alternative : str
+        How the p-value was obtained, precisely (``method_label`` says it in
+        plain words), e.g. ``"asymptotic-normal"`` or ``"mc-maxabs"``.
+    alternative : {"two-sided", "clustered", "regular"}
+        The alternative asked for.
+    tail : {"two-sided", "greater", "less"}
+        The tail of ``statistic`` that was tested for it.
     trusted : bool
     reason : str
     primary : bool
     n_sims : int
+        Simulated patterns (0 on the instant route).
+    pvalue_is_bound : bool
+        ``pvalue`` is an upper bound, not a value: the observed statistic lay
+        beyond every simulated null value (the Monte Carlo floor 1/(m+1), or
+        for a curve on the instant route an analytic tail bound), or the
+        tail probability is below :data:`P_FLOOR`.
     curve : dict or None
         For curves: grid, observed curve, null mean and sd, pointwise and
         global 95% envelopes.
@@ -85,43 +100,49 @@ class StatResult:
     Examples
     --------
     ``csr_test`` makes these; ``as_dict`` gives their JSON form, with
-    non-finite numbers as ``None``:
+    the attribute names as keys and non-finite numbers as ``None``:
 
     >>> import json
     >>> import numpy as np
     >>> from nullatlas import StatResult
     >>> r = StatResult(name="nnmean", kind="scalar", statistic=0.49, pvalue=0.03,
-    ...                observed=0.49, null_mean=0.51, null_sd=0.009, z=-2.2,
-    ...                method="mc-rank", n_sims=99)
-    >>> r.as_dict()["p_value"], r.as_dict()["method"]
-    (0.03, 'mc-rank')
+    ...                null_mean=0.51, null_sd=0.009, z=-2.2, method="mc-rank", n_sims=99)
+    >>> r.as_dict()["pvalue"], r.as_dict()["method_label"]
+    (0.03, 'simulation, 99 patterns, rank')
     >>> undefined = StatResult(name="total1", kind="scalar", statistic=np.nan, pvalue=np.nan,
-    ...                        observed=np.nan, null_mean=0.1, null_sd=0.01, z=np.nan,
+    ...                        null_mean=0.1, null_sd=0.01, z=np.nan,
     ...                        method="untested", trusted=False, reason="undefined")
-    >>> json.dumps(undefined.as_dict())[:60]
-    '{"statistic": "total1", "kind": "scalar", "observed": null, '
+    >>> json.dumps(undefined.as_dict())[:58]
+    '{"name": "total1", "kind": "scalar", "statistic": null, "p'
     """
 
     name: str
     kind: str
     statistic: float
     pvalue: float
-    observed: float
     null_mean: float
     null_sd: float
     z: float
     method: str
     alternative: str = "two-sided"
+    tail: str = "two-sided"
     trusted: bool = True
     reason: str = ""
     primary: bool = False
     n_sims: int = 0
+    pvalue_is_bound: bool = False
     curve: dict | None = None
     details: dict | None = None
 
     def __repr__(self) -> str:
-        return (f"StatResult({self.name}: statistic={self.statistic:.4g}, pvalue={self.pvalue:.4g}, "
+        return (f"StatResult({self.name}: statistic={self.statistic:.4g}, "
+                f"pvalue={format_pvalue(self.pvalue, self.pvalue_is_bound, self.n_sims)}, "
                 f"method={self.method!r}{'' if self.trusted else ', UNTRUSTED'})")
+
+    @property
+    def observed(self) -> float:
+        """The same as ``statistic`` (its name in the JSON of schema 1)."""
+        return self.statistic
 
     @property
     def method_label(self) -> str:
@@ -129,11 +150,8 @@ class StatResult:
         return method_label(self.method, self.n_sims)
 
     def as_dict(self, curves: bool = True) -> dict:
-        d = {"statistic": self.name, "kind": self.kind, "observed": self.observed,
-             "null_mean": self.null_mean, "null_sd": self.null_sd, "z": self.z,
-             "p_value": self.pvalue, "method": self.method, "alternative": self.alternative,
-             "trusted": self.trusted, "reason": self.reason, "primary": self.primary,
-             "n_sims": self.n_sims}
+        """The JSON form: the keys are the attribute names (:data:`RESULT_KEYS`)."""
+        d = {k: getattr(self, k) for k in RESULT_KEYS}
         if self.details:
             d["details"] = self.details
         if curves and self.curve is not None:
@@ -141,15 +159,50 @@ class StatResult:
         return _clean(d)
 
 
+#: Version of the JSON written by every command (``"schema"``); 2: the keys
+#: of a result are its Python attribute names (:data:`RESULT_KEYS`).
+SCHEMA = 2
+#: Keys of a result in JSON, in order (``details`` and ``curve`` follow when present).
+RESULT_KEYS = ("name", "kind", "statistic", "pvalue", "pvalue_is_bound", "null_mean", "null_sd",
+               "z", "method", "method_label", "alternative", "tail", "trusted", "reason",
+               "primary", "n_sims")
+#: Smallest p-value reported as a value: 1 - p is not resolved below it in
+#: double precision, and far in a tail the normal or Gumbel limit carries
+#: no such precision either; smaller tail probabilities are reported as
+#: this upper bound (``pvalue_is_bound``).  A p-value is never 0.
+P_FLOOR = 1e-16
+
 _PLAIN = {
     "asymptotic-normal": "instant, normal z",
     "asymptotic-maxabs": "instant, max |z| over the curve",
     "table-empirical-gumbel-tail": "instant, tabled null with Gumbel tail",
     "mc-rank": "simulation, {n}rank",
-    "mc-erl-envelope": "simulation, {n}envelope",
+    "mc-maxabs": "simulation, {n}max |z| over the curve",
+    "mc-erl-envelope": "simulation, {n}rank envelope (a different curve test)",
     "none": "no test",
     "untested": "no test",
 }
+
+
+def format_pvalue(p, is_bound: bool = False, n_sims: int = 0) -> str:
+    """A p-value with the precision it has: two significant digits, and a
+    bound written as one (``"< 3e-04"``; ``"<= 0.001"`` for the Monte Carlo
+    floor 1/(m+1), which is itself a valid p-value).
+
+    Examples
+    --------
+    >>> from nullatlas.lookup.results import format_pvalue
+    >>> format_pvalue(0.95540), format_pvalue(0.0463), format_pvalue(3.17e-7)
+    ('0.96', '0.046', '3.2e-07')
+    >>> format_pvalue(1e-16, True), format_pvalue(0.001, True, 999)
+    ('< 1e-16', '<= 0.001')
+    """
+    if p is None or not np.isfinite(p):
+        return "-"
+    text = f"{float(p):.2g}"
+    if is_bound:
+        return ("<= " if n_sims else "< ") + text
+    return text
 
 
 def method_label(method, n_sims=None) -> str:
@@ -182,8 +235,7 @@ def method_label(method, n_sims=None) -> str:
     return text.format(n=f"{n_sims} patterns, " if n_sims else "")
 
 
-_COLUMNS = ("statistic", "kind", "observed", "null_mean", "null_sd", "z", "p_value", "method",
-            "alternative", "trusted", "reason", "primary", "n_sims")
+_COLUMNS = RESULT_KEYS
 
 
 def _fmt(v, width=10) -> str:
@@ -197,7 +249,8 @@ def _verdict(res, alpha: float) -> str:
     null = "CSR" if res.null == "csr" else f"the null model {res.null}"
     if not np.isfinite(p.pvalue):
         return f"no p-value for the primary test {p.name} ({p.reason})"
-    tail = f"(p = {p.pvalue:.3g}{'' if p.trusted else ', UNTRUSTED'})"
+    pv = format_pvalue(p.pvalue, p.pvalue_is_bound, p.n_sims)
+    tail = f"(p {pv if p.pvalue_is_bound else '= ' + pv}{'' if p.trusted else ', UNTRUSTED'})"
     if p.pvalue <= alpha:
         return f"{null} rejected at alpha = {alpha:g} by the primary test {p.name} {tail}"
     return f"no evidence against {null} at alpha = {alpha:g} from the primary test {p.name} {tail}"
@@ -211,16 +264,17 @@ def summary_text(res, alpha: float = 0.05) -> str:
              f"({'area' if res.dimension == 2 else 'volume'} {size:.6g}, kappa {w['kappa']:.4g}), "
              f"seed {res.seed}"]
     lines += [f"warning: {msg}" for msg in res.warnings]
-    head = f"{'statistic':<12}{'kind':<9}{'observed':>10}{'null mean':>11}{'null sd':>10}" \
-           f"{'z':>8}{'p-value':>10}  method"
+    head = f"{'name':<12}{'kind':<9}{'statistic':>10}{'null_mean':>11}{'null_sd':>10}" \
+           f"{'z':>8}{'pvalue':>10}  method"
     lines += [head, "-" * len(head)]
     for r in res.results:
         name = r.name + ("*" if r.primary else "")
         flag = "" if r.trusted else "  UNTRUSTED"
-        lines.append(f"{name:<12}{r.kind:<9}{_fmt(r.observed)}{_fmt(r.null_mean, 11)}"
-                     f"{_fmt(r.null_sd)}{_fmt(r.z, 8)}{_fmt(r.pvalue)}  {r.method_label}{flag}")
+        pv = format_pvalue(r.pvalue, r.pvalue_is_bound, r.n_sims)
+        lines.append(f"{name:<12}{r.kind:<9}{_fmt(r.statistic)}{_fmt(r.null_mean, 11)}"
+                     f"{_fmt(r.null_sd)}{_fmt(r.z, 8)}{pv:>10}  {r.method_label}{flag}")
     lines.append("* primary test; the others are secondary, p-values unadjusted. "
-                 "Curves: observed = max |z| over the grid.")
+                 "Curves: statistic = max |z| over the usable grid points.")
     # each cause once, with the statistics it affects
     lines += [f"untrusted {', '.join(names)}: {cause}"
               for cause, names in group_causes((r.name, (r.details or {}).get("reasons") or [r.reason])
@@ -244,12 +298,13 @@ def summary_html(res, alpha: float = 0.05) -> str:
     import html
 
     w = res.window
-    cols = ("statistic", "kind", "observed", "null_mean", "null_sd", "z", "p_value", "method", "trusted")
+    cols = ("name", "kind", "statistic", "null_mean", "null_sd", "z", "pvalue", "method", "trusted")
     rows = []
     for r in res.results:
-        d = {"statistic": r.name + ("*" if r.primary else ""), "kind": r.kind, "observed": r.observed,
-             "null_mean": r.null_mean, "null_sd": r.null_sd, "z": r.z, "p_value": r.pvalue,
-             "method": r.method, "trusted": "yes" if r.trusted else "UNTRUSTED"}
+        d = {"name": r.name + ("*" if r.primary else ""), "kind": r.kind, "statistic": r.statistic,
+             "null_mean": r.null_mean, "null_sd": r.null_sd, "z": r.z,
+             "pvalue": format_pvalue(r.pvalue, r.pvalue_is_bound, r.n_sims),
+             "method": r.method_label, "trusted": "yes" if r.trusted else "UNTRUSTED"}
         rows.append("<tr>" + "".join(f"<td>{_html_cell(d[c])}</td>" for c in cols) + "</tr>")
     notes = "".join(f"<li>{html.escape(m)}</li>" for m in res.warnings) + "".join(
         f"<li>untrusted {html.escape(r.name)}: {html.escape(r.reason)}</li>"
@@ -305,7 +360,7 @@ class CSRTestResult:
     >>> res["total1"].method, res.primary.reason
     ('asymptotic-normal', 'instant test from the null table null2d.h5 (cell: square-n00000200)')
     >>> sorted(json.loads(json.dumps(res.as_dict())))
-    ['dimension', 'elapsed_s', 'engine', 'method', 'n', 'null', 'results', 'seed',
+    ['dimension', 'elapsed_s', 'engine', 'method', 'n', 'null', 'results', 'schema', 'seed',
      'validation', 'warnings', 'window']
     """
 
@@ -356,8 +411,9 @@ class CSRTestResult:
         Returns
         -------
         pandas.DataFrame
-            Columns ``statistic, kind, observed, null_mean, null_sd, z, p_value,
-            method, alternative, trusted, reason, primary, n_sims``.
+            Columns :data:`RESULT_KEYS` (``name, kind, statistic, pvalue,
+            pvalue_is_bound, null_mean, null_sd, z, method, method_label,
+            alternative, tail, trusted, reason, primary, n_sims``).
 
         Raises
         ------
@@ -374,7 +430,7 @@ class CSRTestResult:
 
     def as_dict(self, curves: bool = True) -> dict:
         return _clean({
-            "n": self.n, "dimension": self.dimension, "window": self.window,
+            "schema": SCHEMA, "n": self.n, "dimension": self.dimension, "window": self.window,
             "seed": self.seed, "validation": self.validation, "warnings": list(self.warnings),
             "elapsed_s": round(self.elapsed_s, 4), "engine": self.engine, "method": self.method,
             "null": self.null,

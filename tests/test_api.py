@@ -81,8 +81,8 @@ def test_html_summary_for_notebooks(result):
 def test_to_dataframe_has_every_result(result):
     pytest.importorskip("pandas")
     df = result.to_dataframe()
-    assert list(df["statistic"]) == ["total0", "nnmean", "betti1"]
-    assert df["p_value"].iloc[0] == pytest.approx(result.pvalue)
+    assert list(df["name"]) == ["total0", "nnmean", "betti1"]
+    assert df["pvalue"].iloc[0] == pytest.approx(result.pvalue)
     assert bool(df["primary"].iloc[0]) and not df["primary"].iloc[1:].any()
 
 

@@ -54,9 +54,9 @@ def test_batch_reports_a_bad_file_and_processes_the_rest(tmp_path):
     badrow = res.failed[0]
     assert badrow["file"].endswith("p0002.csv") and "abc" in badrow["error"]
     ok = [r for r in res.rows if not r["error"]]
-    assert all(0 < r["p_value"] <= 1 and r["p_holm"] >= r["p_value"] for r in ok)
-    p = np.array([r["p_value"] for r in ok])
-    np.testing.assert_allclose([r["p_bh"] for r in ok], st.false_discovery_control(p))
+    assert all(0 < r["pvalue"] <= 1 and r["pvalue_holm"] >= r["pvalue"] for r in ok)
+    p = np.array([r["pvalue"] for r in ok])
+    np.testing.assert_allclose([r["pvalue_bh"] for r in ok], st.false_discovery_control(p))
 
 
 def test_batch_is_the_same_for_any_number_of_workers(tmp_path):
@@ -65,7 +65,7 @@ def test_batch_is_the_same_for_any_number_of_workers(tmp_path):
     kw = dict(stats=["nnmean"], method="mc", n_sims=19, seed=11, progress=False)
     a = run_batch(items, jobs=1, **kw)
     b = run_batch(items, jobs=2, **kw)
-    assert [r["p_value"] for r in a.rows] == [r["p_value"] for r in b.rows]
+    assert [r["pvalue"] for r in a.rows] == [r["pvalue"] for r in b.rows]
     assert len({r["seed"] for r in a.rows}) == 5          # a distinct seed per file
 
 
@@ -210,7 +210,7 @@ def test_batch_exit_status(tmp_path, monkeypatch, capsys):
     assert cli.main(["batch", folder, "-w", "rect:0,0,1,1", *opts, "--json"]) == 1
     out = capsys.readouterr()
     d = json.loads(out.out)
-    assert d["failed"] == 1 and all(r["p_holm"] is not None for r in d["rows"][:3])
+    assert d["failed"] == 1 and all(r["pvalue_holm"] is not None for r in d["rows"][:3])
     assert "1 of 4 files failed" in out.err and out.err.count("\n") == 1
     os.unlink(tmp_path / "in" / "p9999.csv")
     assert cli.main(["batch", folder, "-w", "rect:0,0,1,1", *opts]) == 0
@@ -238,7 +238,7 @@ def test_manifest_window_files_are_resolved_and_confined(tmp_path, monkeypatch):
     assert items[0].window == str(m / "sq.wkt")
     assert items[1].window == f"mask:{m / 'mask.npy'},0.25"
     res = run_batch(items, stats=["total0"], method="asymptotic", seed=1, progress=False)
-    assert not res.failed and all(0 < r["p_value"] <= 1 for r in res.rows)
+    assert not res.failed and all(0 < r["pvalue"] <= 1 for r in res.rows)
     outside = tmp_path / "outside.wkt"
     outside.write_text("POLYGON((0 0, 1 0, 1 1, 0 1, 0 0))")
     for win in (str(outside), "../outside.wkt", f"mask:{m / 'mask.npy'},0.25"):

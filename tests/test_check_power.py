@@ -25,7 +25,7 @@ def test_check_agrees_in_a_shipped_cell_and_not_far_below_n_min():
         assert r["trusted"] and r["holds_size"], r
         assert 0.3 < r["z_sd"] ** 2 * 3 < 3.3 and abs(r["z_mean"]) < 0.2
     bad = check.check_window(w, [12], 1500, stats=["euler", "maxpers1"], jobs=2, progress=False)
-    by = {r["statistic"]: r for r in bad["results"]}
+    by = {r["name"]: r for r in bad["results"]}
     # far below the validated n nothing is trusted, whether or not the model happens to fit there
     assert not any(r["trusted"] for r in bad["results"]), bad["results"]
     assert "outside the n where" in by["euler"]["reason"] or "below" in by["euler"]["reason"]
@@ -51,7 +51,7 @@ def test_power_is_the_size_at_strength_zero_and_grows_with_clustering(tmp_path):
     w = windows.Disk(0, 0, 150)
     res = power.power_study(w, 300, ["thomas"], [0.0, 0.1, 0.3], 160, stats=["total0", "nnmean"],
                             sims=39, jobs=2, progress=False)
-    by = {(r["statistic"], r["strength"]): r for r in res["rows"]}
+    by = {(r["name"], r["strength"]): r for r in res["rows"]}
     for s in ("total0", "nnmean", "L-mc", "clark-evans"):
         p0 = by[(s, 0.0)]
         assert p0["ci"][0] <= 0.05 <= p0["ci"][1] or abs(p0["power"] - 0.05) < 0.04, p0
@@ -91,7 +91,7 @@ def test_check_output_says_holds_size():
     """Issue 14: check's last column says whether the instant test holds its
     size (not 'agrees'), and the footer says what that means."""
     import io
-    row = {"n": 400, "statistic": "total0", "size": [0.01, 0.08, 0.1],
+    row = {"n": 400, "name": "total0", "size": [0.01, 0.08, 0.1],
            "size_ci": [[0, 0.02], [0.06, 0.1], [0.08, 0.12]], "ks": 0.03, "z_mean": 0.1,
            "z_sd": 1.0, "trusted": True, "holds_size": False}
     s = {"window": {"kind": "disk", "kappa": 3.5}, "reps": 1000, "seed": 1, "results": [row]}

@@ -38,14 +38,14 @@ def test_demo_files_plain_and_json(capsys, name, window):
     assert d["window"]["kappa"] == pytest.approx(2 * np.sqrt(np.pi) if window == WAFER else
                                                  (2 * (400 + 200 + 200)) / 4000 ** (2 / 3))
     first = d["results"][0]
-    assert first["statistic"] == "euler" and first["primary"] is True
+    assert first["name"] == "euler" and first["primary"] is True
     assert all(not r["primary"] for r in d["results"][1:])
     for r in d["results"]:
-        for key in ("statistic", "observed", "null_mean", "null_sd", "z", "p_value",
-                    "method", "trusted", "reason"):
+        for key in ("name", "statistic", "pvalue", "pvalue_is_bound", "null_mean", "null_sd",
+                    "z", "method", "method_label", "alternative", "tail", "trusted", "reason"):
             assert key in r
         # Monte Carlo p-values live on the grid {1/(m+1), ..., 1}, 2x for two-sided.
-        assert 1 / 40 - 1e-12 <= r["p_value"] <= 1
+        assert 1 / 40 - 1e-12 <= r["pvalue"] <= 1
 
 
 def test_clustered_lot_rejected_random_lot_not(capsys):
@@ -54,10 +54,10 @@ def test_clustered_lot_rejected_random_lot_not(capsys):
                     "--sims", "199", "--seed", "11")
     rand = run_json(capsys, os.path.join(EX, "wafer_lot_random.csv"), "-w", WAFER,
                     "--sims", "199", "--seed", "11")
-    assert clus["results"][0]["p_value"] <= 0.05
-    assert rand["results"][0]["p_value"] > 0.05
+    assert clus["results"][0]["pvalue"] <= 0.05
+    assert rand["results"][0]["pvalue"] > 0.05
     # the clustered lot has much shorter nearest-neighbour distances
-    nn = {r["statistic"]: r for r in clus["results"]}["nnmean"]
+    nn = {r["name"]: r for r in clus["results"]}["nnmean"]
     assert nn["z"] < -5
 
 
@@ -65,8 +65,9 @@ def test_regular_lot_one_sided(capsys):
     d = run_json(capsys, os.path.join(EX, "wafer_lot_regular.csv"), "-w", WAFER, "--sims", "99",
                  "--seed", "3", "--stat", "nnmean,total1", "--alternative", "regular")
     nn, t1 = d["results"]
-    assert nn["alternative"] == "greater" and nn["p_value"] == pytest.approx(1 / 100)
-    assert t1["alternative"] == "two-sided" and "no known direction" in t1["reason"]
+    assert nn["alternative"] == "regular" and nn["tail"] == "greater"
+    assert nn["pvalue"] == pytest.approx(1 / 100) and nn["pvalue_is_bound"]      # the floor
+    assert t1["tail"] == "two-sided" and "no known direction" in t1["reason"]
 
 
 def test_same_seed_same_json_any_jobs(capsys):

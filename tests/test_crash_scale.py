@@ -102,7 +102,7 @@ def test_dask_cluster_of_processes_survives_a_killed_worker(tmp_path, same_table
         kw = dict(stats=["nnmean"], method="mc", n_sims=19, seed=5, progress=False)
         local = run_batch(items, jobs=2, **kw)
         remote = run_batch(items, scheduler=addr, **kw)
-        assert [r["p_value"] for r in local.rows] == [r["p_value"] for r in remote.rows]
+        assert [r["pvalue"] for r in local.rows] == [r["pvalue"] for r in remote.rows]
     finally:
         for q in procs:
             q.kill()

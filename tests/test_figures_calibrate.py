@@ -17,7 +17,7 @@ def fake_power():
         for s in STATS:
             for x in (0.0, 0.1, 0.2, 0.4):
                 p = min(1.0, 0.05 + 4 * x)            # power 1 at 0.4 for every statistic
-                rows.append({"alternative": a, "strength": x, "statistic": s, "power": p,
+                rows.append({"alternative": a, "strength": x, "name": s, "power": p,
                              "ci": [max(0.0, p - 0.03), min(1.0, p + 0.03)], "reps": 200,
                              "instant": not s.endswith("-mc") and s != "clark-evans", "trusted": True})
     return {"window": {"kind": "disk"}, "n": 300, "reps": 200, "sims": 99, "seed": 1, "alpha": 0.05,

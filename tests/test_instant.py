@@ -166,13 +166,13 @@ def test_trusted_result_fields_and_json(capsys, tmp_path):
     d = json.loads(capsys.readouterr().out)
     assert d["method"] == "auto"
     prim = d["results"][0]
-    assert prim["statistic"] == "euler" and prim["method"] == "asymptotic-maxabs"
+    assert prim["name"] == "euler" and prim["method"] == "asymptotic-maxabs"
     assert prim["trusted"] is True and prim["details"]["route"] == "cell"
-    assert 0 < prim["p_value"] <= 1 and "mahalanobis_pvalue" in prim["details"]
+    assert 0 < prim["pvalue"] <= 1 and "mahalanobis_pvalue" in prim["details"]
     # p-values of the instant test do not depend on --seed
     assert cli.main(["test", str(f), "-w", "disk:0,0,150", "--json", "--seed", "3"]) == 0
     d2 = json.loads(capsys.readouterr().out)
-    assert [r["p_value"] for r in d2["results"]] == [r["p_value"] for r in d["results"]]
+    assert [r["pvalue"] for r in d2["results"]] == [r["pvalue"] for r in d["results"]]
 
 
 def test_users_table_takes_precedence(tmp_path):
@@ -248,8 +248,9 @@ def test_interpolation_between_cells_is_between_them():
 
 
 def test_a_p_value_is_never_zero():
-    """A strongly clustered pattern (z about -80 for total0) underflows the
-    normal tail: the p-value is the smallest positive double, flagged."""
+    """A strongly clustered pattern (z about -80 for total0) is far beyond
+    what the normal limit resolves: the p-value is the floor 1e-16, flagged
+    as an upper bound (issue 15), never 0."""
     from nullatlas.lookup.inference.asymptotic import P_FLOOR
 
     rng = np.random.default_rng(3)
@@ -259,8 +260,9 @@ def test_a_p_value_is_never_zero():
                   0, 1)
     r = csr_test(pts, w, ["total0"], method="asymptotic", seed=1)
     assert r.primary.z < -38                      # beyond what the normal tail resolves
-    assert r.primary.pvalue == P_FLOOR > 0
-    assert r.primary.details["p_value_floor"] == P_FLOOR
+    assert r.primary.pvalue == P_FLOOR == 1e-16 and r.primary.pvalue_is_bound
+    assert r.primary.details["pvalue_floor"] == P_FLOOR
+    assert "(p < 1e-16)" in r.summary()
 
 
 def test_estimated_windows_ripley_rasson_and_unbiased_bbox():
@@ -423,7 +425,8 @@ def test_fallback_estimate_keeps_its_replicate_and_the_lower_bound_simulates_not
         auto = csr_test(pts, "bbox", ["nnmean", "euler"], n_sims=19, seed=4, jobs=jobs,
                         fallback_budget=1e9)
         assert [r.pvalue for r in auto.results] == [r.pvalue for r in mc.results]
-        assert [r.null_mean for r in auto.results] == [r.null_mean for r in mc.results]
+        np.testing.assert_array_equal([r.null_mean for r in auto.results],
+                                      [r.null_mean for r in mc.results])
     monkeypatch.setattr(montecarlo, "_chunk", lambda *a, **k: pytest.fail("simulated"))
     plan = csrtest.plan_fallback(w, 10_000, resolve_stats(["nnmean"], 2),
                                  np.random.SeedSequence(1).spawn(999), 1, "fast", None, 1.0)

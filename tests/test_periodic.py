@@ -372,8 +372,8 @@ def test_cli_torus_json(tmp_path, capsys, d):
     out = json.loads(capsys.readouterr().out)
     assert out["window"]["kind"] == "torus" and out["window"]["kappa"] == 0.0
     assert out["window"]["periodic"] is True and out["n"] == n and out["dimension"] == d
-    assert out["results"][0]["statistic"] == "euler"
-    assert all(0 < r["p_value"] <= 1 for r in out["results"])
+    assert out["results"][0]["name"] == "euler"
+    assert all(0 < r["pvalue"] <= 1 for r in out["results"])
 
 
 def test_cli_torus_too_sparse_is_one_line(tmp_path, capsys):

@@ -13,7 +13,7 @@ from nullatlas.lookup.results import CSRTestResult, StatResult  # noqa: E402
 
 
 def _scalar(name, z, p=0.01, trusted=True):
-    return StatResult(name=name, kind="scalar", statistic=z, pvalue=p, observed=z, null_mean=0.0,
+    return StatResult(name=name, kind="scalar", statistic=z, pvalue=p, null_mean=0.0,
                       null_sd=1.0, z=z, method="mc-rank", trusted=trusted)
 
 
@@ -27,7 +27,7 @@ def _curve(method="mc-erl-envelope", trusted=True, used=None):
          # the null's own pointwise quantiles: narrower than +-1.96 sd
          "pointwise_lo": mean - 1.2 * sd, "pointwise_hi": mean + 1.3 * sd,
          "global_lo": mean - 2.5 * sd, "global_hi": mean + 2.5 * sd}
-    return StatResult(name="euler", kind="curve", statistic=9.0, pvalue=0.01, observed=9.0,
+    return StatResult(name="euler", kind="curve", statistic=9.0, pvalue=0.01,
                       null_mean=np.nan, null_sd=np.nan, z=9.0, method=method, trusted=trusted,
                       primary=True, curve=c)
 
@@ -120,7 +120,7 @@ def test_plot_result_writes_a_file_when_given_a_path(tmp_path):
 
 
 def _batch(pvalues):
-    return BatchResult([{"p_value": p, "value": None, "error": "" if p is not None else "bad"}
+    return BatchResult([{"pvalue": p, "statistic": None, "error": "" if p is not None else "bad"}
                         for p in pvalues])
 
 

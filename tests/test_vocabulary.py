@@ -50,7 +50,8 @@ def test_batch_table_says_plain_words(capsys):
 @pytest.mark.parametrize("label,n,words", [
     ("asymptotic-normal", 0, "instant, normal z"),
     ("table-empirical-gumbel-tail", 0, "instant, tabled null with Gumbel tail"),
-    ("mc-erl-envelope", 999, "simulation, 999 patterns, envelope"),
+    ("mc-erl-envelope", 999, "simulation, 999 patterns, rank envelope (a different curve test)"),
+    ("mc-maxabs", 99, "simulation, 99 patterns, max |z| over the curve"),
     ("something-new", 0, "something-new")])
 def test_method_label_words(label, n, words):
     assert method_label(label, n) == words
@@ -162,7 +163,7 @@ def test_shipped_wafer_manifest_has_no_error_row(capsys):
     assert main(["batch", "--manifest", manifest, "--no-progress", "--json"]) == 0
     d = json.loads(capsys.readouterr().out)
     assert len(d["rows"]) == 4 and not d["failed"]
-    assert all(not r["error"] and r["p_value"] is not None for r in d["rows"])
+    assert all(not r["error"] and r["pvalue"] is not None for r in d["rows"])
 
 
 def test_readme_shows_the_wafer_manifest():

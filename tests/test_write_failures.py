@@ -166,7 +166,7 @@ def test_results_file_write_failure_is_atomic(tmp_path, monkeypatch):
             self.fh.write(",".join(map(str, row)) + "\n")
 
     monkeypatch.setattr(B.csv, "writer", Full)
-    res = B.BatchResult([{"file": "a", "secondary": {}, "p_value": 0.5}])
+    res = B.BatchResult([{"file": "a", "secondary": {}, "pvalue": 0.5}])
     with pytest.raises(WriteError, match=f"cannot write .*res.csv: {NOSPACE}$"):
         B.write_results(res, str(tmp_path / "res.csv"))
     assert os.listdir(tmp_path) == []

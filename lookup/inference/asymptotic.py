@@ -11,7 +11,12 @@ For an observed summary S with tabled null mean m and covariance C
   empirical rank p-value, two-sided is twice the smaller tail;
 * curves: z_j over the usable grid points; the primary p-value is that of
   max_j |z_j| under the Gaussian limit N(0, R), R the tabled correlation,
-  by simulating ``n_gauss`` Gaussian vectors.  Their seed is derived from
+  by simulating ``n_gauss`` Gaussian vectors (the Monte Carlo route tests the
+  same studentised maximum, ``lookup.inference.ranks.maxabs_test``).  Beyond
+  every simulated maximum the p-value is reported as an upper bound: the
+  smaller of Sidak's bound (``globaltests.sidak_bound``) and 3/N, the 95 %
+  upper confidence limit of a probability when none of N draws exceeded
+  (the "rule of three": Hanley & Lippman-Hand, JAMA 249, 1983).  Their seed is derived from
   the null moments used (table, cells, statistic, n, grid points), so the
   p-value is a function of the data and the table alone (not of ``--seed``),
   and the simulated null is cached per process; the regularised
@@ -36,7 +41,7 @@ import zlib
 
 import numpy as np
 
-from ..results import StatResult
+from ..results import P_FLOOR, StatResult
 from . import globaltests as gt
 from .extremes import GumbelTail
 from .nullmoments import NullMoments
@@ -44,9 +49,6 @@ from .nullmoments import NullMoments
 __all__ = ["P_FLOOR", "N_GAUSS", "DUPLICATE_LIMIT", "test_key", "verdict", "instant_moments",
            "asymptotic_result"]
 
-#: Smallest p-value reported: below it a normal or Gumbel tail underflows in
-#: double precision, and the p-value is reported as this upper bound.
-P_FLOOR = float(np.finfo(float).tiny)
 #: Gaussian vectors simulated for the max |z| p-value of a curve.
 N_GAUSS = 10_000
 #: Fraction of handled duplicate points above which no asymptotic answer is trusted.
@@ -326,13 +328,16 @@ def _scalar_p(z: float, alternative: str) -> float:
 
 def asymptotic_result(stat, observed, nm: NullMoments, alternative: str, n: int,
                       trusted: bool, reasons: list, primary: bool = False, note: str = "",
-                      n_gauss: int = N_GAUSS, rng=None) -> StatResult:
+                      n_gauss: int = N_GAUSS, rng=None, asked: str | None = None) -> StatResult:
     """The instant test of one statistic (a :class:`StatResult`).
 
+    ``alternative`` is the tail tested ("two-sided", "greater", "less"),
+    ``asked`` the alternative the user asked for (default: the same);
     ``rng``: a Generator for the Gaussian vectors instead of the derived seed
     (no caching)."""
     obs = np.asarray(observed, float)
     mean, sd = nm.mean, nm.sd
+    bound = False
     details = {"route": nm.route, "cells": list(nm.cells), "table": nm.table,
                "shape": nm.shape, "replicates": nm.replicates, "n_min": nm.n_min}
     if "measures" in nm.extra:      # model route: the window's trust measures at this n
@@ -347,6 +352,14 @@ def asymptotic_result(stat, observed, nm: NullMoments, alternative: str, n: int,
             null, sp = _curve_null(nm, n, use, n_gauss, rng)
             t = float(np.max(np.abs(z[use])))
             p = float(gt.maxabs_pvalue(t, null))
+            if t > null[-1]:
+                # beyond every simulated Gaussian maximum: the simulation only
+                # says p < 3/N (95 % confidence); Sidak's inequality gives a
+                # bound that needs no simulation
+                bounds = {"sidak": gt.sidak_bound(t, int(use.sum())),
+                          "simulation_95": 3.0 / len(null)}
+                p, bound = min(bounds.values()), True
+                details["pvalue_bounds"] = bounds
             d2 = float(sp.statistic(z[use]))
             details.update({"mahalanobis": d2, "mahalanobis_df": sp.rank,
                             "mahalanobis_pvalue": float(gt.mahalanobis_pvalue(d2, sp.rank)),
@@ -380,10 +393,10 @@ def asymptotic_result(stat, observed, nm: NullMoments, alternative: str, n: int,
         p = _scalar_p(zz, alternative) if np.isfinite(zz) else float("nan")
         statistic, method, alt = x, "asymptotic-normal", alternative
     if np.isfinite(p) and p < P_FLOOR:
-        # the tail probability underflowed: a p-value is never 0; report the
-        # smallest positive normal double, an upper bound of the true value
-        details["p_value_floor"] = P_FLOOR
-        p = P_FLOOR
+        # a p-value is never 0, and no limit law is accurate so far in its
+        # tail: report the floor as an upper bound of the true value
+        details["pvalue_floor"] = P_FLOOR
+        p, bound = P_FLOOR, True
     reason = "; ".join(([note] if note else []) + reasons) if not trusted else \
         (note or f"instant test from the null table {_table_name(nm)} ({nm.route}: "
          f"{', '.join(nm.cells)})")
@@ -393,6 +406,7 @@ def asymptotic_result(stat, observed, nm: NullMoments, alternative: str, n: int,
         reason += "; " + "; ".join(nm.extra["passed_over"])
         details["passed_over"] = list(nm.extra["passed_over"])
     return StatResult(name=stat.name, kind=stat.kind, statistic=statistic, pvalue=p,
-                      observed=statistic, null_mean=mu_s, null_sd=sd_s, z=zz, method=method,
-                      alternative=alt, trusted=trusted, reason=reason, primary=primary,
-                      n_sims=0, curve=curve, details=details)
+                      null_mean=mu_s, null_sd=sd_s, z=zz, method=method,
+                      alternative=asked or alt, tail=alt, trusted=trusted, reason=reason,
+                      primary=primary, n_sims=0, pvalue_is_bound=bound, curve=curve,
+                      details=details)

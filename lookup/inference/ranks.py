@@ -9,7 +9,22 @@ Application*, 1997, ch. 4): with m null values T_1..T_m and observed T_0,
 
 Under the null (and without ties) p_greater is uniform on {1/(m+1), ..., 1}.
 
-Curves: the global extreme rank envelope test with the extreme rank length
+Curves, default: the studentised maximum, the test of the instant route
+(``lookup.inference.asymptotic``) with the null moments estimated from the
+simulations instead of a table.  Of the m + 1 curves (observed first), curve
+j is standardised at each usable grid point k by the mean and sd of the
+*other* m curves (leave-one-out over the pooled set),
+
+    T_j = max_k |T_jk - mean_(-j),k| / sd_(-j),k ,
+
+so the observed curve is standardised by the simulations' moments exactly as
+the instant route standardises it by the table's, and under the null the
+m + 1 maxima are exchangeable: p = (1 + #{i >= 1 : T_i >= T_0}) / (m + 1) is
+an exact Monte Carlo p-value (the rank argument of Davison & Hinkley above;
+leave-one-out studentisation keeps exchangeability, common practice for
+studentised global envelope tests).
+
+Curves, optional: the global extreme rank envelope test with the extreme rank length
 (ERL) ordering (Myllymäki, Mrkvička, Grabarnik, Seijo & Hahn, JRSS B 79,
 2017).  For the m + 1 curves (observed first) the pointwise two-sided rank
 of curve i at grid point k is
@@ -27,7 +42,7 @@ from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["rank_pvalue", "erl_test", "ALTERNATIVES"]
+__all__ = ["rank_pvalue", "erl_test", "maxabs_test", "ALTERNATIVES"]
 
 ALTERNATIVES = ("two-sided", "greater", "less")
 
@@ -114,3 +129,67 @@ def erl_test(obs: np.ndarray, sims: np.ndarray, alpha: float = 0.05) -> dict:
         hi[mask] = curves[1:][keep].max(axis=0)
     return {"pvalue": float(p_all[0]), "extreme_rank": int(ranks[0, 0]), "mask": mask,
             "lo": lo, "hi": hi, "pvalues_all": p_all}
+
+
+def maxabs_test(obs: np.ndarray, sims: np.ndarray, use: np.ndarray, alpha: float = 0.05) -> dict:
+    """Studentised-maximum Monte Carlo test of one curve (see module doc).
+
+    Parameters
+    ----------
+    obs : ndarray, shape (k,)
+    sims : ndarray, shape (m, k)
+    use : ndarray of bool, shape (k,)
+        Grid points tested (the usable ones); points where any curve is not
+        finite or all curves coincide are left out as well.
+    alpha : float
+        Level of the returned critical value.
+
+    Returns
+    -------
+    dict with keys ``statistic`` (T_0), ``pvalue``, ``null`` (T_1..T_m),
+    ``mask`` (grid points used), ``mean``/``sd`` (of the m simulations, the
+    moments that standardise the observed curve), ``z`` (observed,
+    standardised; NaN off the mask), ``critical`` (the 1 - alpha quantile of
+    T_1..T_m, the half-width in sd of the global band) and ``beyond``
+    (True when T_0 exceeds every T_i: the p-value is the floor 1/(m+1)).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from nullatlas.lookup.inference.ranks import maxabs_test
+    >>> rng = np.random.default_rng(0)
+    >>> sims = rng.standard_normal((99, 5))
+    >>> out = maxabs_test(np.full(5, 6.0), sims, np.ones(5, bool))
+    >>> out["pvalue"], out["beyond"]
+    (0.01, True)
+    """
+    obs = np.asarray(obs, float)
+    sims = np.asarray(sims, float)
+    m = sims.shape[0]
+    mask = np.asarray(use, bool) & informative_points(obs, sims)
+    out = {"mask": mask, "mean": np.full(obs.shape, np.nan), "sd": np.full(obs.shape, np.nan),
+           "z": np.full(obs.shape, np.nan)}
+    if m < 3 or not mask.any():
+        out.update(statistic=float("nan"), pvalue=float("nan"), null=np.zeros(0),
+                   critical=float("nan"), beyond=False)
+        return out
+    x = np.vstack([obs[None, mask], sims[:, mask]])        # (m + 1, k), observed first
+    x = x - x[1:].mean(axis=0)                             # centre for accuracy
+    s1, s2 = x.sum(axis=0), (x ** 2).sum(axis=0)
+    loo_mean = (s1[None, :] - x) / m                       # mean of the other m curves
+    loo_var = (s2[None, :] - x ** 2 - m * loo_mean ** 2) / (m - 1)
+    loo_sd = np.sqrt(np.clip(loo_var, 0.0, None))
+    with np.errstate(invalid="ignore", divide="ignore"):
+        zz = np.abs(x - loo_mean) / loo_sd
+    zz = np.where(loo_sd > 0, zz, 0.0)
+    t = zz.max(axis=1)
+    t0, null = float(t[0]), t[1:]
+    mean = sims[:, mask].mean(axis=0)
+    sd = sims[:, mask].std(axis=0, ddof=1)
+    out["mean"][mask], out["sd"][mask] = mean, sd
+    with np.errstate(invalid="ignore", divide="ignore"):
+        out["z"][mask] = np.where(sd > 0, (obs[mask] - mean) / sd, 0.0)
+    ge = int(np.count_nonzero(null >= t0))
+    out.update(statistic=t0, pvalue=(1.0 + ge) / (m + 1.0), null=np.sort(null),
+               critical=float(np.quantile(null, 1 - alpha)), beyond=ge == 0)
+    return out
