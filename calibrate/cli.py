@@ -456,6 +456,8 @@ def _cmd_check(a):
 
 
 def _print_check(s, out=None):
+    from nullatlas.lookup.results import format_pvalue
+
     out = out or sys.stdout
     w = s["window"]
     out.write(f"check of the instant test: window {w['kind']} (kappa {w['kappa']:.4g}), "
@@ -479,9 +481,9 @@ def _print_check(s, out=None):
         pt = s["pattern"]
         out.write(f"pattern {pt['file']} (n = {pt['n']}): instant vs Monte Carlo p-values\n")
         for r in pt["rows"]:
-            out.write(f"  {r['name']:<10} instant {r['instant_pvalue']:.4g}"
+            out.write(f"  {r['name']:<10} instant {format_pvalue(r['instant_pvalue'])}"
                       f"{'' if r['instant_trusted'] else ' (untrusted)'}   Monte Carlo "
-                      f"{r['mc_pvalue']:.4g} ({r['mc_sims']} sims)\n")
+                      f"{format_pvalue(r['mc_pvalue'])} ({r['mc_sims']} sims)\n")
     out.write("KS: to N(0,1) for scalars, of the p-values to U(0,1) for curves and extremes. "
               "Tails: lower/upper at 0.025 (scalars). Holds size: the size at 0.05 is within "
               "0.05 +- 0.01 and, for scalars, each tail within 0.025 +- 0.005, allowing two "

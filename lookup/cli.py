@@ -360,9 +360,11 @@ def _print_batch(res, a) -> None:
             w(f"{name:<36}{'-':>8}  error: {r['error']}\n")
             continue
         flag = "" if r["trusted"] else "  UNTRUSTED"
-        pv = format_pvalue(r["pvalue"], r.get("pvalue_is_bound"), r.get("n_sims") or 0)
-        w(f"{name:<36}{r['n']:>8}  {r['name']:<10}{pv:>10}{_fmt(r['pvalue_holm'])}"
-          f"{_fmt(r['pvalue_bh'])}  {method_label(r['method'], r.get('n_sims'))}{flag}\n")
+        # an adjusted bound is a bound too
+        pv, ph, pb = (format_pvalue(r[k], r.get("pvalue_is_bound"), r.get("n_sims") or 0)
+                      for k in ("pvalue", "pvalue_holm", "pvalue_bh"))
+        w(f"{name:<36}{r['n']:>8}  {r['name']:<10}{pv:>10}{ph:>10}{pb:>10}  "
+          f"{method_label(r['method'], r.get('n_sims'))}{flag}\n")
     rej = sum(1 for r in res.rows if r["pvalue_bh"] is not None and r["pvalue_bh"] <= a.alpha)
     w(f"{rej} file(s) with CSR rejected at a false discovery rate of {a.alpha:g} "
       "(Benjamini-Hochberg over the primary test)\n")
