@@ -110,6 +110,14 @@ def plot_diagram(diagram, ax=None):
     return ax
 
 
+def _ptext(r) -> str:
+    """``p = 0.043``, or ``p < 1e-16`` / ``p <= 0.001`` for a bound."""
+    from .results import format_pvalue
+
+    text = format_pvalue(r.pvalue, r.pvalue_is_bound, r.n_sims)
+    return f"p {text}" if r.pvalue_is_bound else f"p = {text}"
+
+
 def _runs(mask: np.ndarray):
     """(start, stop) index pairs of the runs of True in ``mask``."""
     m = np.concatenate([[False], mask, [False]]).astype(int)
@@ -194,7 +202,7 @@ def plot_curve(stat, ax=None, legend: bool = True):
         ax.set_ylim(lo, hi)
     tag = " (primary)" if stat.primary else ""
     p = stat.pvalue if stat.pvalue is not None else np.nan
-    ptxt = f"p = {p:.3g}" if np.isfinite(p) else "no p-value"
+    ptxt = _ptext(stat) if np.isfinite(p) else "no p-value"
     ax.set_title(f"{stat.name}{tag}: {ptxt}" + ("" if stat.trusted else "\nUNTRUSTED"),
                  color="black" if stat.trusted else _UNTRUSTED, fontsize=10)
     if not stat.trusted:
@@ -236,7 +244,7 @@ def plot_scalars(results, ax=None):
     for k, r in enumerate(rows):
         y = len(rows) - 1 - k
         p = r.pvalue if r.pvalue is not None else np.nan
-        labels.append(f"{r.name}  p={p:.2g}" + ("" if r.trusted else " (untrusted)"))
+        labels.append(f"{r.name}  {_ptext(r)}" + ("" if r.trusted else " (untrusted)"))
         if r.z is None or not np.isfinite(r.z):
             ax.text(0, y, "z undefined", ha="center", va="center", fontsize=7, color="grey")
             continue
