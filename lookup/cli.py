@@ -132,6 +132,19 @@ def build_parser() -> argparse.ArgumentParser:
     t.add_argument("--engine", default="fast", choices=["fast", "gudhi"],
                    help="persistence engine: our exact kernels (default) or gudhi's generic "
                         "path, the reference; both give the same diagram")
+    t.add_argument("--tiled", action="store_true",
+                   help="one 2D pattern too large for one process: compute euler, betti0, "
+                   "betti1, total0, nnmean and gfunc tile by tile, exactly as one process "
+                   "would, reading .npy (memory-mapped), file.h5:/dataset or .parquet in "
+                   "chunks (POINTS may also be csr:N, N uniform points generated from --seed), "
+                   "and test them instantly (no Monte Carlo fallback)")
+    t.add_argument("--tile-points", type=_int, default=None, metavar="N",
+                   help="with --tiled: about N points per tile (default 1,000,000; a worker "
+                   "needs about 500 bytes per point of its tile and halo)")
+    t.add_argument("--dask-scheduler", metavar="ADDR",
+                   help="with --tiled: run the tiles on this dask.distributed scheduler "
+                   "(workers must see the temporary folder), or 'local' for a local cluster "
+                   "of --jobs workers")
     t.add_argument("--json", action="store_true", help="print one JSON object instead of a table")
     t.add_argument("--curves", action="store_true",
                    help="with --json, include the observed and null curves on their grids")
@@ -218,12 +231,58 @@ def _print_table(res, alpha, out=None):
     (out or sys.stdout).write(res.summary(alpha))
 
 
+def _cmd_test_tiled(a):
+    """``nullatlas test --tiled``: the points are read in chunks, never whole."""
+    from .patterns.readers import parse_columns
+    from .patterns.windows import parse_window
+    from .tiled.instant import tiled_csr_test
+    from .tiled.sources import GeneratedCSR
+
+    for opt, bad in (("--plot", a.plot), ("--null", a.null != "csr"),
+                     ("--method mc", a.method == "mc"), ("--curve-test erl", a.curve_test == "erl"),
+                     ("--on-duplicates", a.on_duplicates != "error")):
+        if bad:
+            raise OptionError(f"{opt} does not go with --tiled (a tiled run tests instantly, "
+                              "against CSR, points distinct)")
+    window = parse_window(a.window, None)
+    source = a.points
+    if a.points.lower().startswith("csr:"):
+        try:
+            n = int(float(a.points[4:]))
+        except ValueError:
+            raise OptionError(f"csr:N needs a number of points, got '{a.points}'") from None
+        if n < 3:
+            raise OptionError(f"csr:N needs at least 3 points, got {n}")
+        source = GeneratedCSR(window, n, seed=a.seed or 0)
+    return tiled_csr_test(source, window, a.stat, tile_points=a.tile_points, jobs=a.jobs or 1,
+                          scheduler=a.dask_scheduler, progress=a.progress, tables=a.table,
+                          alternative=a.alternative, seed=a.seed,
+                          columns=parse_columns(a.columns))
+
+
 def _cmd_test(a) -> int:
     from .csrtest import csr_test
     from .patterns.readers import parse_columns, read_points
     from .patterns.windows import parse_window
     from .plots import check_plot_path, plot_result
 
+    if a.tiled:
+        res = _cmd_test_tiled(a)
+        if a.json:
+            d = res.as_dict(curves=a.curves)
+            d["alpha"], d["points_file"] = a.alpha, a.points
+            json.dump(d, sys.stdout, indent=2, allow_nan=False)
+            sys.stdout.write("\n")
+        else:
+            _print_table(res, a.alpha)
+            tl = res.validation["tiling"]
+            sys.stdout.write(f"tiled: {tl['tiles']} tiles ({tl['grid'][0]} x {tl['grid'][1]}), "
+                             f"largest with its halo {tl['largest_tile_points']:,} points, "
+                             f"{tl['seconds']:.1f} s\n")
+        return 0
+    for opt, given in (("--tile-points", a.tile_points), ("--dask-scheduler", a.dask_scheduler)):
+        if given is not None:
+            raise OptionError(f"{opt} goes with --tiled")
     if a.sims < 1:
         raise OptionError(f"--sims must be at least 1, got {a.sims}")
     if a.jobs < 0:
