@@ -38,8 +38,11 @@ from ..errors import PointsError
 
 __all__ = ["tile_part"]
 
-#: Relative safety margin of the circumdisk-inside-rectangle test.
-_MARGIN = 1e-9
+#: Relative safety margin of the circumdisk tests: the centre and radius are
+#: computed with a relative error of a few units of rounding (about 1e-16),
+#: so a margin of 1e-12 of the radius is safe yet keeps the flat slivers along
+#: the hull (radii of 10^7 and more in a unit window) certifiable by the rim.
+_MARGIN = 1e-12
 
 
 def _circumcentres(P, tri):

@@ -1,0 +1,116 @@
+"""One large 2D pattern tile by tile: time, memory and equality with one process.
+
+Runs, side by side in one run:
+
+1. ``--single`` n (default 10^6) uniform points in the unit square: the
+   single-process ``compute`` and the tiled run (2 local worker processes);
+   time ratio and bit-for-bit equality of euler, betti0, betti1, total0,
+   nnmean, gfunc.
+2. each n of ``--sizes`` (default 10^6, 10^7) generated on the fly (no file)
+   on a local Dask cluster of ``--workers`` workers: wall time, peak memory
+   of each worker (``ru_maxrss``) and of this process; the scaling exponent
+   of time in n (slope of log time on log n).
+
+Every run prints the machine's load average beside its figures.  Usage::
+
+    python scripts/bench_tiled.py [--single 1000000] [--sizes 1e6,1e7[,1e8]]
+        [--workers 2] [--tile-points 1000000] [--json]
+"""
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import resource
+import sys
+import time
+
+import numpy as np
+
+import nullatlas
+from nullatlas.lookup.summaries.statistics import compute, resolve_stats
+from nullatlas.lookup.tiled import GeneratedCSR, tiled_statistics
+from nullatlas.lookup.tiled.merge import TILED_STATISTICS
+
+
+def _rss_mb() -> float:
+    return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0
+
+
+def _worker_rss_mb() -> float:        # runs on a Dask worker
+    import resource as r
+
+    return r.getrusage(r.RUSAGE_SELF).ru_maxrss / 1024.0
+
+
+def main(argv=None) -> int:
+    ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
+    ap.add_argument("--single", type=float, default=1e6)
+    ap.add_argument("--sizes", default="1e6,1e7")
+    ap.add_argument("--workers", type=int, default=2)
+    ap.add_argument("--tile-points", type=int, default=1_000_000)
+    ap.add_argument("--json", action="store_true")
+    a = ap.parse_args(argv)
+    w = nullatlas.Rectangle(0, 0, 1, 1)
+    stats = list(TILED_STATISTICS)
+    out = {"load_before": os.getloadavg()[0]}
+
+    n = int(a.single)
+    pts = np.vstack([b for _, b in GeneratedCSR(w, n, seed=1).chunks()])
+    t0 = time.perf_counter()
+    one = compute(pts, w, resolve_stats(stats, 2))
+    t_one = time.perf_counter() - t0
+    t0 = time.perf_counter()
+    tiled, info = tiled_statistics(pts, w, stats, tile_points=max(n // 8, 1000), jobs=2,
+                                   progress=False)
+    t_tiled = time.perf_counter() - t0
+    equal = {k: bool(np.array_equal(tiled[k], one[k])) for k in stats}
+    out["single"] = {"n": n, "single_s": round(t_one, 2), "tiled_s": round(t_tiled, 2),
+                     "ratio": round(t_tiled / t_one, 2), "tiles": info["tiles"],
+                     "equal": equal, "load": os.getloadavg()[0]}
+    del pts
+
+    from dask.distributed import Client, LocalCluster
+
+    runs = []
+    with LocalCluster(n_workers=a.workers, threads_per_worker=1, processes=True,
+                      dashboard_address=None, memory_limit="6GB") as cluster, \
+            Client(cluster) as client:
+        for size in (int(float(x)) for x in a.sizes.split(",")):
+            src = GeneratedCSR(w, size, seed=2)
+            t0 = time.perf_counter()
+            _, info = tiled_statistics(src, w, ["euler", "total0", "nnmean"],
+                                       tile_points=a.tile_points, scheduler=cluster.scheduler_address,
+                                       progress=False)
+            dt = time.perf_counter() - t0
+            rss = client.run(_worker_rss_mb)
+            runs.append({"n": size, "seconds": round(dt, 1), "tiles": info["tiles"],
+                         "worker_peak_mb": round(max(rss.values()), 0),
+                         "driver_peak_mb": round(_rss_mb(), 0),
+                         "largest_tile_points": info["largest_tile_points"],
+                         "load": os.getloadavg()[0]})
+    out["scaling"] = runs
+    if len(runs) >= 2:
+        x = np.log([r["n"] for r in runs])
+        y = np.log([r["seconds"] for r in runs])
+        out["slope"] = round(float(np.polyfit(x, y, 1)[0]), 2)
+    if a.json:
+        json.dump(out, sys.stdout, indent=1)
+        sys.stdout.write("\n")
+        return 0
+    s = out["single"]
+    print(f"{s['n']:,} points, unit square: single process {s['single_s']} s, tiled "
+          f"({s['tiles']} tiles, 2 processes) {s['tiled_s']} s, ratio {s['ratio']}; "
+          f"equal bit for bit: {all(s['equal'].values())} {s['equal']} (load {s['load']:.1f})")
+    for r in runs:
+        print(f"{r['n']:>13,} points generated on the fly, Dask {a.workers} workers: "
+              f"{r['seconds']} s, {r['tiles']} tiles, peak memory per worker "
+              f"{r['worker_peak_mb'] / 1024:.2f} GB, this process {r['driver_peak_mb'] / 1024:.2f} GB "
+              f"(load {r['load']:.1f})")
+    if "slope" in out:
+        print(f"time ~ n^{out['slope']} (log-log slope over {len(runs)} sizes)")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
