@@ -29,8 +29,9 @@ import numpy as np
 
 import nullatlas
 from nullatlas.lookup.summaries.statistics import compute, resolve_stats
-from nullatlas.lookup.tiled import GeneratedCSR, tiled_statistics
 from nullatlas.lookup.tiled.merge import TILED_STATISTICS
+from nullatlas.lookup.tiled.run import tiled_statistics
+from nullatlas.lookup.tiled.sources import GeneratedCSR
 
 
 def _rss_mb() -> float:

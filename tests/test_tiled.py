@@ -8,8 +8,9 @@ import nullatlas
 from nullatlas.lookup.cli import main
 from nullatlas.lookup.processes.registry import parse_model, simulate
 from nullatlas.lookup.summaries.statistics import compute, resolve_stats
-from nullatlas.lookup.tiled import GeneratedCSR, tiled_statistics
 from nullatlas.lookup.tiled.merge import TILED_STATISTICS
+from nullatlas.lookup.tiled.run import tiled_statistics
+from nullatlas.lookup.tiled.sources import GeneratedCSR
 
 ALL = list(TILED_STATISTICS)
 

@@ -4,9 +4,6 @@
 generated CSR); ``tiling`` cuts the window into tiles and spills each tile's
 points to disk; ``local`` computes a tile's certified share; ``merge``
 assembles the whole pattern's summaries; ``run`` drives it on processes or a
-Dask cluster.
+Dask cluster (:func:`~nullatlas.lookup.tiled.run.tiled_statistics`);
+``instant`` tests the result against the null tables.
 """
-from .run import TILE_POINTS, tiled_statistics
-from .sources import GeneratedCSR, open_source
-
-__all__ = ["tiled_statistics", "TILE_POINTS", "GeneratedCSR", "open_source"]

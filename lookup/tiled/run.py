@@ -109,7 +109,7 @@ def tiled_statistics(source, window, stats=None, tile_points: int = TILE_POINTS,
     >>> import numpy as np
     >>> import nullatlas
     >>> from nullatlas.lookup.summaries.statistics import compute, resolve_stats
-    >>> from nullatlas.lookup.tiled import tiled_statistics
+    >>> from nullatlas.lookup.tiled.run import tiled_statistics
     >>> w = nullatlas.Rectangle(0, 0, 1, 1)
     >>> pts = w.sample(4000, np.random.default_rng(1))
     >>> vals, info = tiled_statistics(pts, w, ["euler", "total0"], tile_points=500)
