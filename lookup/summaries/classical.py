@@ -26,10 +26,10 @@ from __future__ import annotations
 
 import math
 
-import numba
 import numpy as np
 from scipy.spatial import cKDTree
 
+from ..persistence.jit import njit
 from . import grids
 
 __all__ = ["close_pairs", "nn_distances", "nn_from_pairs", "nn_mean", "g_function", "l_function"]
@@ -74,7 +74,7 @@ def nn_from_pairs(points: np.ndarray, pairs: np.ndarray, dist: np.ndarray,
     return nn
 
 
-@numba.njit(cache=True, nogil=True)
+@njit(cache=True, nogil=True)
 def _pair_minimum(n, pairs, dist):  # pragma: no cover - compiled
     nn = np.full(n, np.inf)
     for k in range(pairs.shape[0]):
