@@ -46,7 +46,10 @@ import json
 import os
 import sys
 
-__all__ = ["njit", "Kernel", "build", "aot_status", "cache_root", "aot_dir", "announce"]
+from ..errors import CompileError
+
+__all__ = ["njit", "Kernel", "build", "ensure_built", "aot_status", "cache_root", "aot_dir",
+           "announce", "find_compiler"]
 
 #: The modules that define kernels (their sources make the build's hash).
 KERNEL_MODULES = (
@@ -346,6 +349,25 @@ def aot_status() -> dict:
     return out
 
 
+def ensure_built() -> None:
+    """At a command's first run: build the AOT kernels unless a build is there
+    (``NULLATLAS_AOT=auto`` only), with one line on standard error first; when
+    it cannot be built, one line and numba's JIT."""
+    if _mode() != "auto" or os.path.isfile(os.path.join(aot_dir(), "manifest.json")):
+        return
+    if find_compiler() is None:
+        announce("no C compiler found, so the numeric kernels are compiled by numba's JIT "
+                 f"instead ({JIT_SECONDS} at the first run, then loaded from numba's cache, "
+                 "about a second per run)")
+        return
+    announce(f"compiling the numeric kernels for this installation ({AOT_SECONDS}, once: "
+             "later runs start at once); `nullatlas compile` does this ahead of time")
+    try:
+        build()
+    except CompileError as exc:
+        sys.stderr.write(f"nullatlas: note: {exc}; using numba's JIT\n")
+
+
 # ---------------------------------------------------------------------------
 # announcements
 
@@ -437,14 +459,11 @@ def build(verbose: bool = False) -> dict:
 
     Raises
     ------
-    RuntimeError
+    CompileError
         When the build fails (no C compiler, unwritable cache folder); the
         kernels keep working through the JIT.
     """
-    import shutil
-    import tempfile
     import time
-    import warnings
 
     t0 = time.perf_counter()
     final = aot_dir()
@@ -452,12 +471,56 @@ def build(verbose: bool = False) -> dict:
         out = aot_status()
         out.update(seconds=time.perf_counter() - t0, rebuilt=False)
         return out
+    cc = find_compiler()
+    if cc is None:
+        raise CompileError("no C compiler found (numba.pycc needs one; set CC or install gcc)")
     root = cache_root()
     try:
         os.makedirs(root, exist_ok=True)
+        lock = open(os.path.join(root, ".build.lock"), "a")
+    except OSError as exc:
+        raise CompileError(f"cannot write the cache folder {root}: {exc.strerror or exc}") from None
+    with lock:
+        _lock(lock)          # one build at a time; the others wait, then find it built
+        if not os.path.isfile(os.path.join(final, "manifest.json")):
+            _build_into(root, final, verbose)
+            rebuilt = True
+        else:
+            rebuilt = False
+    _STATE["aot_checked"] = False
+    out = aot_status()
+    out.update(seconds=time.perf_counter() - t0, rebuilt=rebuilt)
+    return out
+
+
+def _lock(fh) -> None:
+    try:
+        import fcntl
+    except ImportError:  # pragma: no cover - not POSIX: the rename alone keeps builds whole
+        return
+    fcntl.flock(fh.fileno(), fcntl.LOCK_EX)
+
+
+def find_compiler() -> str | None:
+    """The C compiler numba.pycc would call (``CC``, else Python's build
+    configuration), if it is on the PATH."""
+    import shutil
+    import sysconfig
+
+    cc = os.environ.get("CC") or sysconfig.get_config_var("CC") or "cc"
+    first = cc.split()[0] if cc.split() else "cc"
+    return shutil.which(first)
+
+
+def _build_into(root: str, final: str, verbose: bool) -> None:
+    import shutil
+    import tempfile
+    import warnings
+
+    try:
         tmp = tempfile.mkdtemp(prefix=".build-", dir=root)
     except OSError as exc:
-        raise RuntimeError(f"cannot write the cache folder {root}: {exc.strerror or exc}") from None
+        raise CompileError(f"cannot write the cache folder {root}: {exc.strerror or exc}") from None
     try:
         if verbose:
             sys.stderr.write("nullatlas compile: running the kernels under numba's JIT\n")
@@ -501,7 +564,7 @@ def build(verbose: bool = False) -> dict:
             cc.compile()
         files = [f for f in os.listdir(tmp) if f.startswith(AOT_MODULE) and f.endswith((".so", ".pyd"))]
         if len(files) != 1:
-            raise RuntimeError("the compiler wrote no extension module")
+            raise CompileError("ahead-of-time compilation failed: the compiler wrote no extension module")
         manifest["file"] = files[0]
         with open(os.path.join(tmp, "manifest.json"), "w") as fh:
             json.dump(manifest, fh)
@@ -511,16 +574,14 @@ def build(verbose: bool = False) -> dict:
             if not os.path.isfile(os.path.join(final, "manifest.json")):
                 raise
         tmp = None
-    except RuntimeError:
+    except CompileError:
         raise
-    except Exception as exc:
+    except BaseException as exc:
+        if not isinstance(exc, Exception):
+            raise                      # Ctrl-C, SIGTERM: the temporary folder goes, nothing else
         msg = str(exc).strip().splitlines()
-        raise RuntimeError(f"ahead-of-time compilation failed: {type(exc).__name__}"
+        raise CompileError(f"ahead-of-time compilation failed: {type(exc).__name__}"
                            f"{': ' + msg[-1] if msg else ''}") from None
     finally:
         if tmp is not None:
             shutil.rmtree(tmp, ignore_errors=True)
-    _STATE["aot_checked"] = False
-    out = aot_status()
-    out.update(seconds=time.perf_counter() - t0, rebuilt=True)
-    return out
