@@ -42,7 +42,7 @@ from ..errors import TableError
 from ..patterns.shapes import normalise
 from ..summaries.statistics import STATISTICS
 from .extremequantiles import extreme_design, quantile_sample
-from .tablereader import check_stat_group, open_table, read_m2, shipped_tables
+from .tablereader import check_stat_group, open_table_cached, read_m2, shipped_tables
 
 __all__ = ["NullMoments", "TableSet", "null_moments", "null_moments_each", "default_tables"]
 
@@ -120,7 +120,7 @@ class _Table:
 
     def __init__(self, path: str):
         self.path = os.fspath(path)
-        self.info = open_table(self.path, check_stats=False)
+        self.info = open_table_cached(self.path)
         self.d = self.info.dimension
         self.by_shape = {}
         for c in self.info.cells:
