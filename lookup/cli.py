@@ -542,10 +542,10 @@ def guarded(prog: str, run, hint: str = "") -> int:
 
 def _cmd_compile(a) -> int:
     from .errors import CompileError
-    from .persistence import jit
+    from .kernels import build
 
     try:
-        st = jit.build(verbose=not a.json)
+        st = build(verbose=not a.json)
     except CompileError as exc:
         raise CompileError(f"{exc}; the kernels still run through numba's JIT") from None
     if a.json:
@@ -565,7 +565,7 @@ def _cmd_compile(a) -> int:
 def _kernels_ready() -> None:
     """Before the first kernel of a command runs: compile them ahead of time at
     the first run (one line on standard error; ``persistence.jit.ensure_built``)."""
-    from .persistence.jit import ensure_built
+    from .kernels import ensure_built
 
     ensure_built()
 

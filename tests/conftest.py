@@ -12,12 +12,13 @@ def compiled_kernels():
     no-op when the cache folder has them), so that every command-line test runs
     as after an installation's first run: no compile announcement on stderr.
     Without a C compiler the tests run through numba's JIT."""
+    from nullatlas.lookup import kernels
     from nullatlas.lookup.errors import CompileError
     from nullatlas.lookup.persistence import jit
 
     if jit._mode() != "off":
         try:
-            jit.build()
+            kernels.build()
         except CompileError:
             pass
     yield

@@ -18,8 +18,8 @@ numba compiles it; :func:`_register_typeof` teaches numba that a
 before, in the JIT and in the AOT build alike.
 
 The AOT build (:func:`build`, ``nullatlas compile``) runs a representative
-workload under the JIT (2D and 3D patterns, every statistic, the window
-kinds of the instant route), records the argument types of every call that
+workload under the JIT (``lookup.kernels.workload``: 2D and 3D patterns,
+every statistic, the window kinds of the instant route), records the argument types of every call that
 comes from Python, and exports those signatures with ``numba.pycc`` into one
 extension module.  It is written in a temporary folder of the cache and
 renamed into place, so a half-written build is never seen and several
@@ -51,13 +51,13 @@ from ..errors import CompileError
 __all__ = ["njit", "Kernel", "build", "ensure_built", "aot_status", "cache_root", "aot_dir",
            "announce", "find_compiler"]
 
-#: The modules that define kernels (their sources make the build's hash).
+#: The modules that define kernels, and the build's workload (their sources make the build's hash).
 KERNEL_MODULES = (
     "persistence/jit.py", "persistence/expansions.py", "persistence/exactvalues.py",
     "persistence/pointsets.py", "persistence/pairing.py", "persistence/meshrepair.py",
     "persistence/delaunay2d.py", "persistence/delaunay3d.py", "persistence/alpha2d.py",
     "persistence/alpha3d.py", "persistence/periodic.py", "summaries/classical.py",
-    "processes/alternatives.py",
+    "processes/alternatives.py", "kernels.py",
 )
 
 #: Name of the extension module of a build (its init symbol is PyInit_<name>).
@@ -173,6 +173,8 @@ class Kernel:
         self._checked = False     # numba's cache looked at for the announcement
         functools.update_wrapper(self, func)
         _KERNELS.append(self)
+        if _STATE["aot"] is not None:      # a module imported after the build was loaded
+            self._aot = _STATE["aot"].get(self.name)
 
     @property
     def dispatcher(self):
@@ -307,24 +309,6 @@ def _load_aot():
     _STATE["aot"] = table
     for name, k in byname.items():
         k._aot = table.get(name)
-    # kernels of modules imported after this point pick their functions up here
-    _Pending.table = table
-
-
-class _Pending:
-    table = None
-
-
-_orig_init = Kernel.__init__
-
-
-def _init_with_aot(self, func, options):
-    _orig_init(self, func, options)
-    if _Pending.table is not None:
-        self._aot = _Pending.table.get(self.name)
-
-
-Kernel.__init__ = _init_with_aot
 
 
 def aot_status() -> dict:
@@ -349,7 +333,7 @@ def aot_status() -> dict:
     return out
 
 
-def ensure_built() -> None:
+def ensure_built(workload) -> None:
     """At a command's first run: build the AOT kernels unless a build is there
     (``NULLATLAS_AOT=auto`` only), with one line on standard error first; when
     it cannot be built, one line and numba's JIT."""
@@ -363,7 +347,7 @@ def ensure_built() -> None:
     announce(f"compiling the numeric kernels for this installation ({AOT_SECONDS}, once: "
              "later runs start at once); `nullatlas compile` does this ahead of time")
     try:
-        build()
+        build(workload)
     except CompileError as exc:
         sys.stderr.write(f"nullatlas: note: {exc}; using numba's JIT\n")
 
@@ -414,40 +398,18 @@ def _numba_cache_has(disp) -> bool:
 # ---------------------------------------------------------------------------
 # the AOT build
 
-def _workload():
-    """Run the instant route's computations under the JIT on small patterns: 2D
-    and 3D, every statistic, the window kinds (rectangle, disk, polygon, box,
-    ball, torus)."""
-    import numpy as np
-
-    from ..patterns import windows
-    from ..patterns.periodic import PeriodicBox
-    from ..patterns.validate import validate_pattern
-    from ..summaries.statistics import STATISTICS, PatternSummary, evaluate, resolve_stats
-
-    rng = np.random.default_rng(20260)
-    wins = [windows.Rectangle(0, 0, 1, 1), windows.Disk(0, 0, 1),
-            windows.Box(0, 0, 0, 1, 1, 1), windows.Ball(0, 0, 0, 1),
-            PeriodicBox(0, 0, 1, 1), PeriodicBox(0, 0, 0, 1, 1, 1)]
-    for w in wins:
-        names = [s for s in STATISTICS if w.dim in STATISTICS[s].dims]
-        stats = resolve_stats(names, w.dim)
-        for n in ((1000, 3000) if isinstance(w, PeriodicBox) else (60, 400)):
-            pts = w.sample(n, rng)
-            pts, _ = validate_pattern(pts, w)
-            evaluate(PatternSummary(pts, w), stats)
-
-
-def build(verbose: bool = False) -> dict:
+def build(workload, verbose: bool = False) -> dict:
     """Compile every kernel ahead of time for this installation.
 
-    Runs :func:`_workload` under numba's JIT, recording the argument types of
+    Runs ``workload()`` under numba's JIT, recording the argument types of
     the calls that come from Python, and exports them with ``numba.pycc`` into
     one extension module in :func:`aot_dir` (built in a temporary folder and
-    renamed into place).
+    renamed into place, one build at a time under a file lock).
 
     Parameters
     ----------
+    workload : callable
+        Runs the kernels on representative inputs (``lookup.kernels.workload``).
     verbose : bool
         Print progress on standard error.
 
@@ -483,7 +445,7 @@ def build(verbose: bool = False) -> dict:
     with lock:
         _lock(lock)          # one build at a time; the others wait, then find it built
         if not os.path.isfile(os.path.join(final, "manifest.json")):
-            _build_into(root, final, verbose)
+            _build_into(root, final, workload, verbose)
             rebuilt = True
         else:
             rebuilt = False
@@ -512,7 +474,7 @@ def find_compiler() -> str | None:
     return shutil.which(first)
 
 
-def _build_into(root: str, final: str, verbose: bool) -> None:
+def _build_into(root: str, final: str, workload, verbose: bool) -> None:
     import shutil
     import tempfile
     import warnings
@@ -530,7 +492,7 @@ def _build_into(root: str, final: str, verbose: bool) -> None:
         for k in _KERNELS:
             k._aot = None
         try:
-            _workload()
+            workload()
         finally:
             _STATE["recording"] = False
             for k, v in saved.items():
