@@ -584,6 +584,22 @@ _ORDERLY_EXIT = ("joblib", "multiprocessing", "concurrent.futures", "dask", "dis
                  "matplotlib", "numba")
 
 
+#: Thread-count settings of the BLAS libraries numpy may use.
+_BLAS_THREADS = ("OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS", "OMP_NUM_THREADS")
+
+
+def _one_blas_thread() -> None:
+    """Run BLAS/LAPACK on one thread in this command (and its worker processes),
+    unless the user set a thread count: the command's matrices are small (the
+    curve tests' correlation matrices have at most a few hundred rows), and
+    on a busy 2-core machine OpenBLAS's threads made one eigendecomposition of
+    a 60 x 60 matrix take some 30 ms instead of well under one.  Set before
+    numpy is imported (the console script imports it later)."""
+    if "numpy" not in sys.modules and not any(v in os.environ for v in _BLAS_THREADS):
+        os.environ["OPENBLAS_NUM_THREADS"] = "1"
+        os.environ["MKL_NUM_THREADS"] = "1"
+
+
 def run() -> None:
     """The ``nullatlas`` console script: :func:`main`, then the exit.
 
@@ -593,6 +609,7 @@ def run() -> None:
     ``os._exit``: the interpreter's teardown of numpy, h5py and the rest has
     nothing left to do and would add some 30-50 ms to a half-second command.
     """
+    _one_blas_thread()
     rc = main()
     try:
         sys.stdout.flush()
