@@ -267,3 +267,43 @@ def test_tables_open_only_the_dimension_asked():
     assert [t.d for t in two] == [2]
     assert [e[2] is None for e in ts._shipped] == [False, True]
     assert [t.d for t in ts.tables] == [2, 3]
+
+
+READER_CASES = {
+    "plain.csv": "0.1,0.2\n0.3,0.4\n", "header.csv": "x,y\n0.1,0.2\n0.3,0.4\n",
+    "three.csv": "id,x,y\n1,0.1,0.2\n2,0.3,0.4\n", "spaces.txt": "0.1 0.2\n0.3   0.4\n",
+    "padded.csv": "0.1, 0.2\n 0.3 ,0.4\n", "empty_field.csv": "0.1,\n0.3,0.4\n",
+    "word.csv": "0.1,0.2\n0.3,abc\n", "nan.csv": "0.1,0.2\n0.3,nan\n",
+    "inf.csv": "x,y\n0.1,0.2\n0.3,inf\n", "ragged.csv": "0.1,0.2\n0.3,0.4,0.5\n",
+    "blank.csv": "0.1,0.2\n\n0.3,0.4\n", "header_only.csv": "x,y\n",
+    "trailing.csv": "0.1,0.2\n0.3,0.4\n\n\n", "xyz.csv": "1,2,3\n4,5,6\n",
+    "four.csv": "1,2,3,4\n4,5,6,7\n", "hex.csv": "0x1,2\n3,4\n", "under.csv": "1_0,2\n3,4\n",
+    "comment.csv": "# c\n1,2\n3,4\n", "crlf.csv": "1,2\r\n3,4\r\n", "tabs.tsv": "1\t2\n3\t4\n",
+}
+
+
+@pytest.mark.parametrize("name", sorted(READER_CASES))
+@pytest.mark.parametrize("columns", [None, [0, 1], ["x", "y"]])
+def test_plain_text_reader_matches_the_general_one(tmp_path, monkeypatch, name, columns):
+    """The quick reader of common text files gives what the general reader
+    gives: the same array, or the same one-line error."""
+    from nullatlas.lookup.errors import PointsError
+    from nullatlas.lookup.patterns import readers
+
+    p = tmp_path / name
+    p.write_bytes(READER_CASES[name].encode())
+
+    def read():
+        try:
+            return "ok", readers._read_text(str(p), columns)
+        except PointsError as exc:
+            return "error", str(exc)
+
+    quick = read()
+    monkeypatch.setattr(readers, "_read_plain", lambda *a: None)
+    general = read()
+    assert quick[0] == general[0]
+    if quick[0] == "ok":
+        assert quick[1].dtype == general[1].dtype and np.array_equal(quick[1], general[1])
+    else:
+        assert quick[1] == general[1]
