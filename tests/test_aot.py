@@ -319,3 +319,14 @@ def test_plain_text_reader_matches_the_general_one(tmp_path, monkeypatch, name, 
         assert quick[1].dtype == general[1].dtype and np.array_equal(quick[1], general[1])
     else:
         assert quick[1] == general[1]
+
+
+def test_kernels_pickle_by_reference():
+    import pickle
+
+    from nullatlas.lookup.summaries import classical
+
+    k = classical._grid_pairs
+    assert pickle.loads(pickle.dumps(k)) is k
+    x = np.random.default_rng(1).random((50, 2))
+    assert len(k(x, 0.2)) == len(classical.close_pairs(x, 0.2)[0])

@@ -45,6 +45,7 @@ import importlib.util
 import json
 import os
 import sys
+import threading
 
 from ..errors import CompileError
 
@@ -64,6 +65,8 @@ KERNEL_MODULES = (
 AOT_MODULE = "_nullatlas_kernels"
 
 _KERNELS: list = []
+#: Serialises loading the build and making the dispatchers (threads of a dask worker).
+_LOCK = threading.RLock()
 _STATE = {"aot": None, "aot_checked": False, "numba": False, "recording": False,
           "announced": False}
 
@@ -183,10 +186,17 @@ class Kernel:
             _materialise()
         return self._dispatcher
 
+    def __reduce__(self):
+        # by reference (module and name), as a function is pickled: the
+        # compiled functions it holds cannot travel to another process
+        return (_kernel_named, (self.py_func.__module__, self.py_func.__qualname__))
+
     def __call__(self, *args, **kwargs):
         if not kwargs:
             if not _STATE["aot_checked"]:
-                _load_aot()
+                with _LOCK:
+                    if not _STATE["aot_checked"]:
+                        _load_aot()
             if self._aot:
                 fn = self._aot.get(tuple(_argkey(a) for a in args))
                 if fn is not None:
@@ -204,16 +214,25 @@ class Kernel:
         return f"<kernel {self.name}>"
 
 
+def _kernel_named(module: str, qualname: str):
+    """The kernel ``qualname`` of ``module`` (unpickling a :class:`Kernel`)."""
+    obj = importlib.import_module(module)
+    for part in qualname.split("."):
+        obj = getattr(obj, part)
+    return obj
+
+
 def _materialise():
     """numba dispatchers for every declared kernel."""
     import numba
 
-    if not _STATE["numba"]:
-        _register_typeof()
-        _STATE["numba"] = True
-    for k in list(_KERNELS):
-        if k._dispatcher is None:
-            k._dispatcher = numba.njit(**k.options)(k.py_func)
+    with _LOCK:
+        if not _STATE["numba"]:
+            _register_typeof()
+            _STATE["numba"] = True
+        for k in list(_KERNELS):
+            if k._dispatcher is None:
+                k._dispatcher = numba.njit(**k.options)(k.py_func)
 
 
 def _register_typeof():
