@@ -396,6 +396,10 @@ def _announce_jit(kernel):
             return
     except Exception:
         return
+    if _STATE["aot"] is not None:    # a call the ahead-of-time build did not export
+        announce(f"compiling {kernel.__name__} and the kernels it needs with numba (seconds "
+                 "to a minute, once: later runs load them from numba's cache)")
+        return
     announce(f"compiling the numeric kernels with numba ({JIT_SECONDS}, once: later runs load "
              "them from the cache); `nullatlas compile` does it ahead of time")
 
