@@ -468,6 +468,7 @@ def build(workload, verbose: bool = False) -> dict:
     with lock:
         _lock(lock)          # one build at a time; the others wait, then find it built
         if not os.path.isfile(os.path.join(final, "manifest.json")):
+            _remove_leftovers(root)
             _build_into(root, final, workload, verbose)
             rebuilt = True
         else:
@@ -476,6 +477,16 @@ def build(workload, verbose: bool = False) -> dict:
     out = aot_status()
     out.update(seconds=time.perf_counter() - t0, rebuilt=rebuilt)
     return out
+
+
+def _remove_leftovers(root: str) -> None:
+    """Temporary folders of builds that were killed (under the lock no other
+    build is running, so any is a leftover)."""
+    import shutil
+
+    for name in os.listdir(root):
+        if name.startswith(".build-"):
+            shutil.rmtree(os.path.join(root, name), ignore_errors=True)
 
 
 def _lock(fh) -> None:
