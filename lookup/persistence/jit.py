@@ -352,22 +352,50 @@ def aot_status() -> dict:
     return out
 
 
+def _failed_marker() -> str:
+    return aot_dir() + ".failed"
+
+
 def ensure_built(workload) -> None:
     """At a command's first run: build the AOT kernels unless a build is there
-    (``NULLATLAS_AOT=auto`` only), with one line on standard error first; when
-    it cannot be built, one line and numba's JIT."""
+    (``NULLATLAS_AOT=auto`` only), with one line on standard error first.
+
+    When no build can be made here (no C compiler, a cache folder that cannot
+    be written, or an earlier automatic build of these sources failed:
+    ``aot-<hash>.failed`` in the cache folder), nothing is tried and nothing
+    said: the kernels run through numba's JIT, whose one line (only when it
+    has to compile) gives the reason.  ``nullatlas compile`` always tries.
+    """
     if _mode() != "auto" or os.path.isfile(os.path.join(aot_dir(), "manifest.json")):
         return
+    root = cache_root()
+    why = None
     if find_compiler() is None:
-        announce("no C compiler found, so the numeric kernels are compiled by numba's JIT "
-                 f"instead ({JIT_SECONDS} at the first run, then loaded from numba's cache, "
-                 "about a second per run)")
+        why = "no C compiler was found for the ahead-of-time build"
+    elif os.path.exists(_failed_marker()):
+        why = "the ahead-of-time build failed here before (`nullatlas compile` says why)"
+    else:
+        try:
+            os.makedirs(root, exist_ok=True)
+            writable = os.access(root, os.W_OK | os.X_OK)
+        except OSError:
+            writable = False
+        if not writable:
+            why = f"the cache folder {root} cannot be written"
+    if why:
+        _STATE["jit_reason"] = why
         return
     announce(f"compiling the numeric kernels for this installation ({AOT_SECONDS}, once: "
              "later runs start at once); `nullatlas compile` does this ahead of time")
     try:
         build(workload)
     except CompileError as exc:
+        _STATE["jit_reason"] = "the ahead-of-time build failed"
+        try:
+            with open(_failed_marker(), "w") as fh:
+                fh.write(f"{exc}\n")
+        except OSError:
+            pass
         sys.stderr.write(f"nullatlas: note: {exc}; using numba's JIT\n")
 
 
@@ -400,8 +428,10 @@ def _announce_jit(kernel):
         announce(f"compiling {kernel.__name__} and the kernels it needs with numba (seconds "
                  "to a minute, once: later runs load them from numba's cache)")
         return
+    why = _STATE.get("jit_reason")
     announce(f"compiling the numeric kernels with numba ({JIT_SECONDS}, once: later runs load "
-             "them from the cache); `nullatlas compile` does it ahead of time")
+             "them from the cache)" + (f"; {why}" if why else
+                                        "; `nullatlas compile` does it ahead of time"))
 
 
 def _numba_cache_has(disp) -> bool:
@@ -474,6 +504,10 @@ def build(workload, verbose: bool = False) -> dict:
         else:
             rebuilt = False
     _STATE["aot_checked"] = False
+    try:
+        os.unlink(_failed_marker())
+    except OSError:
+        pass
     out = aot_status()
     out.update(seconds=time.perf_counter() - t0, rebuilt=rebuilt)
     return out
