@@ -1,6 +1,4 @@
 """``python -m nullatlas.lookup`` runs the ``nullatlas`` command."""
-import sys
+from .cli import run
 
-from .cli import main
-
-sys.exit(main())
+run()

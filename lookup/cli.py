@@ -216,7 +216,22 @@ def build_parser() -> argparse.ArgumentParser:
     s = sub.add_parser("stats", help="list the available statistics",
                        description="List the statistics that --stat accepts.")
     s.add_argument("--json", action="store_true", help="print a JSON list")
+
+    c = sub.add_parser("compile", help="compile the numeric kernels ahead of time",
+                       description=COMPILE_HELP)
+    c.add_argument("--json", action="store_true", help="print one JSON object")
     return p
+
+
+#: ``nullatlas compile --help`` (the README says the same).
+COMPILE_HELP = (
+    "Compile the numeric kernels (Delaunay, alpha persistence, close pairs) into machine code "
+    "for this installation, once, in the cache folder ($NULLATLAS_CACHE_DIR, default "
+    "~/.cache/nullatlas): run it in an install script or a container image build. The "
+    "first `nullatlas test` or `batch` does the same by itself (1-3 min, announced on "
+    "standard error); afterwards a command needs only numpy and h5py to start. Without a C "
+    "compiler the kernels run through numba's JIT instead (cached by numba). "
+    "NULLATLAS_AOT=off uses the JIT only; NULLATLAS_AOT=use never compiles at a first run.")
 
 
 def _fmt(v, width=10):
@@ -293,6 +308,7 @@ def _cmd_test(a) -> int:
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         window = parse_window(a.window, pts)
+    _kernels_ready()
     res = csr_test(pts, window, a.stat, method=a.method, n_sims=a.sims, seed=a.seed,
                    jobs=a.jobs, alternative=a.alternative, on_duplicates=a.on_duplicates,
                    alpha=a.alpha, progress=a.progress, engine=a.engine, tables=a.table,
@@ -357,6 +373,7 @@ def _cmd_batch(a) -> int:
     if a.resume and not os.path.exists(journal):
         sys.stderr.write(f"{PROG}: note: --resume: {_no_journal(a.out, journal)}; every file "
                          "is tested again\n")
+    _kernels_ready()
     res = run_batch(items, stats=a.stat, method=a.method, n_sims=a.sims, seed=a.seed,
                     jobs=a.jobs, alternative=a.alternative, on_duplicates=a.on_duplicates,
                     alpha=a.alpha, engine=a.engine, tables=a.table, progress=a.progress,
@@ -596,12 +613,86 @@ def guarded(prog: str, run, hint: str = "") -> int:
         return 130
 
 
+def _cmd_compile(a) -> int:
+    from .errors import CompileError
+    from .kernels import build
+
+    try:
+        st = build(verbose=not a.json)
+    except CompileError as exc:
+        raise CompileError(f"{exc}; the kernels still run through numba's JIT") from None
+    if a.json:
+        json.dump(st, sys.stdout, indent=2)
+        sys.stdout.write("\n")
+    elif st["rebuilt"]:
+        sys.stdout.write(f"compiled {st['signatures']} signatures of {st['kernels']} kernels into "
+                         f"{st['folder']} in {st['seconds']:.0f} s\n")
+    else:
+        sys.stdout.write(f"already compiled: {st['folder']} ({st['signatures']} signatures of "
+                         f"{st['kernels']} kernels)\n")
+    if st["mode"] == "off":
+        sys.stdout.write("note: NULLATLAS_AOT=off, so the compiled kernels are not used\n")
+    return 0
+
+
+def _kernels_ready() -> None:
+    """Before the first kernel of a command runs: compile them ahead of time at
+    the first run (one line on standard error; ``persistence.jit.ensure_built``)."""
+    from .kernels import ensure_built
+
+    ensure_built()
+
+
 def main(argv=None) -> int:
     """Entry point of the ``nullatlas`` command."""
     a = build_parser().parse_args(argv)
-    cmds = {"test": _cmd_test, "stats": _cmd_stats, "tables": _cmd_tables, "batch": _cmd_batch}
+    cmds = {"test": _cmd_test, "stats": _cmd_stats, "tables": _cmd_tables, "batch": _cmd_batch,
+            "compile": _cmd_compile}
     return guarded(PROG, lambda: cmds[a.command](a))
 
 
+#: Modules whose presence means worker processes or figures may still need the
+#: interpreter's orderly exit (their atexit handlers): then :func:`run` exits normally.
+_ORDERLY_EXIT = ("joblib", "multiprocessing", "concurrent.futures", "dask", "distributed",
+                 "matplotlib", "numba")
+
+
+#: Thread-count settings of the BLAS libraries numpy may use.
+_BLAS_THREADS = ("OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS", "OMP_NUM_THREADS")
+
+
+def _one_blas_thread() -> None:
+    """Run BLAS/LAPACK on one thread in this command (and its worker processes),
+    unless the user set a thread count: the command's matrices are small (the
+    curve tests' correlation matrices have at most a few hundred rows), and
+    on a busy 2-core machine OpenBLAS's threads made one eigendecomposition of
+    a 60 x 60 matrix take some 30 ms instead of well under one.  Set before
+    numpy is imported (the console script imports it later)."""
+    if "numpy" not in sys.modules and not any(v in os.environ for v in _BLAS_THREADS):
+        os.environ["OPENBLAS_NUM_THREADS"] = "1"
+        os.environ["MKL_NUM_THREADS"] = "1"
+
+
+def run() -> None:
+    """The ``nullatlas`` console script: :func:`main`, then the exit.
+
+    When the command started no worker processes and drew no figure (none of
+    :data:`_ORDERLY_EXIT` was imported, as on the instant route), every file
+    is closed and the output is flushed here, so the process ends with
+    ``os._exit``: the interpreter's teardown of numpy, h5py and the rest has
+    nothing left to do and would add some 30-50 ms to a half-second command.
+    """
+    _one_blas_thread()
+    rc = main()
+    try:
+        sys.stdout.flush()
+        sys.stderr.flush()
+    except (BrokenPipeError, OSError):
+        sys.exit(rc)
+    if not any(m in sys.modules for m in _ORDERLY_EXIT):
+        os._exit(rc or 0)
+    sys.exit(rc)
+
+
 if __name__ == "__main__":  # pragma: no cover
-    sys.exit(main())
+    run()

@@ -29,3 +29,8 @@ class OptionError(NullAtlasError):
 class WriteError(NullAtlasError):
     """A result, figure, table or journal cannot be written (a read-only
     folder, a full disk, ...); the message names the file and the reason."""
+
+
+class CompileError(NullAtlasError):
+    """The kernels cannot be compiled ahead of time (no C compiler, a cache
+    folder that cannot be written); they still run through numba's JIT."""

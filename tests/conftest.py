@@ -6,6 +6,24 @@ ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 EXAMPLES = os.path.join(ROOT, "examples")
 
 
+@pytest.fixture(scope="session", autouse=True)
+def compiled_kernels():
+    """Compile the kernels ahead of time once, as ``nullatlas compile`` would (a
+    no-op when the cache folder has them), so that every command-line test runs
+    as after an installation's first run: no compile announcement on stderr.
+    Without a C compiler the tests run through numba's JIT."""
+    from nullatlas.lookup import kernels
+    from nullatlas.lookup.errors import CompileError
+    from nullatlas.lookup.persistence import jit
+
+    if jit._mode() != "off":
+        try:
+            kernels.build()
+        except CompileError:
+            pass
+    yield
+
+
 @pytest.fixture
 def examples():
     return EXAMPLES

@@ -92,7 +92,7 @@ def replicate_reasons(replicates: int, alpha: float = SIZE_LEVEL,
     list of str
         Empty when the replicates suffice.
     """
-    from scipy.stats import norm
+    from .tails import norm
 
     r = max(int(replicates), 1)
     out = []
@@ -317,7 +317,7 @@ def _gumbel(nm: NullMoments, n: int) -> GumbelTail:
 
 
 def _scalar_p(z: float, alternative: str) -> float:
-    from scipy.special import ndtr
+    from .tails import ndtr
 
     if alternative == "greater":
         return float(ndtr(-z))

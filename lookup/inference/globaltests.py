@@ -29,7 +29,8 @@ count is about 100).  A Poisson count with mean 100 has skewness 0.1.
 from __future__ import annotations
 
 import numpy as np
-from scipy import stats as _st
+
+from . import tails as _st
 
 __all__ = ["SKEW_MAX", "MIN_COUNT", "skewness", "usable_coordinates", "valid_coordinates", "correlation",
            "maxabs_null", "maxabs_pvalue", "sidak_bound", "Spectral", "spectral", "mahalanobis_pvalue"]

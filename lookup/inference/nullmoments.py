@@ -42,7 +42,7 @@ from ..errors import TableError
 from ..patterns.shapes import normalise
 from ..summaries.statistics import STATISTICS
 from .extremequantiles import extreme_design, quantile_sample
-from .tablereader import open_table, read_m2, shipped_tables
+from .tablereader import check_stat_group, open_table_cached, read_m2, shipped_tables
 
 __all__ = ["NullMoments", "TableSet", "null_moments", "null_moments_each", "default_tables"]
 
@@ -120,7 +120,7 @@ class _Table:
 
     def __init__(self, path: str):
         self.path = os.fspath(path)
-        self.info = open_table(self.path)
+        self.info = open_table_cached(self.path)
         self.d = self.info.dimension
         self.by_shape = {}
         for c in self.info.cells:
@@ -156,6 +156,7 @@ class _Table:
         try:
             with h5py.File(self.path, "r") as fh:
                 g = fh[f"cells/{cell}/{stat}"]
+                check_stat_group(g, f"{self.path}: cell {cell}", stat)
                 out = {"mean": np.asarray(g["mean"][()]), "m2": read_m2(g["m2"])}
                 out["count"] = g.attrs["count"] if "count" in g.attrs else g["count"][()]
                 for k in ("values", "usable", "expected_count"):
@@ -220,15 +221,28 @@ class TableSet:
     """
 
     def __init__(self, paths=(), use_shipped: bool = True):
-        self.tables = [_Table(p) for p in paths]
+        self._given = [_Table(p) for p in paths]
+        self._shipped = []        # [dimension, path, _Table or None]: opened on first use
         if use_shipped:
-            have = {os.path.realpath(t.path) for t in self.tables}
+            have = {os.path.realpath(t.path) for t in self._given}
             for d, p in sorted(shipped_tables().items()):
                 if os.path.realpath(p) not in have:
-                    self.tables.append(_Table(p))
+                    self._shipped.append([d, p, None])
+
+    def _open(self, entry) -> _Table:
+        if entry[2] is None:
+            entry[2] = _Table(entry[1])
+        return entry[2]
+
+    @property
+    def tables(self) -> list:
+        """Every table, in the order consulted (opens the shipped ones not yet open)."""
+        return self._given + [self._open(e) for e in self._shipped]
 
     def for_dimension(self, d: int) -> list:
-        return [t for t in self.tables if t.d == d]
+        """The tables of dimension ``d``; a shipped table of another dimension is not opened."""
+        return [t for t in self._given + [self._open(e) for e in self._shipped if e[0] == d]
+                if t.d == d]
 
 
 class _OneTable:

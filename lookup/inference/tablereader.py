@@ -51,8 +51,8 @@ import numpy as np
 from ..errors import TableError
 
 __all__ = ["SCHEMA", "SCHEMA_VERSION", "READABLE_VERSIONS", "TableInfo", "CellInfo", "open_table",
-           "load_cell", "load_model", "load_holdout", "shipped_tables", "read_m2",
-           "unpack_symmetric"]
+           "open_table_cached", "check_stat_group", "load_cell", "load_model", "load_holdout",
+           "shipped_tables", "read_m2", "unpack_symmetric"]
 
 SCHEMA = "nullatlas-null-table"
 SCHEMA_VERSION = 2
@@ -129,7 +129,7 @@ def _attr(obj, name, where):
     return v.decode() if isinstance(v, bytes) else v
 
 
-def open_table(path, dimension: int | None = None) -> TableInfo:
+def open_table(path, dimension: int | None = None, check_stats: bool = True) -> TableInfo:
     """Open and check a null table; read its metadata and coverage.
 
     Parameters
@@ -137,6 +137,11 @@ def open_table(path, dimension: int | None = None) -> TableInfo:
     path : str
     dimension : int, optional
         Refuse the table unless it is for this dimension.
+    check_stats : bool
+        Check that every statistic of every cell has its moments (count,
+        mean, m2, m3).  The runtime passes False and checks the one
+        statistic of a cell when it reads it (:func:`check_stat_group`):
+        opening a table then reads only attributes, not the ~1,000 groups.
 
     Raises
     ------
@@ -176,10 +181,9 @@ def open_table(path, dimension: int | None = None) -> TableInfo:
             for name, g in fh.get("cells", {}).items():
                 where = f"{path}: cell {name}"
                 stats = tuple(sorted(g.keys()))
-                for s in stats:
-                    for part in ("count", "mean", "m2", "m3"):
-                        if part not in g[s] and part not in g[s].attrs:
-                            raise TableError(f"{where}: statistic {s} lacks '{part}'")
+                if check_stats:
+                    for s in stats:
+                        check_stat_group(g[s], where, s)
                 info.cells.append(CellInfo(
                     name=name, dimension=int(_attr(g, "dimension", where)),
                     shape=str(_attr(g, "shape", where)), n=int(_attr(g, "n", where)),
@@ -207,6 +211,73 @@ def open_table(path, dimension: int | None = None) -> TableInfo:
     except (OSError, KeyError, ValueError, TypeError) as exc:
         raise TableError(f"{path}: damaged table ({type(exc).__name__}: {exc})") from None
     return info
+
+
+#: Version of the metadata kept by :func:`open_table_cached` (bump when TableInfo changes).
+_META_VERSION = 1
+
+
+def _native(v):
+    if isinstance(v, np.generic):
+        return v.item()
+    if isinstance(v, np.ndarray):
+        return v.tolist()
+    return v
+
+
+def open_table_cached(path) -> TableInfo:
+    """:func:`open_table` (``check_stats=False``) for the runtime, with the
+    metadata kept as JSON in the cache folder under the file's identity
+    (real path, size, modification time, inode): a later process reads one
+    small file instead of some 500 HDF5 attributes.  Any change of the file
+    changes the key; a cache that cannot be read or written is skipped."""
+    import hashlib
+
+    from ..persistence.jit import cache_root
+
+    path = os.fspath(path)
+    try:
+        st = os.stat(path)
+    except OSError:
+        return open_table(path, check_stats=False)    # its one-line TableError
+    ident = f"{os.path.realpath(path)}|{st.st_size}|{st.st_mtime_ns}|{st.st_ino}|{_META_VERSION}"
+    cpath = os.path.join(cache_root(), "tables", hashlib.sha256(ident.encode()).hexdigest()[:32]
+                         + ".json")
+    try:
+        with open(cpath) as fh:
+            d = json.load(fh)
+        info = TableInfo(path=path, schema_version=d["schema_version"], created=d["created"],
+                         dimension=d["dimension"], root_seed=d["root_seed"], software=d["software"],
+                         grids={k: np.asarray(v, dtype=float) for k, v in d["grids"].items()},
+                         cells=[CellInfo(**{**c, "stats": tuple(c["stats"])}) for c in d["cells"]],
+                         nmin=d["nmin"], attrs=d["attrs"], models=tuple(d["models"]),
+                         geomodels=tuple(d["geomodels"]), trust=d["trust"])
+        return info
+    except (OSError, ValueError, KeyError, TypeError):
+        pass
+    info = open_table(path, check_stats=False)
+    d = {"schema_version": info.schema_version, "created": info.created,
+         "dimension": info.dimension, "root_seed": info.root_seed, "software": info.software,
+         "grids": {k: v.tolist() for k, v in info.grids.items()},
+         "cells": [dict(vars(c), stats=list(c.stats)) for c in info.cells], "nmin": info.nmin,
+         "attrs": {k: _native(v) for k, v in info.attrs.items()}, "models": list(info.models),
+         "geomodels": list(info.geomodels), "trust": info.trust}
+    try:                      # best effort, atomic: never a half-written file
+        os.makedirs(os.path.dirname(cpath), exist_ok=True)
+        tmp = f"{cpath}.{os.getpid()}.tmp"
+        with open(tmp, "w") as fh:
+            json.dump(d, fh)
+        os.replace(tmp, cpath)
+    except (OSError, TypeError, ValueError):
+        pass
+    return info
+
+
+def check_stat_group(g, where: str, stat: str) -> None:
+    """Raise a :class:`TableError` unless the h5py group ``g`` of ``stat`` has its moments."""
+    for part in ("count", "mean", "m2", "m3"):
+        if part not in g and part not in g.attrs:
+            raise TableError(f"{where}: statistic {stat} lacks '{part}'")
 
 
 def unpack_symmetric(packed, k: int) -> np.ndarray:

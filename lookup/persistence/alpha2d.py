@@ -37,7 +37,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from numba import njit
 
 from .exactvalues import (
     _edge2_dd,
@@ -52,6 +51,7 @@ from .exactvalues import (
     _tri2_exact,
     _tri2_value,
 )
+from .jit import njit
 from .meshrepair import _facet_adjacency, _insert_missing, _legalize, _orient_all
 from .pairing import _dual_pairs, _kruskal, radix_argsort
 from .pointsets import check_points, distinct_morton, power_of_two_scale

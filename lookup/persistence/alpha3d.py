@@ -27,7 +27,6 @@ import math
 from dataclasses import dataclass, field
 
 import numpy as np
-from numba import njit
 
 from .alpha2d import _gudhi_top_simplices, _prepare, _remap, sort_rows
 from .exactvalues import (
@@ -40,6 +39,7 @@ from .exactvalues import (
     _tri_attach,
     _tri_attach_filter,
 )
+from .jit import njit
 from .meshrepair import _facet_adjacency
 from .pairing import _dual_pairs, _kruskal, radix_argsort, radix_argsort_keys
 

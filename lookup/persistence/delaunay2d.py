@@ -60,7 +60,6 @@ All per-point work runs inside ``numba.njit(cache=True)`` functions.
 from __future__ import annotations
 
 import numpy as np
-from numba import njit
 
 from .expansions import (
     _EPS,
@@ -68,6 +67,7 @@ from .expansions import (
     _scale_expansion_zeroelim,
     scale_for_predicates,
 )
+from .jit import njit
 
 __all__ = [
     "delaunay_mesh", "delaunay_triangles", "delaunay_triangles_qhull", "orient2d", "incircle"]

@@ -80,7 +80,6 @@ All per-point work runs inside ``numba.njit(cache=True)`` functions.
 from __future__ import annotations
 
 import numpy as np
-from numba import njit
 
 from .expansions import (
     _EPS,
@@ -89,6 +88,7 @@ from .expansions import (
     _scale_expansion_zeroelim,
     scale_for_predicates,
 )
+from .jit import njit
 
 __all__ = ["delaunay_mesh_3d"]
 

@@ -25,7 +25,8 @@ cloud has extent ~1.
 from __future__ import annotations
 
 import numpy as np
-from numba import njit
+
+from .jit import njit
 
 _EPS = 2.0 ** -53
 _SPLITTER = 2.0 ** 27 + 1.0

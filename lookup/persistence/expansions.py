@@ -33,7 +33,8 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from numba import njit
+
+from .jit import njit
 
 __all__ = ["scale_for_predicates"]
 

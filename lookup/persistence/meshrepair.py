@@ -11,9 +11,9 @@ triangulation with its adjacency directly.
 from __future__ import annotations
 
 import numpy as np
-from numba import njit
 
 from .exactvalues import _incircle, _new_regs, _orient2d
+from .jit import njit
 
 # ======================================================================================
 # 2D triangulation repair: orientation, adjacency, missing points, Lawson flips

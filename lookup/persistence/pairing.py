@@ -16,7 +16,8 @@ its dual).
 from __future__ import annotations
 
 import numpy as np
-from numba import njit
+
+from .jit import njit
 
 # ======================================================================================
 # Union-find persistence kernels

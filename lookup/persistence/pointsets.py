@@ -11,7 +11,8 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from numba import njit
+
+from .jit import njit
 
 __all__ = ["check_points", "power_of_two_scale", "distinct_morton", "duplicate_groups"]
 

@@ -46,10 +46,10 @@ import ast
 import math
 import operator
 
-import numba
 import numpy as np
 
 from ..errors import OptionError
+from ..persistence.jit import njit
 from .csr import _bounds
 
 __all__ = ["matern_cluster", "matern_hardcore", "strauss", "inhomogeneous_poisson", "voids",
@@ -146,7 +146,7 @@ def matern_hardcore(window, lambda_p: float, r: float, rng) -> np.ndarray:
     return pts[window.contains(pts)]
 
 
-@numba.njit(cache=True)
+@njit(cache=True)
 def _close_count(x, n, p, skip, r2):  # pragma: no cover - compiled
     """Number of the first n points of x (but index ``skip``) closer than
     sqrt(r2) to p."""
@@ -163,7 +163,7 @@ def _close_count(x, n, p, skip, r2):  # pragma: no cover - compiled
     return s
 
 
-@numba.njit(cache=True)
+@njit(cache=True)
 def _strauss_chain(x0, n0, beta_vol, gamma, r2, steps, u_kind, u_acc, cand,
                    pick):  # pragma: no cover - compiled
     d = x0.shape[1]

@@ -25,30 +25,44 @@ point and every pair, with no edge correction needed (no boundary).
 from __future__ import annotations
 
 import math
+from typing import TYPE_CHECKING
 
-import numba
 import numpy as np
-from scipy.spatial import cKDTree
 
+from ..persistence.jit import njit
 from . import grids
+
+if TYPE_CHECKING:  # scipy.spatial is imported only where a k-d tree is needed
+    from scipy.spatial import cKDTree
 
 __all__ = ["close_pairs", "nn_distances", "nn_from_pairs", "nn_mean", "g_function", "l_function"]
 
 
 def nn_distances(points: np.ndarray, tree: cKDTree | None = None) -> np.ndarray:
     """Distance of each point to its nearest other point."""
-    tree = tree or cKDTree(points)
+    if tree is None:
+        from scipy.spatial import cKDTree
+
+        tree = cKDTree(points)
     d, _ = tree.query(points, k=2)
     return d[:, 1]
 
 
 def close_pairs(points: np.ndarray, radius: float, tree: cKDTree | None = None):
-    """All unordered pairs closer than ``radius``: (pairs (m, 2) int, distances (m,))."""
-    tree = tree or cKDTree(points)
-    pairs = tree.query_pairs(radius, output_type="ndarray")
+    """All unordered pairs closer than ``radius``: (pairs (m, 2) int, distances (m,)).
+
+    With a k-d ``tree`` (a periodic one on a torus), the tree's
+    ``query_pairs``; without, the compiled cell-grid search
+    :func:`_grid_pairs`, which finds the same pairs (i < j, squared distance
+    summed over the axes in order, at most ``radius ** 2``) without importing
+    scipy.spatial.  Pairs come in no particular order."""
+    if tree is None:
+        pairs = _grid_pairs(np.ascontiguousarray(points, dtype=np.float64), float(radius))
+    else:
+        pairs = tree.query_pairs(radius, output_type="ndarray")
     if len(pairs) == 0:
         return np.zeros((0, 2), dtype=np.intp), np.zeros(0)
-    if tree.boxsize is None:
+    if tree is None or tree.boxsize is None:
         diff = points[pairs[:, 0]] - points[pairs[:, 1]]
     else:                     # periodic tree (a torus): minimum-image differences
         x = tree.data
@@ -68,13 +82,48 @@ def nn_from_pairs(points: np.ndarray, pairs: np.ndarray, dist: np.ndarray,
                        np.ascontiguousarray(dist, dtype=float))
     miss = np.flatnonzero(~np.isfinite(nn))
     if len(miss):
-        tree = tree or cKDTree(points)
+        if tree is None and len(miss) * len(points) <= BRUTE_MAX:
+            # few points without a close pair: a compiled scan of all points
+            # (the same squared distances as the tree's, so the same roots)
+            x = np.ascontiguousarray(points, dtype=np.float64)
+            nn[miss] = np.sqrt(_nearest_sq(x, miss.astype(np.int64)))
+            return nn
+        if tree is None:
+            from scipy.spatial import cKDTree
+
+            tree = cKDTree(points)
         d, _ = tree.query(tree.data[miss], k=2)   # the tree's coordinates (periodic: wrapped)
         nn[miss] = d[:, 1]
     return nn
 
 
-@numba.njit(cache=True, nogil=True)
+#: Largest (points without a close pair) x (points) scanned directly by
+#: :func:`nn_from_pairs` rather than through a k-d tree.
+BRUTE_MAX = 20_000_000
+
+
+@njit(cache=True)
+def _nearest_sq(x, targets):  # pragma: no cover - compiled
+    """Squared distance of each target row of ``x`` to its nearest other row."""
+    n, d = x.shape
+    out = np.full(targets.shape[0], np.inf)
+    for t in range(targets.shape[0]):
+        i = targets[t]
+        best = np.inf
+        for j in range(n):
+            if j == i:
+                continue
+            s = 0.0
+            for a in range(d):
+                diff = x[i, a] - x[j, a]
+                s += diff * diff
+            if s < best:
+                best = s
+        out[t] = best
+    return out
+
+
+@njit(cache=True, nogil=True)
 def _pair_minimum(n, pairs, dist):  # pragma: no cover - compiled
     nn = np.full(n, np.inf)
     for k in range(pairs.shape[0]):
@@ -84,6 +133,100 @@ def _pair_minimum(n, pairs, dist):  # pragma: no cover - compiled
         if d < nn[j]:
             nn[j] = d
     return nn
+
+
+@njit(cache=True)
+def _grid_pairs(x, r):  # pragma: no cover - compiled
+    """Pairs i < j of rows of ``x`` with squared distance <= r * r: points binned
+    in cells of side at least r (at most about 4 n cells), each pair found
+    from the cell of i and its 3^d neighbours; counted, then written."""
+    n, d = x.shape
+    out = np.empty((0, 2), np.int64)
+    if n < 2:
+        return out
+    lo = np.empty(d)
+    hi = np.empty(d)
+    for a in range(d):
+        lo[a] = x[0, a]
+        hi[a] = x[0, a]
+    for i in range(1, n):
+        for a in range(d):
+            v = x[i, a]
+            if v < lo[a]:
+                lo[a] = v
+            if v > hi[a]:
+                hi[a] = v
+    side = r if r > 0.0 else 1.0
+    while True:                       # keep the number of cells near the number of points
+        total = 1
+        for a in range(d):
+            total *= int((hi[a] - lo[a]) / side) + 1
+        if total <= 4 * n + 16:
+            break
+        side *= 2.0
+    nc = np.empty(d, np.int64)
+    for a in range(d):
+        nc[a] = int((hi[a] - lo[a]) / side) + 1
+    cell = np.empty(n, np.int64)
+    for i in range(n):
+        c = 0
+        for a in range(d):
+            k = int((x[i, a] - lo[a]) / side)
+            if k >= nc[a]:
+                k = nc[a] - 1
+            c = c * nc[a] + k
+        cell[i] = c
+    start = np.zeros(total + 1, np.int64)
+    for i in range(n):
+        start[cell[i] + 1] += 1
+    for c in range(total):
+        start[c + 1] += start[c]
+    fill = start[:-1].copy()
+    members = np.empty(n, np.int64)
+    for i in range(n):
+        members[fill[cell[i]]] = i
+        fill[cell[i]] += 1
+    r2 = r * r
+    offs = 1
+    for a in range(d):
+        offs *= 3
+    coord = np.empty(d, np.int64)
+    for sweep in range(2):
+        m = 0
+        for i in range(n):
+            c = cell[i]
+            for a in range(d - 1, -1, -1):
+                coord[a] = c % nc[a]
+                c //= nc[a]
+            for o in range(offs):
+                t = o
+                nb = 0
+                ok = True
+                for a in range(d):
+                    k = coord[a] + (t % 3) - 1
+                    t //= 3
+                    if k < 0 or k >= nc[a]:
+                        ok = False
+                        break
+                    nb = nb * nc[a] + k
+                if not ok:
+                    continue
+                for q in range(start[nb], start[nb + 1]):
+                    j = members[q]
+                    if j <= i:
+                        continue
+                    s = 0.0
+                    for a in range(d):
+                        diff = x[i, a] - x[j, a]
+                        s += diff * diff
+                    if s <= r2:
+                        if sweep == 1:
+                            out[m, 0] = i
+                            out[m, 1] = j
+                        m += 1
+        if sweep == 0:
+            out = np.empty((m, 2), np.int64)
+    return out
 
 
 def nn_mean(nn: np.ndarray, scale: float) -> float:

@@ -9,14 +9,16 @@ other way.  Directions are documented in the README.
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Callable
+from typing import TYPE_CHECKING, Callable
 
 import numpy as np
-from scipy.spatial import cKDTree
 
 from ..errors import OptionError
 from ..persistence.diagram import Diagram, alpha_diagram, intensity_scale
 from . import classical, grids, topological
+
+if TYPE_CHECKING:  # scipy.spatial is imported only where a k-d tree is needed
+    from scipy.spatial import cKDTree
 
 __all__ = ["Statistic", "STATISTICS", "resolve_stats", "PatternSummary", "compute",
            "default_stats", "evaluate"]
@@ -184,18 +186,21 @@ class PatternSummary:
     def tree(self) -> cKDTree:
         if self.periodic:       # torus distances: cKDTree(points - lo, boxsize=sides)
             return self._get("tree", lambda: self.window.tree(self.points))
+        from scipy.spatial import cKDTree
+
         return self._get("tree", lambda: cKDTree(self.points))
 
     @property
     def pairs(self):
-        """Pairs closer than the L-function grid's largest radius, with distances."""
+        """Pairs closer than the L-function grid's largest radius, with distances
+        (a periodic k-d tree on a torus, the compiled cell grid otherwise)."""
         return self._get("pairs", lambda: classical.close_pairs(
-            self.points, grids.L_RHO[-1] / self.scale, self.tree))
+            self.points, grids.L_RHO[-1] / self.scale, self.tree if self.periodic else None))
 
     @property
     def nn(self) -> np.ndarray:
         return self._get("nn", lambda: classical.nn_from_pairs(
-            self.points, *self.pairs, tree=self.tree))
+            self.points, *self.pairs, tree=self.tree if self.periodic else None))
 
     @property
     def bdist(self) -> np.ndarray:
