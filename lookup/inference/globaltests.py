@@ -123,7 +123,7 @@ def sidak_bound(t: float, k: int) -> float:
     >>> sidak_bound(6.0, 50) < 50 * 1.98e-9
     True
     """
-    from scipy.special import ndtr
+    from .tails import ndtr
 
     q = 2.0 * float(ndtr(-abs(float(t))))
     return float(-np.expm1(int(k) * np.log1p(-min(q, 1.0)))) if q < 1.0 else 1.0

@@ -265,21 +265,13 @@ def _degenerate():
 
 
 def _nearest(P, own, r_pairs, rect, box, covers):
-    """Nearest-neighbour distances of the own points, computed as
-    ``summaries.classical.nn_from_pairs`` does; None if the halo cannot
-    certify one of them."""
-    from scipy.spatial import cKDTree
+    """Nearest-neighbour distances of the own points, computed by the same
+    functions as ``PatternSummary.nn`` (close pairs, then the nearest point
+    for those without one); None if the halo cannot certify one of them."""
+    from ..summaries.classical import close_pairs, nn_from_pairs
 
-    from ..summaries.classical import nn_from_pairs
-
-    tree = cKDTree(P)
-    pairs = tree.query_pairs(r_pairs, output_type="ndarray")
-    if len(pairs):
-        pairs = pairs[(pairs[:, 0] < own) | (pairs[:, 1] < own)]
-        dist = np.sqrt(np.sum((P[pairs[:, 0]] - P[pairs[:, 1]]) ** 2, axis=1))
-    else:
-        pairs, dist = np.zeros((0, 2), dtype=np.intp), np.zeros(0)
-    nn = nn_from_pairs(P, pairs, dist, tree=tree)[:own]
+    pairs, dist = close_pairs(P, r_pairs)
+    nn = nn_from_pairs(P, pairs, dist)[:own]
     if not covers:
         x, y = P[:own, 0], P[:own, 1]
         room = np.minimum.reduce([x - rect[0] if rect[0] > box[0] else np.full(own, np.inf),
