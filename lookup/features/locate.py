@@ -79,6 +79,10 @@ def _loop_place(pts, k, dp, adj, tops, fverts):
         area = float(poly.area)
         c = np.array(poly.centroid.coords[0])
         ring = [list(xy) for xy in poly.exterior.coords]
+        # the points on the hole's outer cycle (not those of islands inside it)
+        outer = {tuple(xy) for xy in poly.exterior.coords}
+        on = np.array([tuple(pts[i]) in outer for i in bpts], bool)
+        bpts = bpts[on] if on.any() else bpts
         return bpts, c, 2.0 * np.sqrt(area / np.pi), area, ring
     P = pts[simp]                                 # (k, 4, 3)
     vol = np.abs(np.einsum("ij,ij->i", P[:, 1] - P[:, 0],

@@ -68,8 +68,10 @@ def hole_region(pairs, k: int, adjacency=None):
                     seen.add(int(o))
                     todo.append(int(o))
             elif key[f] <= limit:
-                boundary.append(int(f))
-    return np.array(sorted(seen), np.int64), np.unique(np.array(boundary, np.int64))
+                boundary.append((int(f), int(o)))
+    # faces between two simplices of the region are inside it, not on its boundary
+    out = [f for f, o in boundary if o not in seen]
+    return np.array(sorted(seen), np.int64), np.unique(np.array(out, np.int64))
 
 
 def cluster_members(n: int, edges, seed: int, radius: float) -> np.ndarray:
