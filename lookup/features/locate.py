@@ -62,10 +62,12 @@ def _family_null(window, n, q, method, n_sims, seed, min_size, progress, tables)
 
 
 def _loop_place(pts, k, dp, adj, tops, fverts):
-    """(points, centre, size, area, polygon) of the hole of dual pair k."""
+    """(points, centre, size, area, polygon) of the hole of dual pair k at the
+    middle of its life, r = sqrt(birth * death) (``lookup.features.regions``)."""
     from .regions import hole_region
 
-    region, bfaces = hole_region(dp, k, adj)
+    r = float(np.sqrt(dp.birth[k] * dp.death[k]))
+    region, bfaces = hole_region(dp, k, adj, radius=r)
     simp = tops[region]
     bpts = np.unique(fverts[bfaces])
     d = pts.shape[1]
@@ -252,9 +254,8 @@ def locate_features(points, window, *, alpha: float = 0.05, families=None, min_s
         adj = None if q == 0 else _adjacency(dp.face_tops, len(dp.top_values))
         for rank, i in enumerate(chosen, start=1):
             b, dth = float(birth[i]), float(death[i])
-            used = float("nan")
+            used = float(np.sqrt(b * dth))
             if q == 0:
-                used = float(np.sqrt(b * dth))
                 members = cluster_members(n, cp.edges, int(cp.seed[i]), used)
                 c, size, area, ring = _cluster_place(pts, members)
             else:

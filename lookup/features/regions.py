@@ -1,10 +1,17 @@
 """The place of one feature.
 
 Loop (2D) / void (3D)
-    At its birth the hole is the dual component of its destroyer just before
-    the creator joins it: the top simplices reachable from the destroyer
-    across faces that come later in the sweep order (value above the birth),
-    never through the outside.  Their union is the region of the hole (a
+    At radius r in [birth, death) the hole is the component of its destroyer
+    in the uncovered part: the top simplices reachable from the destroyer
+    across faces of value above r (at the birth itself: faces later in the
+    sweep order than the creator), never through the outside.  At the birth
+    it is largest and often runs into fjords between neighbouring gaps;
+    ``locate_features`` takes r = sqrt(birth * death), the middle of the
+    hole's life on the log scale, where on planted empty disks and edge
+    rings the region overlapped the planted one far better (median
+    intersection over union 0.71 vs 0.29 for an empty disk of radius 40 mm
+    on a 300-defect wafer, 0.95 vs 0.52 with a ring of 20 defects on its
+    edge; 10 patterns each, scripts/feature_fwer.py's setting).  Their union is the region of the hole (a
     polygon in 2D, a set of tetrahedra in 3D); the faces of the region that
     are not crossed are present at the birth and form the representative
     cycle (2D: the polygon's boundary) or the enclosing surface (3D); their
@@ -36,8 +43,9 @@ def _adjacency(face_tops: np.ndarray, m: int):
     return start, other[o], face[o]
 
 
-def hole_region(pairs, k: int, adjacency=None):
-    """Top simplices of the hole of pair ``k`` at its birth, and its boundary faces.
+def hole_region(pairs, k: int, adjacency=None, radius: float | None = None):
+    """Top simplices of the hole of pair ``k`` and its boundary faces, at
+    ``radius`` (data units; default: at its birth).
 
     Parameters
     ----------
@@ -46,6 +54,8 @@ def hole_region(pairs, k: int, adjacency=None):
         Index of the pair.
     adjacency : tuple, optional
         ``_adjacency(pairs.face_tops, m)``, cached by the caller.
+    radius : float, optional
+        In [birth, death) of the pair.
 
     Returns
     -------
@@ -53,8 +63,12 @@ def hole_region(pairs, k: int, adjacency=None):
     """
     m = len(pairs.top_values)
     start, other, face = adjacency if adjacency is not None else _adjacency(pairs.face_tops, m)
-    limit = pairs.face_key[pairs.creator[k]]
-    key = pairs.face_key
+    if radius is None:
+        limit = pairs.face_key[pairs.creator[k]]
+        key = pairs.face_key
+    else:                       # faces of value <= radius^2 are present: their key is <= limit
+        limit = 0.5
+        key = (pairs.face_values > radius * radius).astype(np.int64)
     seen = {int(pairs.destroyer[k])}
     todo = deque(seen)
     boundary = []

@@ -47,7 +47,11 @@ class Feature:
         pvalue <= alpha.
     points : ndarray of int
         Rows of the (validated) pattern that make the feature: cluster
-        members, points on the hole's boundary cycle/surface.
+        members, points on the hole's outer boundary cycle (2D) or its
+        enclosing surface (3D), all at ``scale_used``.
+    scale_used : float
+        The radius sqrt(birth * death) (data units) at which the feature is
+        located: the middle of its life on the log scale.
     centre : ndarray
     size : float
         Diameter in the data's units: of the circle/ball of the hole's area
@@ -55,7 +59,8 @@ class Feature:
     area : float
         Area (2D) or volume (3D) of the hole; of the convex hull of a cluster.
     polygon : list or None
-        2D: exterior ring [[x, y], ...] of the hole (or of the cluster's hull).
+        2D: exterior ring [[x, y], ...] of the hole at ``scale_used`` (or of
+        the cluster's convex hull).
     bbox : list
         [min..., max...] of the feature's points.
     """
@@ -96,8 +101,7 @@ class Feature:
              "centre": [float(c) for c in self.centre], "size": _num(self.size),
              "area" if len(self.centre) == 2 else "volume": _num(self.area),
              "bbox": [float(b) for b in self.bbox], "n_points": int(len(self.points))}
-        if self.dim == 0:
-            d["members_at_radius"] = _num(self.scale_used)
+        d["located_at_radius"] = _num(self.scale_used)
         if points:
             d["points"] = [int(i) for i in self.points]
         if self.polygon is not None:
