@@ -211,7 +211,8 @@ def build_parser() -> argparse.ArgumentParser:
     lo.add_argument("--seed", type=_int, default=0, metavar="S", help="seed of the simulations")
     lo.add_argument("--table", action="append", metavar="FILE", help="your own null table")
     lo.add_argument("--columns", metavar="COLS", help="as for 'test'")
-    lo.add_argument("--on-duplicates", default="error", choices=["error", "drop", "jitter"])
+    lo.add_argument("--on-duplicates", default="error", choices=["error", "drop", "jitter"],
+                    help="as for 'test' (point labels refer to the points kept)")
     lo.add_argument("--json", action="store_true", help="print one JSON object")
     lo.add_argument("--geojson", metavar="FILE", help="write the significant features as GeoJSON")
     lo.add_argument("--labels", metavar="FILE", help="write a CSV: which feature each point belongs to")
