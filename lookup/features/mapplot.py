@@ -22,6 +22,25 @@ _COLOURS = ["#d62728", "#1f77b4", "#2ca02c", "#9467bd", "#ff7f0e", "#8c564b", "#
 MAX_LABELS = 12
 
 
+def _new_figure(path, figsize):
+    """Detached from pyplot when it goes to a file; a pyplot figure otherwise."""
+    if path is not None:
+        from matplotlib.figure import Figure
+        return Figure(figsize=figsize)
+    import matplotlib.pyplot as plt
+    return plt.figure(figsize=figsize)
+
+
+def _save(fig, path: str) -> str:
+    """Write the figure atomically (format from the suffix)."""
+    import os
+
+    from ..atomic import atomic_path
+    with atomic_path(path) as tmp:
+        fig.savefig(tmp, format=os.path.splitext(path)[1].lower().lstrip("."), dpi=110)
+    return path
+
+
 def _outline(ax, window):
     """Draw the window's outline (x-y projection in 3D)."""
     import matplotlib.patches as mp
@@ -95,11 +114,10 @@ def plot_feature_map(res, path: str | None = None, window=None, title: str | Non
     str or matplotlib.figure.Figure
     """
     from ..patterns.windows import parse_window
-    from ..plots import _finish, new_figure
 
     if window is None:
         window = parse_window(res.window["spec"])
-    fig = new_figure(path, (12.0, 5.6))
+    fig = _new_figure(path, (12.0, 5.6))
     axm, axd = fig.subplots(1, 2, gridspec_kw={"width_ratios": [1.15, 1.0]})
     P = res.points[:, :2]
     axm.scatter(P[:, 0], P[:, 1], s=4, color="0.6", lw=0, zorder=1)
@@ -175,4 +193,4 @@ def plot_feature_map(res, path: str | None = None, window=None, title: str | Non
     fig.suptitle(title or f"where the structure is: n = {res.n}, window {w.get('spec', w.get('kind'))}",
                  fontsize=10)
     fig.tight_layout()
-    return _finish(fig, path)
+    return fig if path is None else _save(fig, path)
