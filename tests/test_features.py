@@ -188,6 +188,8 @@ def test_geojson_and_labels_valid(clustered_run, capsys):
         assert g.is_valid and not g.is_empty
         assert f["geometry"]["type"] in ("Polygon", "MultiPoint")
         assert f["properties"]["pvalue"] <= 0.05
+        if f["geometry"]["type"] == "Polygon":          # RFC 7946: exterior counter-clockwise
+            assert g.exterior.is_ccw
     rows = list(csv.DictReader(open(out["lab"])))
     pts = nullatlas.read_points(os.path.join(EX, "wafer_lot_clustered.csv"))
     assert len(rows) == len(pts)

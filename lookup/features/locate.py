@@ -78,6 +78,8 @@ def _loop_place(pts, k, dp, adj, tops, fverts):
         poly = unary_union([Polygon(pts[s]) for s in simp])
         if poly.geom_type != "Polygon":          # touching at a vertex: the largest part
             poly = max(poly.geoms, key=lambda g: g.area)
+        from shapely.geometry.polygon import orient
+        poly = orient(poly, 1.0)                  # exterior counter-clockwise (RFC 7946)
         area = float(poly.area)
         c = np.array(poly.centroid.coords[0])
         ring = [list(xy) for xy in poly.exterior.coords]
