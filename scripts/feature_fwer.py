@@ -122,6 +122,23 @@ def power_study(reps: int, seed: int) -> dict:
         res[f"cluster m={m}"] = {"detection": hit / reps,
                                  "iou_median": float(np.median(ious)) if ious else None}
         print(f"cluster m={m}", res[f"cluster m={m}"], flush=True)
+    # scratch: m defects along a 60 mm segment, jittered by 0.5 mm across it
+    for m in (8, 12, 20, 40):
+        hit, ious = 0, []
+        for i in range(reps):
+            rng = np.random.default_rng([seed, 500 + m, i])
+            t = rng.uniform(0, 1, m)
+            line = np.c_[-70 + 60 * t, -40 + 30 * t + rng.normal(0, 0.5, m)]
+            pts = np.vstack([wafer.sample(300, rng), line])
+            r = nullatlas.locate_features(pts, wafer, families=[0], seed=seed, progress=False)
+            mine = set(range(300, 300 + m))
+            best = [f for f in r.significant if len(mine & set(map(int, f.points))) >= m // 2]
+            if best:
+                hit += 1
+                ious.append(_iou(best[0].points, mine))
+        key = f"scratch m={m}"
+        res[key] = {"detection": hit / reps, "iou_median": float(np.median(ious)) if ious else None}
+        print(key, res[key], flush=True)
     # empty disk of radius rad (no defects inside), with m extra defects on its edge
     for rad, m in ((15, 0), (20, 0), (25, 0), (40, 0), (40, 20), (40, 70)):
         hit, ious = 0, []

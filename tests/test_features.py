@@ -215,6 +215,16 @@ def test_json_output_and_dataframe(capsys):
     assert res.pvalue == pytest.approx(min(df["pvalue"]))
 
 
+def test_json_when_no_ratio_can_reach_alpha(capsys):
+    """With 19 simulations no cluster p can reach 0.05 / 2: the threshold is
+    infinite, written as null, never as an invalid JSON number."""
+    rc = main(["locate", os.path.join(EX, "wafer_lot_random.csv"), "-w", "disk:0,0,150",
+               "--sims", "19", "--json", "--no-progress"])
+    assert rc == 0
+    d = json.loads(capsys.readouterr().out)
+    assert d["families"]["cluster"]["threshold_ratio"] is None
+
+
 @pytest.mark.parametrize("args,needle", [
     (["nope.csv", "-w", "disk:0,0,150"], "nope.csv"),
     (["WAFER", "-w", "disk:0,0,1"], "outside"),

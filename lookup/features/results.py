@@ -179,7 +179,8 @@ class FeatureMap:
     def as_dict(self, points: bool = True) -> dict:
         fam = {}
         for q, f in self.families.items():
-            g = {k: v for k, v in f.items() if k not in ("pairs_norm", "ratios", "pvalues")}
+            g = {k: (_num(v) if isinstance(v, float) else v) for k, v in f.items()
+                 if k not in ("pairs_norm", "ratios", "pvalues")}
             g["features"] = int(len(f["ratios"]))
             fam[KINDS[q]] = g
         return {"statistic": _num(self.statistic), "pvalue": _num(self.pvalue),
