@@ -25,7 +25,8 @@ _WHERE = {
     "Disk": "patterns.windows", "PolygonWindow": "patterns.windows", "Rectangle": "patterns.windows",
     "Window": "patterns.windows", "parse_window": "patterns.windows",
     "plot_result": "plots", "plot_diagram": "plots", "plot_curve": "plots", "plot_scalars": "plots",
-    "plot_batch": "plots",
+    "plot_batch": "plots", "locate_features": "features.locate", "FeatureMap": "features.results",
+    "Feature": "features.results", "plot_feature_map": "features.mapplot",
 }
 __all__ = list(_WHERE)
 

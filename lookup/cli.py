@@ -213,6 +213,39 @@ def build_parser() -> argparse.ArgumentParser:
     tb.add_argument("file", nargs="*", help="table files (default: the shipped tables)")
     tb.add_argument("--json", action="store_true", help="print one JSON object")
 
+    lo = sub.add_parser("locate", help="find and place the significant clusters, loops and voids",
+                        description="Per-feature significance with family-wise error control: a "
+                        "feature (cluster, loop, or void in 3D) is significant when its death/birth "
+                        "ratio beats the largest ratio of a CSR pattern of the same window and n "
+                        "(shipped tables, or CSR simulations); prints where each one is.")
+    lo.add_argument("points", help="points file, as for 'test'")
+    lo.add_argument("--window", "-w", required=True, metavar="SPEC", help="window, as for 'test'")
+    lo.add_argument("--alpha", type=_float, default=0.05, help="family-wise level (default 0.05)")
+    lo.add_argument("--only", choices=["clusters", "holes"], default=None,
+                    help="test one family: clusters, or holes (loops in 2D, voids in 3D); "
+                    "default both, Bonferroni over the two")
+    lo.add_argument("--min-size", type=_int, default=10, metavar="K",
+                    help="points a component needs to count as a cluster (default 10)")
+    lo.add_argument("--method", default="auto", choices=["auto", "table", "mc"],
+                    help="null of the largest loop/void: tables where trusted else simulations "
+                    "(auto), tables only, or simulations only; clusters are always simulated")
+    lo.add_argument("--sims", type=_int, default=199, metavar="M",
+                    help="CSR patterns per simulated null (default 199)")
+    lo.add_argument("--seed", type=_int, default=0, metavar="S", help="seed of the simulations")
+    lo.add_argument("--table", action="append", metavar="FILE", help="your own null table")
+    lo.add_argument("--columns", metavar="COLS", help="as for 'test'")
+    lo.add_argument("--on-duplicates", default="error", choices=["error", "drop", "jitter"],
+                    help="as for 'test' (point labels refer to the points kept)")
+    lo.add_argument("--json", action="store_true", help="print one JSON object")
+    lo.add_argument("--geojson", metavar="FILE", help="write the significant features as GeoJSON")
+    lo.add_argument("--labels", metavar="FILE", help="write a CSV: which feature each point belongs to")
+    lo.add_argument("--plot", metavar="FILE", help="map and diagram (.png, .pdf or .svg)")
+    lbar = lo.add_mutually_exclusive_group()
+    lbar.add_argument("--progress", dest="progress", action="store_true", default=None,
+                      help="always show the progress bar (default: only on a terminal)")
+    lbar.add_argument("--no-progress", dest="progress", action="store_false",
+                      help="never show the progress bar")
+
     s = sub.add_parser("stats", help="list the available statistics",
                        description="List the statistics that --stat accepts.")
     s.add_argument("--json", action="store_true", help="print a JSON list")
@@ -329,6 +362,53 @@ def _cmd_test(a) -> int:
         _print_table(res, a.alpha)
         if a.plot:
             sys.stdout.write(f"figure written to {a.plot}\n")
+    return 0
+
+
+def _cmd_locate(a) -> int:
+    from .atomic import check_writable
+    from .features.locate import locate_features
+    from .patterns.readers import parse_columns, read_points
+    from .patterns.windows import parse_window
+    from .plots import check_plot_path
+
+    if a.plot:
+        check_plot_path(a.plot)
+    for opt, path in (("--geojson", a.geojson), ("--labels", a.labels)):
+        if path:
+            if not os.path.isdir(os.path.dirname(os.path.abspath(path))):
+                raise OptionError(f"{opt} folder does not exist: {os.path.dirname(os.path.abspath(path))}")
+            check_writable(path)
+    pts = read_points(a.points, parse_columns(a.columns))
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        window = parse_window(a.window, pts)
+    fam = None
+    if a.only:
+        fam = [0] if a.only == "clusters" else [window.dim - 1]
+    res = locate_features(pts, window, alpha=a.alpha, families=fam, min_size=a.min_size,
+                          method=a.method, n_sims=a.sims, seed=a.seed,
+                          on_duplicates=a.on_duplicates, progress=a.progress, tables=a.table)
+    res.warnings[:0] = [str(w.message) for w in caught]
+    from .features import export
+    written = []
+    if a.geojson:
+        written.append(export.write_geojson(res, a.geojson))
+    if a.labels:
+        written.append(export.write_labels(res, a.labels))
+    if a.plot:
+        from .features.mapplot import plot_feature_map
+        written.append(plot_feature_map(res, a.plot))
+    if a.json:
+        d = res.as_dict()
+        d["points_file"] = a.points
+        d["written"] = written
+        json.dump(d, sys.stdout, indent=2, allow_nan=False)
+        sys.stdout.write("\n")
+    else:
+        sys.stdout.write(res.summary())
+        for w in written:
+            sys.stdout.write(f"written: {w}\n")
     return 0
 
 
@@ -647,7 +727,7 @@ def main(argv=None) -> int:
     """Entry point of the ``nullatlas`` command."""
     a = build_parser().parse_args(argv)
     cmds = {"test": _cmd_test, "stats": _cmd_stats, "tables": _cmd_tables, "batch": _cmd_batch,
-            "compile": _cmd_compile}
+            "compile": _cmd_compile, "locate": _cmd_locate}
     return guarded(PROG, lambda: cmds[a.command](a))
 
 

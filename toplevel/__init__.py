@@ -9,6 +9,8 @@ The main entry points, imported on first use so that ``import nullatlas``
   :class:`PolygonWindow`, :class:`Box`, :class:`Ball`,
   :class:`ConvexPolytope` (all :class:`Window`) and :func:`parse_window`;
 * :func:`read_points` -- read points from text, ``.npy`` or HDF5 files;
+* :func:`locate_features` -- the significant clusters, loops and voids of a
+  pattern, located, with family-wise p-values (a :class:`FeatureMap`);
 * :class:`CSRTestResult` and :class:`NullAtlasError`;
 * the figures :func:`plot_result`, :func:`plot_diagram`, :func:`plot_curve`,
   :func:`plot_scalars` and :func:`plot_batch`: each draws into a matplotlib
@@ -32,7 +34,7 @@ import importlib
 _PUBLIC = ("csr_test", "read_points", "validate_pattern", "Window", "Rectangle", "Disk",
            "PolygonWindow", "Box", "Ball", "ConvexPolytope", "parse_window", "CSRTestResult",
            "StatResult", "NullAtlasError", "plot_result", "plot_diagram", "plot_curve", "plot_scalars",
-           "plot_batch")
+           "plot_batch", "locate_features", "FeatureMap", "Feature", "plot_feature_map")
 __all__ = [*_PUBLIC, "__version__"]
 
 

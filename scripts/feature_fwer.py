@@ -1,0 +1,198 @@
+"""Family-wise size and power of ``nullatlas locate`` (issue 17).
+
+Size: R CSR patterns per window (disk, square, 3D box); the share with at
+least one feature significant at 0.05 under
+
+* the largest-feature null (tables for loops/voids, 199 CSR simulations for
+  clusters): each family alone, and both with Bonferroni over the two;
+* the universal law of Bobrowski & Skraba (2023) with Bonferroni over the
+  features, A = 1/2 (used) and A = 1 (recalled in the issue).
+
+Power: planted structures, detection rate (a significant feature of the
+right kind whose location overlaps the planted one) and the intersection over
+union (IoU) of the located region with the planted one.
+
+    python scripts/feature_fwer.py                  # R = 200, 20 per strength (~1 min on 1 core)
+    python scripts/feature_fwer.py --reps 1000 --json fwer.json
+"""
+from __future__ import annotations
+
+import argparse
+import json
+import time
+
+import numpy as np
+
+import nullatlas
+from nullatlas.lookup.features.nulls import simulated_null, table_null, universal_pvalues
+from nullatlas.lookup.features.pairs import max_cluster_ratio
+from nullatlas.lookup.persistence.diagram import alpha_diagram
+
+#: Shipped shapes (specs), then held-out windows of calibrate/heldout.py (never fitted on).
+WINDOWS = [("disk:0,0,150", 300), ("rect:0,0,1,1", 500), ("box:0,0,0,1,1,1", 500),
+           ("heldout:L", 500), ("heldout:box123", 500), ("heldout:wafer-notched", 300)]
+
+
+def _window(spec):
+    if spec.startswith("heldout:"):
+        from nullatlas.calibrate.heldout import heldout_window
+        return heldout_window(spec.split(":", 1)[1])
+    return nullatlas.parse_window(spec)
+
+
+def binom_ci(k, r):
+    p = k / r
+    h = 1.96 * np.sqrt(max(p * (1 - p), 1e-12) / r)
+    return [round(p, 4), round(max(0.0, p - h), 4), round(min(1.0, p + h), 4)]
+
+
+def size_study(reps: int, seed: int) -> dict:
+    out = {}
+    for spec, n in WINDOWS:
+        w = _window(spec)
+        q = w.dim - 1
+        hole, why = table_null(w, n, q)
+        if hole is None:        # no trusted table: the simulated null, as locate would use
+            hole = simulated_null(w, n, q, 199, seed, progress=False)
+        clus = simulated_null(w, n, 0, 199, seed, 10, progress=False)
+        k = dict(holes=0, clusters=0, both=0, universal_half=0, universal_one=0)
+        rng0 = np.random.SeedSequence([seed, 99]).spawn(reps)
+        for s in rng0:
+            pts = w.sample(n, np.random.default_rng(s))
+            p = alpha_diagram(pts).finite(q)
+            r = p[:, 1] / p[:, 0]
+            ph = float(hole.pvalue(r.max()))
+            pc = float(clus.pvalue(max_cluster_ratio(pts, 10)))
+            k["holes"] += ph <= 0.05
+            k["clusters"] += pc <= 0.05
+            k["both"] += min(2 * ph, 2 * pc) <= 0.05
+            k["universal_half"] += float(np.nanmin(universal_pvalues(r, 0.5))) * len(r) <= 0.05
+            k["universal_one"] += float(np.nanmin(universal_pvalues(r, 1.0))) * len(r) <= 0.05
+        out[f"{spec} n={n}"] = {key: binom_ci(v, reps) for key, v in k.items()}
+        out[f"{spec} n={n}"]["hole_null"] = hole.source + ("" if not why else f" ({'; '.join(why)})")
+        print(spec, n, out[f"{spec} n={n}"], flush=True)
+    return out
+
+
+def universal_spread(reps: int = 10, n: int = 2000) -> dict:
+    """Spread of l = A log log(death/birth) + B on CSR alpha diagrams (unit
+    square H1, unit cube H2; seeds 0..reps-1) against the left-skewed Gumbel
+    law (sd pi / sqrt(6)), and the share of single features with p <= level."""
+    out = {}
+    for d in (2, 3):
+        lls = []
+        for s in range(reps):
+            p = alpha_diagram(np.random.default_rng(s).random((n, d))).finite(d - 1)
+            ll = np.log(np.log(p[:, 1] / p[:, 0]))
+            lls.append(ll - ll.mean())
+        ll = np.concatenate(lls)
+        for a in (1.0, 0.5):
+            pu = np.exp(-np.exp(a * ll - np.euler_gamma))
+            out[f"{d}D A={a}"] = {"sd_l": round(float(a * ll.std()), 3),
+                                  "law_sd": round(float(np.pi / np.sqrt(6)), 3),
+                                  **{f"share_p<={lv}": round(float(np.mean(pu <= lv)), 4)
+                                     for lv in (0.01, 0.05, 0.1)}}
+            print(f"{d}D A={a}", out[f"{d}D A={a}"], flush=True)
+    return out
+
+
+def _iou(a, b):
+    a, b = set(map(int, a)), set(map(int, b))
+    return len(a & b) / max(1, len(a | b))
+
+
+def power_study(reps: int, seed: int) -> dict:
+    from shapely.geometry import Point, Polygon
+
+    wafer = nullatlas.Disk(0, 0, 150)
+    box = nullatlas.Box(0, 0, 0, 10, 10, 10)
+    res = {}
+    # the located region must hit the planted place to count as a detection
+    # tight clusters: m points in a disk of radius 6 mm on 300 uniform defects
+    for m in (5, 7, 10, 15, 25):
+        hit, ious = 0, []
+        for i in range(reps):
+            rng = np.random.default_rng([seed, m, i])
+            pts = np.vstack([wafer.sample(300, rng), nullatlas.Disk(60, 20, 6).sample(m, rng)])
+            r = nullatlas.locate_features(pts, wafer, families=[0], seed=seed, progress=False)
+            best = [f for f in r.significant if np.hypot(*(f.centre - [60, 20])) < 15]
+            if best:
+                hit += 1
+                ious.append(_iou(best[0].points, range(300, 300 + m)))
+        res[f"cluster m={m}"] = {"detection": hit / reps,
+                                 "iou_median": float(np.median(ious)) if ious else None}
+        print(f"cluster m={m}", res[f"cluster m={m}"], flush=True)
+    # scratch: m defects along a 60 mm segment, jittered by 0.5 mm across it
+    for m in (8, 12, 20, 40):
+        hit, ious = 0, []
+        for i in range(reps):
+            rng = np.random.default_rng([seed, 500 + m, i])
+            t = rng.uniform(0, 1, m)
+            line = np.c_[-70 + 60 * t, -40 + 30 * t + rng.normal(0, 0.5, m)]
+            pts = np.vstack([wafer.sample(300, rng), line])
+            r = nullatlas.locate_features(pts, wafer, families=[0], seed=seed, progress=False)
+            mine = set(range(300, 300 + m))
+            best = [f for f in r.significant if len(mine & set(map(int, f.points))) >= m // 2]
+            if best:
+                hit += 1
+                ious.append(_iou(best[0].points, mine))
+        key = f"scratch m={m}"
+        res[key] = {"detection": hit / reps, "iou_median": float(np.median(ious)) if ious else None}
+        print(key, res[key], flush=True)
+    # empty disk of radius rad (no defects inside), with m extra defects on its edge
+    for rad, m in ((15, 0), (20, 0), (25, 0), (40, 0), (40, 20), (40, 70)):
+        hit, ious = 0, []
+        truth = Point(-40, 30).buffer(rad, 256)
+        for i in range(reps):
+            rng = np.random.default_rng([seed, 1000 + m, rad, i])
+            bg = wafer.sample(300, rng)
+            bg = bg[np.hypot(bg[:, 0] + 40, bg[:, 1] - 30) > rad]
+            t = rng.uniform(0, 2 * np.pi, m)
+            pts = np.vstack([bg, np.c_[-40 + rad * np.cos(t), 30 + rad * np.sin(t)]])
+            r = nullatlas.locate_features(pts, wafer, families=[1], progress=False)
+            best = [f for f in r.significant if Polygon(f.polygon).intersects(Point(-40, 30))]
+            if best:
+                hit += 1
+                h = Polygon(best[0].polygon)
+                ious.append(h.intersection(truth).area / h.union(truth).area)
+        key = f"empty disk radius={rad} ring m={m}"
+        res[key] = {"detection": hit / reps, "iou_median": float(np.median(ious)) if ious else None}
+        print(key, res[key], flush=True)
+    # void: 700 uniform points in a 10 mm cube minus a ball of radius a at the centre
+    for a in (1.2, 1.6, 2.0, 2.4):
+        hit, errs = 0, []
+        for i in range(reps):
+            rng = np.random.default_rng([seed, int(a * 10), i])
+            pts = box.sample(700, rng)
+            pts = pts[np.linalg.norm(pts - 5, axis=1) > a]
+            r = nullatlas.locate_features(pts, box, families=[2], progress=False)
+            best = [f for f in r.significant if np.linalg.norm(f.centre - 5) < a]
+            if best:
+                hit += 1
+                errs.append(float(np.linalg.norm(best[0].centre - 5)))
+        res[f"void radius={a}"] = {"detection": hit / reps,
+                                   "centre_error_median": float(np.median(errs)) if errs else None}
+        print(f"void radius={a}", res[f"void radius={a}"], flush=True)
+    return res
+
+
+def main():
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--reps", type=int, default=200)
+    ap.add_argument("--power-reps", type=int, default=20)
+    ap.add_argument("--seed", type=int, default=2026)
+    ap.add_argument("--json", metavar="FILE")
+    a = ap.parse_args()
+    t0 = time.time()
+    out = {"universal": universal_spread(), "size": size_study(a.reps, a.seed),
+           "power": power_study(a.power_reps, a.seed),
+           "reps": a.reps, "power_reps": a.power_reps, "seed": a.seed}
+    out["seconds"] = round(time.time() - t0, 1)
+    print(f"{out['seconds']} s")
+    if a.json:
+        with open(a.json, "w") as fh:
+            json.dump(out, fh, indent=1)
+
+
+if __name__ == "__main__":
+    main()
