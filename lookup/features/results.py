@@ -183,7 +183,9 @@ class FeatureMap:
                  if k not in ("pairs_norm", "ratios", "pvalues")}
             g["features"] = int(len(f["ratios"]))
             fam[KINDS[q]] = g
-        return {"statistic": _num(self.statistic), "pvalue": _num(self.pvalue),
+        from ..results import SCHEMA
+
+        return {"schema": SCHEMA, "statistic": _num(self.statistic), "pvalue": _num(self.pvalue),
                 "alpha": self.alpha, "n": self.n, "dimension": self.dim, "window": self.window,
                 "seed": self.seed, "n_significant": len(self.significant),
                 "fwer_control": ("a feature is significant when its death/birth ratio beats the "
@@ -195,15 +197,17 @@ class FeatureMap:
 
     def summary(self) -> str:
         """Plain text: one line per located feature."""
+        from ..results import format_pvalue
+
         lines = [f"n = {self.n}, {self.dim}D, window {self.window.get('kind')}: "
                  f"{len(self.significant)} significant feature(s) at family-wise "
-                 f"alpha = {self.alpha:g}; smallest family-wise p = {self.pvalue:.3g}"]
+                 f"alpha = {self.alpha:g}; smallest family-wise p = {format_pvalue(self.pvalue)}"]
         for q, f in self.families.items():
             lines.append(f"  {KINDS[q]}s: {len(f['ratios'])} features, null {f['route']} "
                          f"({f['source']}), significant above ratio {f['threshold_ratio']:.4g}")
         for f in self.features:
             c = ", ".join(f"{x:.4g}" for x in f.centre)
-            lines.append(f"  {f.id:>4} {f.kind:<7} p = {f.pvalue:<9.3g} ratio {f.ratio:7.3f}  "
+            lines.append(f"  {f.id:>4} {f.kind:<7} p = {format_pvalue(f.pvalue):<9} ratio {f.ratio:7.3f}  "
                          f"birth {f.birth:.4g} death {f.death:.4g}  centre ({c})  size {f.size:.4g}"
                          f"  {len(f.points)} points{'  *' if f.significant else ''}")
         for w in self.warnings:
