@@ -262,7 +262,7 @@ def summary_text(res, alpha: float = 0.05) -> str:
     size = w.get("area", w.get("volume"))
     lines = [f"n = {res.n} points in {res.dimension}D, window {w['kind']} "
              f"({'area' if res.dimension == 2 else 'volume'} {size:.6g}, kappa {w['kappa']:.4g}), "
-             f"seed {res.seed}"]
+             f"seed {res.seed if res.seed is not None else '-'}"]
     lines += [f"warning: {msg}" for msg in res.warnings]
     head = f"{'name':<12}{'kind':<9}{'statistic':>10}{'null_mean':>11}{'null_sd':>10}" \
            f"{'z':>8}{'pvalue':>10}  method"
