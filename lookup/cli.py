@@ -69,6 +69,15 @@ CURVE_TEST_HELP = ("global test of a curve: maxabs = the studentised maximum max
                    "Carlo only")
 
 
+def _progress_options(parser) -> None:
+    """--progress / --no-progress, the same on every command that has a bar."""
+    bar = parser.add_mutually_exclusive_group()
+    bar.add_argument("--progress", dest="progress", action="store_true", default=None,
+                     help="always show the progress bar (default: only on a terminal)")
+    bar.add_argument("--no-progress", dest="progress", action="store_false",
+                     help="never show the progress bar")
+
+
 def build_parser() -> argparse.ArgumentParser:
     from .patterns.windowspec import SPEC_HELP
 
@@ -148,11 +157,7 @@ def build_parser() -> argparse.ArgumentParser:
     t.add_argument("--json", action="store_true", help="print one JSON object instead of a table")
     t.add_argument("--curves", action="store_true",
                    help="with --json, include the observed and null curves on their grids")
-    bar = t.add_mutually_exclusive_group()
-    bar.add_argument("--progress", dest="progress", action="store_true", default=None,
-                     help="always show the progress bar (default: only on a terminal)")
-    bar.add_argument("--no-progress", dest="progress", action="store_false",
-                     help="never show the progress bar")
+    _progress_options(t)
 
     b = sub.add_parser("batch", help="test many pattern files, with adjusted p-values",
                        description="Test many pattern files (files, folders, globs, or a "
@@ -200,11 +205,7 @@ def build_parser() -> argparse.ArgumentParser:
                    help="as for 'test' (default: fast)")
     b.add_argument("--plot", metavar="FILE", help="summary figure (.png, .pdf or .svg)")
     b.add_argument("--json", action="store_true", help="print the rows as JSON")
-    bbar = b.add_mutually_exclusive_group()
-    bbar.add_argument("--progress", dest="progress", action="store_true", default=None,
-                      help="always show the progress bar (default: only on a terminal)")
-    bbar.add_argument("--no-progress", dest="progress", action="store_false",
-                      help="never show the progress bar")
+    _progress_options(b)
 
     tb = sub.add_parser("tables", help="list what the null tables cover",
                         description="List the cells of null tables (shape, n, replicates) and "
@@ -240,11 +241,7 @@ def build_parser() -> argparse.ArgumentParser:
     lo.add_argument("--geojson", metavar="FILE", help="write the significant features as GeoJSON")
     lo.add_argument("--labels", metavar="FILE", help="write a CSV: which feature each point belongs to")
     lo.add_argument("--plot", metavar="FILE", help="map and diagram (.png, .pdf or .svg)")
-    lbar = lo.add_mutually_exclusive_group()
-    lbar.add_argument("--progress", dest="progress", action="store_true", default=None,
-                      help="always show the progress bar (default: only on a terminal)")
-    lbar.add_argument("--no-progress", dest="progress", action="store_false",
-                      help="never show the progress bar")
+    _progress_options(lo)
 
     s = sub.add_parser("stats", help="list the available statistics",
                        description="List the statistics that --stat accepts.")
@@ -293,6 +290,7 @@ def _cmd_test_tiled(a):
             raise OptionError(f"{opt} does not go with --tiled (a tiled run tests instantly, "
                               "against CSR, points distinct)")
     window = parse_window(a.window, None)
+    _kernels_ready()
     source = a.points
     if a.points.lower().startswith("csr:"):
         try:
@@ -308,26 +306,37 @@ def _cmd_test_tiled(a):
                           columns=parse_columns(a.columns))
 
 
+def _report_test(res, a, note: str = "") -> None:
+    """Print a test result as the table or, with --json, one JSON object."""
+    if a.json:
+        d = res.as_dict(curves=a.curves)
+        d["alpha"] = a.alpha
+        d["points_file"] = a.points
+        if a.plot:
+            d["plot"] = a.plot
+        json.dump(d, sys.stdout, indent=2, allow_nan=False)
+        sys.stdout.write("\n")
+        return
+    _print_table(res, a.alpha)
+    if note:
+        sys.stdout.write(note + "\n")
+    if a.plot:
+        sys.stdout.write(f"figure written to {a.plot}\n")
+
+
 def _cmd_test(a) -> int:
+    if a.tiled:
+        res = _cmd_test_tiled(a)
+        tl = res.validation["tiling"]
+        _report_test(res, a, f"tiled: {tl['tiles']} tiles ({tl['grid'][0]} x {tl['grid'][1]}), "
+                             f"largest with its halo {tl['largest_tile_points']:,} points, "
+                             f"{tl['seconds']:.1f} s")
+        return 0
     from .csrtest import csr_test
     from .patterns.readers import parse_columns, read_points
     from .patterns.windows import parse_window
     from .plots import check_plot_path, plot_result
 
-    if a.tiled:
-        res = _cmd_test_tiled(a)
-        if a.json:
-            d = res.as_dict(curves=a.curves)
-            d["alpha"], d["points_file"] = a.alpha, a.points
-            json.dump(d, sys.stdout, indent=2, allow_nan=False)
-            sys.stdout.write("\n")
-        else:
-            _print_table(res, a.alpha)
-            tl = res.validation["tiling"]
-            sys.stdout.write(f"tiled: {tl['tiles']} tiles ({tl['grid'][0]} x {tl['grid'][1]}), "
-                             f"largest with its halo {tl['largest_tile_points']:,} points, "
-                             f"{tl['seconds']:.1f} s\n")
-        return 0
     for opt, given in (("--tile-points", a.tile_points), ("--dask-scheduler", a.dask_scheduler)):
         if given is not None:
             raise OptionError(f"{opt} goes with --tiled")
@@ -350,18 +359,7 @@ def _cmd_test(a) -> int:
     res.warnings[:0] = [str(w.message) for w in caught]
     if a.plot:
         plot_result(res, a.plot)
-    if a.json:
-        d = res.as_dict(curves=a.curves)
-        d["alpha"] = a.alpha
-        d["points_file"] = a.points
-        if a.plot:
-            d["plot"] = a.plot
-        json.dump(d, sys.stdout, indent=2, allow_nan=False)
-        sys.stdout.write("\n")
-    else:
-        _print_table(res, a.alpha)
-        if a.plot:
-            sys.stdout.write(f"figure written to {a.plot}\n")
+    _report_test(res, a)
     return 0
 
 
@@ -383,6 +381,7 @@ def _cmd_locate(a) -> int:
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         window = parse_window(a.window, pts)
+    _kernels_ready()
     fam = None
     if a.only:
         fam = [0] if a.only == "clusters" else [window.dim - 1]

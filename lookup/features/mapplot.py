@@ -72,13 +72,17 @@ def _hull(xy):
     return np.vstack([v, v[:1]])
 
 
-def _place_labels(ax, fig, items):
-    """Put each label (text, x, y, colour) at the first of eight offsets whose
-    box overlaps no label placed before it."""
+def _place_labels(ax, fig, items, force: bool = True):
+    """Put each label (text, x, y, colour) at the first of eight offsets (at
+    two distances) whose box overlaps no label placed before it; when none is
+    free, the last offset (``force``) or no label at all."""
     from matplotlib.backends.backend_agg import FigureCanvasAgg
 
     if fig.canvas is None or not hasattr(fig.canvas, "get_renderer"):
         FigureCanvasAgg(fig)
+    # draw once so that the axes have their final limits (an equal aspect
+    # adjusts the data limits only at draw time) before boxes are compared
+    fig.canvas.draw()
     renderer = fig.canvas.get_renderer()
     boxes = []
     offs = [(8, 8), (8, -14), (-40, 8), (-40, -14), (14, 22), (-50, 22), (14, -28), (-50, -28)]
@@ -86,12 +90,12 @@ def _place_labels(ax, fig, items):
         for k, (dx, dy) in enumerate(offs * 2):
             extra = 12 * (k // len(offs))
             t = ax.annotate(text, (x, y), xytext=(dx + np.sign(dx) * extra, dy + np.sign(dy) * extra),
-                            textcoords="offset points", fontsize=7.5, color=col,
+                            textcoords="offset points", fontsize=7.5, color=col, zorder=6,
                             bbox=dict(boxstyle="round,pad=0.15", fc="white", ec=col, lw=0.6,
                                       alpha=0.9),
                             arrowprops=dict(arrowstyle="-", color=col, lw=0.6))
             bb = t.get_window_extent(renderer).expanded(1.05, 1.1)
-            if not any(bb.overlaps(o) for o in boxes) or k == 2 * len(offs) - 1:
+            if not any(bb.overlaps(o) for o in boxes) or (force and k == 2 * len(offs) - 1):
                 boxes.append(bb)
                 break
             t.remove()
@@ -147,7 +151,6 @@ def plot_feature_map(res, path: str | None = None, window=None, title: str | Non
                   fontsize=9)
     axm.set_xlabel("x")
     axm.set_ylabel("y")
-    _place_labels(axm, fig, labels)
     if note:
         axm.text(0.01, 0.01, note, transform=axm.transAxes, fontsize=7)
 
@@ -186,11 +189,14 @@ def plot_feature_map(res, path: str | None = None, window=None, title: str | Non
     axd.set_title("persistence diagram; lines: family-wise threshold at alpha = "
                   f"{res.alpha:g}", fontsize=9)
     axd.legend(fontsize=7, loc="upper left")
-    if lo_all and sig:
-        _place_labels(axd, fig, [(f.id, f.birth_norm, f.death_norm, "k")
-                                 for f in sig[:MAX_LABELS]])
     w = res.window
     fig.suptitle(title or f"where the structure is: n = {res.n}, window {w.get('spec', w.get('kind'))}",
                  fontsize=10)
     fig.tight_layout()
+    # labels last, on the final layout: their overlap test uses display boxes
+    _place_labels(axm, fig, labels)
+    if lo_all and sig:
+        # a crowded diagram leaves a point unlabelled rather than overlap labels
+        _place_labels(axd, fig, [(f.id, f.birth_norm, f.death_norm, "k")
+                                 for f in sig[:MAX_LABELS]], force=False)
     return fig if path is None else _save(fig, path)
