@@ -39,6 +39,7 @@ from nullatlas.lookup.summaries import grids
 from nullatlas.lookup.summaries.statistics import STATISTICS, resolve_stats
 
 from . import assemble as asm
+from .csrlimits import csr_limit
 from .model import (
     MODEL_TOL_SD,
     TRAIN_SHARE_MAX,
@@ -243,10 +244,13 @@ def _finish(out, dimension, root_seed, stat_names, records, n_fit, holdout, extr
 GEO_N_FIT = 100
 
 
-def fit_geomodels(records: list, stat_names, dimension: int, n_fit: int = GEO_N_FIT) -> dict:
+def fit_geomodels(records: list, stat_names, dimension: int, n_fit: int = GEO_N_FIT,
+                  fixed_limits: bool = True) -> dict:
     """The geometric finite-window model of every statistic (``calibrate.model``):
     additive statistics by :func:`fit_geomodel_robust`, extremes by
-    :func:`fit_extreme_geomodel_robust`; statistics that cannot be fitted are left out."""
+    :func:`fit_extreme_geomodel_robust`; statistics that cannot be fitted are left out.
+    Where a statistic's CSR limit is known exactly (``calibrate.csrlimits``)
+    it is held fixed, unless ``fixed_limits`` is False (for checking)."""
     from nullatlas.lookup.patterns.boundary import grid_depths
 
     out = {}
@@ -280,7 +284,10 @@ def fit_geomodels(records: list, stat_names, dimension: int, n_fit: int = GEO_N_
                 out[stat] = fit_extreme_quantiles_robust(rows, dimension, n_fit)
                 out[stat]["depth"] = depth
             else:
-                out[stat], excl = fit_geomodel_robust(rows, dimension, n_fit)
+                known = csr_limit(stat, dimension) if fixed_limits else None
+                out[stat], excl = fit_geomodel_robust(
+                    rows, dimension, n_fit, limit=None if known is None else known[0],
+                    limit_source="" if known is None else known[1])
                 out[stat].excluded = list(excl)
                 out[stat].depth = depth
         except ValueError:

@@ -96,6 +96,8 @@ class Fit:
     excluded: list = field(default_factory=list)
     model: str = ""
     loso: dict = field(default_factory=dict)
+    #: The published source of a limit held fixed in the fit ("" if fitted).
+    limit_source: str = ""
 
     @property
     def dof(self) -> int:
@@ -232,11 +234,16 @@ def _window_of(spec: str):
     return w
 
 
-def fit_geomodel(cells: list[dict], d: int, n_fit: int = 100, columns=None) -> Fit:
+def fit_geomodel(cells: list[dict], d: int, n_fit: int = 100, columns=None,
+                 limit=None) -> Fit:
     """Fit E[S] = mu + c1 B1 + c2 B2 + c3 B3 and the same form for n Var[S]
     per grid point (weighted least squares as :func:`fit_model`), over the
     cells with n >= ``n_fit``.  Each cell dict needs ``cov`` (the covariates
-    of ``lookup.patterns.boundary.covariates``) besides the keys of :func:`fit_model`."""
+    of ``lookup.patterns.boundary.covariates``) besides the keys of :func:`fit_model`.
+
+    ``limit`` (k,), optional: the exact n -> infinity mean
+    (``calibrate.csrlimits``), held fixed: the boundary coefficients are
+    fitted to E[S] - limit, and mu = limit with standard error 0."""
     use = [c for c in cells if c["n"] >= n_fit and c["count"] > 2]
     if len(use) < 6:
         raise ValueError(f"the geometric model needs at least 6 cells with n >= {n_fit}, "
@@ -249,6 +256,14 @@ def fit_geomodel(cells: list[dict], d: int, n_fit: int = 100, columns=None) -> F
     X[:, :, [j for j in range(X.shape[2]) if j not in columns]] = 0.0
     R = np.array([c["count"] for c in use], float)
     mean = np.array([np.atleast_1d(c["mean"]) for c in use])
+    fixed = None
+    if limit is not None:
+        fixed = np.broadcast_to(np.asarray(limit, float), mean.shape[1:])
+        mean = mean - fixed
+        Xm = X.copy()
+        Xm[:, :, 0] = 0.0       # mu is not fitted (its coefficient comes out 0, SE 0)
+    else:
+        Xm = X
     var = np.array([np.atleast_1d(c["var"]) for c in use])
     sem = np.sqrt(var / R[:, None])
     nvar = n[:, None] * var
@@ -257,7 +272,8 @@ def fit_geomodel(cells: list[dict], d: int, n_fit: int = 100, columns=None) -> F
     parts = []
     for j in range(k):
         Xj = X[:, min(j, X.shape[1] - 1), :]     # the design of grid point j
-        parts.append((wls(Xj, mean[:, j:j + 1], sem[:, j:j + 1]),
+        Xmj = Xm[:, min(j, Xm.shape[1] - 1), :]
+        parts.append((wls(Xmj, mean[:, j:j + 1], sem[:, j:j + 1]),
                       wls(Xj, nvar[:, j:j + 1], nvar_se[:, j:j + 1])))
 
     def stack(which, i):
@@ -266,6 +282,8 @@ def fit_geomodel(cells: list[dict], d: int, n_fit: int = 100, columns=None) -> F
 
     mc, ms, mcov, mchi, mres = (stack(0, i) for i in range(5))
     vc, vs, vcov, vchi, vres = (stack(1, i) for i in range(5))
+    if fixed is not None:
+        mc[:, 0] = fixed
     return Fit(d, [c["name"] for c in use], mc, ms, mcov, mchi, vc, vs, vcov, vchi, mres, vres,
                int(n_fit))
 
@@ -312,7 +330,8 @@ def comparable_shapes(cells: list[dict], n_fit: int, columns) -> list:
     return out
 
 
-def loso_error(cells: list[dict], d: int, n_fit: int, columns, shapes=None) -> float:
+def loso_error(cells: list[dict], d: int, n_fit: int, columns, shapes=None,
+               limit=None) -> float:
     """Leave-one-shape-out prediction error of a (sub-)model: for each shape
     (of ``shapes``, default all), fit on the others and predict its cells;
     the RMS over those cells and grid points of (mean - prediction) / sd of
@@ -324,7 +343,7 @@ def loso_error(cells: list[dict], d: int, n_fit: int, columns, shapes=None) -> f
         train = [c for c in cells if c["shape"] != sh]
         test = [c for c in cells if c["shape"] == sh and c["n"] >= n_fit]
         try:
-            fit = fit_geomodel(train, d, n_fit, columns)
+            fit = fit_geomodel(train, d, n_fit, columns, limit)
         except ValueError:
             continue
         for c in test:
@@ -338,7 +357,8 @@ def loso_error(cells: list[dict], d: int, n_fit: int, columns, shapes=None) -> f
     return float(np.sqrt(np.mean(np.concatenate(errs))))
 
 
-def fit_geomodel_robust(cells: list[dict], d: int, n_fit: int = 100, min_shapes: int = 4):
+def fit_geomodel_robust(cells: list[dict], d: int, n_fit: int = 100, min_shapes: int = 4,
+                        limit=None, limit_source: str = ""):
     """:func:`fit_geomodel`, leaving out whole shapes for which the local
     (additive) model does not hold for this statistic -- for example a
     window with a hole for loop statistics: the hole itself is a loop of the
@@ -350,11 +370,13 @@ def fit_geomodel_robust(cells: list[dict], d: int, n_fit: int = 100, min_shapes:
     smaller leave-one-shape-out error (:func:`loso_error`) is chosen: a
     second-order term that fits the training cells better but predicts a
     left-out shape worse is not used.  Returns (fit, excluded shapes); the
-    fit carries ``model`` (the candidate's name) and ``loso`` (errors)."""
+    fit carries ``model`` (the candidate's name) and ``loso`` (errors).
+    ``limit``: an exact limit held fixed in every fit (:func:`fit_geomodel`),
+    whose source the fit carries as ``limit_source``."""
     excluded = []
     while True:
         use = [c for c in cells if c.get("shape") not in excluded]
-        fit = fit_geomodel(use, d, n_fit)
+        fit = fit_geomodel(use, d, n_fit, limit=limit)
         dof = max(len(fit.cells) - fit.mean_coef.shape[1], 1)
         if np.nanmedian(fit.mean_chi2 / dof) <= EXCLUDE_CHI2:
             break
@@ -374,11 +396,13 @@ def fit_geomodel_robust(cells: list[dict], d: int, n_fit: int = 100, min_shapes:
     use = [c for c in cells if c.get("shape") not in excluded]
     widest = sorted({j for cols in CANDIDATES[d].values() for j in cols})
     shapes = comparable_shapes(use, n_fit, widest)
-    loso = {name: loso_error(use, d, n_fit, cols, shapes) for name, cols in CANDIDATES[d].items()}
+    loso = {name: loso_error(use, d, n_fit, cols, shapes, limit)
+            for name, cols in CANDIDATES[d].items()}
     best = min(loso, key=loso.get)
-    fit = fit_geomodel(use, d, n_fit, CANDIDATES[d][best])
+    fit = fit_geomodel(use, d, n_fit, CANDIDATES[d][best], limit)
     fit.model = best
     fit.loso = loso
+    fit.limit_source = limit_source if limit is not None else ""
     return fit, excluded
 
 

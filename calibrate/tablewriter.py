@@ -123,6 +123,8 @@ def write_geomodels(fh, geomodels: dict) -> None:
             g.attrs["excluded_shapes"] = json.dumps(list(getattr(fit, "excluded", [])))
             g.attrs["model"] = str(getattr(fit, "model", ""))
             g.attrs["loso_error_sd"] = json.dumps(getattr(fit, "loso", {}))
+            # the published source of a limit held fixed in the fit ("" = fitted)
+            g.attrs["limit"] = str(getattr(fit, "limit_source", ""))
             if getattr(fit, "depth", None) is not None:
                 _put(g, "depth", np.asarray(fit.depth, float))
 

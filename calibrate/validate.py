@@ -220,6 +220,13 @@ def validated_range(rows: list[dict], test: str) -> dict:
     out = {f"{k}_max": float(v) for k, v in zip(MEASURES, box)}
     out.update({"n_lo": int(min(ns)), "n_hi": int(max(ns)), "cells": len(pts),
                 "passed": passed, "failed": int(np.sum(~ok))})
+    # the largest bias (pattern sd) of a passing cell inside the box at the
+    # largest n: the part of the tolerance already used where extrapolation
+    # in n starts (``lookup.inference.asymptotic``, beyond n_hi)
+    top = [abs(float(r["mean_err_sd"])) for r, good, x in zip(pts, ok, X)
+           if good and r["n"] == out["n_hi"] and np.all(x <= box + 1e-12)
+           and np.isfinite(r.get("mean_err_sd", np.nan))]
+    out["bias_hi"] = max(top) if top else None
     return out
 
 

@@ -1,20 +1,22 @@
 """One large 2D pattern tile by tile: time, memory and equality with one process.
 
-Runs, side by side in one run:
+Runs, side by side in one run, on a local Dask cluster of ``--workers``
+worker processes (started once):
 
-1. ``--single`` n (default 10^6) uniform points in the unit square: the
-   single-process ``compute`` and the tiled run (2 local worker processes);
-   time ratio and bit-for-bit equality of euler, betti0, betti1, total0,
-   nnmean, gfunc.
+1. ``--single`` n (default 10^7) uniform points in the unit square: the
+   single-process ``compute`` (in a child process of its own, so that its
+   memory is measured apart) against the tiled run on the Dask cluster of
+   the same points; time ratio and bit-for-bit equality of euler, betti0,
+   betti1, total0, nnmean, gfunc.
 2. each n of ``--sizes`` (default 10^6, 10^7) generated on the fly (no file)
-   on a local Dask cluster of ``--workers`` workers: wall time, peak memory
-   of each worker (``ru_maxrss``) and of this process; the scaling exponent
-   of time in n (slope of log time on log n).
+   on the cluster: wall time, peak memory of each worker (``ru_maxrss``) and
+   of this process; the scaling exponent of time in n (slope of log time on
+   log n), drawn with ``--plot FILE``.
 
 Every run prints the machine's load average beside its figures.  Usage::
 
-    python scripts/bench_tiled.py [--single 1000000] [--sizes 1e6,1e7[,1e8]]
-        [--workers 2] [--tile-points 1000000] [--json]
+    python scripts/bench_tiled.py [--single 1e7] [--sizes 1e6,1e7[,1e8]]
+        [--workers 2] [--tile-points 1000000] [--plot FILE] [--json]
 """
 from __future__ import annotations
 
@@ -44,39 +46,51 @@ def _worker_rss_mb() -> float:        # runs on a Dask worker
     return r.getrusage(r.RUSAGE_SELF).ru_maxrss / 1024.0
 
 
+def _single(n: int, stats: list) -> tuple:      # runs in a child process
+    w = nullatlas.Rectangle(0, 0, 1, 1)
+    pts = np.vstack([b for _, b in GeneratedCSR(w, n, seed=1).chunks()])
+    t0 = time.perf_counter()
+    one = compute(pts, w, resolve_stats(stats, 2))
+    return one, time.perf_counter() - t0, _rss_mb()
+
+
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
-    ap.add_argument("--single", type=float, default=1e6)
+    ap.add_argument("--single", type=float, default=1e7)
     ap.add_argument("--sizes", default="1e6,1e7")
     ap.add_argument("--workers", type=int, default=2)
     ap.add_argument("--tile-points", type=int, default=1_000_000)
+    ap.add_argument("--plot", metavar="FILE", help="log-log figure of time against n")
     ap.add_argument("--json", action="store_true")
     a = ap.parse_args(argv)
     w = nullatlas.Rectangle(0, 0, 1, 1)
     stats = list(TILED_STATISTICS)
     out = {"load_before": os.getloadavg()[0]}
 
-    n = int(a.single)
-    pts = np.vstack([b for _, b in GeneratedCSR(w, n, seed=1).chunks()])
-    t0 = time.perf_counter()
-    one = compute(pts, w, resolve_stats(stats, 2))
-    t_one = time.perf_counter() - t0
-    t0 = time.perf_counter()
-    tiled, info = tiled_statistics(pts, w, stats, tile_points=max(n // 8, 1000), jobs=2,
-                                   progress=False)
-    t_tiled = time.perf_counter() - t0
-    equal = {k: bool(np.array_equal(tiled[k], one[k])) for k in stats}
-    out["single"] = {"n": n, "single_s": round(t_one, 2), "tiled_s": round(t_tiled, 2),
-                     "ratio": round(t_tiled / t_one, 2), "tiles": info["tiles"],
-                     "equal": equal, "load": os.getloadavg()[0]}
-    del pts
+    import multiprocessing as mp
+    from concurrent.futures import ProcessPoolExecutor
 
     from dask.distributed import Client, LocalCluster
 
+    n = int(a.single)
+    with ProcessPoolExecutor(1, mp_context=mp.get_context("spawn")) as ex:
+        one, t_one, rss_one = ex.submit(_single, n, stats).result()
     runs = []
     with LocalCluster(n_workers=a.workers, threads_per_worker=1, processes=True,
                       dashboard_address=None, memory_limit="6GB") as cluster, \
             Client(cluster) as client:
+        t0 = time.perf_counter()
+        tiled, info = tiled_statistics(GeneratedCSR(w, n, seed=1), w, stats,
+                                       tile_points=a.tile_points,
+                                       scheduler=cluster.scheduler_address, progress=False)
+        t_tiled = time.perf_counter() - t0
+        equal = {k: bool(np.array_equal(tiled[k], one[k])) for k in stats}
+        out["single"] = {"n": n, "single_s": round(t_one, 2), "single_peak_mb": round(rss_one),
+                         "tiled_s": round(t_tiled, 2), "ratio": round(t_tiled / t_one, 2),
+                         "tiles": info["tiles"], "workers": a.workers,
+                         "worker_peak_mb": round(max(client.run(_worker_rss_mb).values())),
+                         "equal": equal, "load": os.getloadavg()[0]}
+        del one, tiled
         for size in (int(float(x)) for x in a.sizes.split(",")):
             src = GeneratedCSR(w, size, seed=2)
             t0 = time.perf_counter()
@@ -95,14 +109,18 @@ def main(argv=None) -> int:
         x = np.log([r["n"] for r in runs])
         y = np.log([r["seconds"] for r in runs])
         out["slope"] = round(float(np.polyfit(x, y, 1)[0]), 2)
+    if a.plot and len(runs) >= 2:
+        out["plot"] = _plot(runs, out, a.plot)
     if a.json:
         json.dump(out, sys.stdout, indent=1)
         sys.stdout.write("\n")
         return 0
     s = out["single"]
-    print(f"{s['n']:,} points, unit square: single process {s['single_s']} s, tiled "
-          f"({s['tiles']} tiles, 2 processes) {s['tiled_s']} s, ratio {s['ratio']}; "
-          f"equal bit for bit: {all(s['equal'].values())} {s['equal']} (load {s['load']:.1f})")
+    print(f"{s['n']:,} points, unit square: single process {s['single_s']} s "
+          f"(peak {s['single_peak_mb'] / 1024:.2f} GB), tiled on Dask ({s['tiles']} tiles, "
+          f"{s['workers']} workers, peak {s['worker_peak_mb'] / 1024:.2f} GB per worker) "
+          f"{s['tiled_s']} s, ratio {s['ratio']}; equal bit for bit: "
+          f"{all(s['equal'].values())} {s['equal']} (load {s['load']:.1f})")
     for r in runs:
         print(f"{r['n']:>13,} points generated on the fly, Dask {a.workers} workers: "
               f"{r['seconds']} s, {r['tiles']} tiles, peak memory per worker "
@@ -110,7 +128,45 @@ def main(argv=None) -> int:
               f"(load {r['load']:.1f})")
     if "slope" in out:
         print(f"time ~ n^{out['slope']} (log-log slope over {len(runs)} sizes)")
+    if "plot" in out:
+        print(f"figure: {out['plot']}")
     return 0
+
+
+def _plot(runs: list, out: dict, path: str) -> str:
+    """Time against n on log-log axes, with the fitted slope and the
+    single-process time of ``--single`` for comparison."""
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    from nullatlas.lookup.atomic import atomic_path
+
+    ns = np.array([r["n"] for r in runs], float)
+    ts = np.array([r["seconds"] for r in runs], float)
+    b, c = np.polyfit(np.log(ns), np.log(ts), 1)
+    fig, ax = plt.subplots(figsize=(5.6, 4.2), layout="constrained")
+    grid = np.geomspace(ns.min(), ns.max(), 50)
+    ax.plot(grid, np.exp(c) * grid ** b, color="0.6", lw=1, zorder=1,
+            label=f"fit: time ~ n^{b:.2f}")
+    s = out["single"]
+    ax.plot(ns, ts, "o", color="C0", zorder=2,
+            label=f"tiled on Dask ({s['workers']} workers): euler, total0, nnmean")
+    ax.plot([s["n"]], [s["single_s"]], "s", color="C3", zorder=3,
+            label="one process, same n (six statistics)")
+    ax.plot([s["n"]], [s["tiled_s"]], "D", mfc="none", color="C3", zorder=3,
+            label="tiled, same six statistics")
+    ax.set_xscale("log")
+    ax.set_yscale("log")
+    ax.set_xlabel("points n (CSR, unit square)")
+    ax.set_ylabel("wall time (s)")
+    ax.set_title("One pattern tile by tile: time against n", fontsize=10)
+    ax.legend(fontsize=8, loc="upper left")
+    with atomic_path(path) as tmp:
+        fig.savefig(tmp, dpi=120, format="png")
+    plt.close(fig)
+    return path
 
 
 if __name__ == "__main__":

@@ -126,3 +126,40 @@ def test_duplicates_are_refused_in_one_line():
     pts[10] = pts[20]
     with pytest.raises(ValueError, match="duplicate"):
         tiled_statistics(pts, w, ["euler"], tile_points=1_000)
+
+
+@pytest.mark.parametrize("model", ["csr", "thomas:parents=0.05,sigma=0.5"])
+def test_a_million_points_tiled_equal_one_process(model):
+    """Issue 18 item 1 at 10^6 points: random and clustered (clusters of a
+    few spacings cut by the edges of 16 tiles) give the same six statistics
+    bit for bit as one process."""
+    w = nullatlas.Rectangle(0, 0, 1, 1)
+    pts = _pattern(w, model, 1_000_000, 11)
+    vals, info = tiled_statistics(pts, w, ALL, tile_points=70_000, jobs=2)
+    assert info["tiles"] >= 12
+    one = compute(pts, w, resolve_stats(ALL, 2))
+    for name in ALL:
+        np.testing.assert_array_equal(vals[name], one[name], err_msg=name)
+
+
+def test_tiled_instant_test_is_trusted_at_large_n_only_where_the_limit_is_exact():
+    """Item 3: at n = 10^8 (beyond every cell and held-out window) the Euler
+    curve, Clark-Evans and G, whose CSR limits are exact and held fixed in
+    the model, are trusted; total H0 persistence, whose limit is fitted,
+    is not, and the reason names the limit's uncertainty."""
+    from nullatlas.lookup.inference.asymptotic import instant_moments
+    from nullatlas.lookup.inference.nullmoments import default_tables
+
+    w = nullatlas.Rectangle(0, 0, 3, 1)
+    for n, name, trusted in ((10 ** 8, "euler", True), (10 ** 8, "nnmean", True),
+                             (10 ** 8, "gfunc", True), (10 ** 8, "total0", False),
+                             (3 * 10 ** 9, "euler", False)):
+        st = resolve_stats([name], 2)[0]
+        nm, ok, why = instant_moments(default_tables(), w, n, st, "two-sided")
+        assert nm.route == "model" and ok is trusted, (n, name, why)
+        if name == "total0":
+            assert "limit" in why[0] and "0.1 sd" in why[0], why
+            # ... while at the held-out windows' largest n it is trusted
+            assert instant_moments(default_tables(), w, 20_000, st, "two-sided")[1]
+        if n > 10 ** 9:
+            assert "10^9" in why[0] or "1,000,000,000" in why[0], why

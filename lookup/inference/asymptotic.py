@@ -124,6 +124,70 @@ def _pct(v: float) -> str:
     return f"{v:.1%}" if v == 0.0 or v >= 0.01 else f"{v:.2%}" if v >= 0.0001 else f"{v:.1e}"
 
 
+#: Largest n ever trusted (the range asked of the tiled path: 10^9 points).
+#: Beyond it nothing (the limit, the Gaussian approximation, sums of 10^9
+#: terms in double precision) was examined.
+N_TRUST_MAX = 10 ** 9
+#: The bias (pattern sd) allowed to the model's mean: the tolerance of the
+#: held-out validation (``calibrate.validate.MEAN_TOL_SD``; a bias of 0.1 sd
+#: moves a two-sided size at 0.05 by about 0.001).
+EXTRAPOLATION_TOL_SD = 0.1
+
+
+def extrapolation_limit(growth, n_hi: int, bias_hi) -> int:
+    """The largest n to which a model validated up to ``n_hi`` is trusted.
+
+    Beyond the held-out windows' largest n the terms of the model's error
+    that come from the boundary vanish or stay constant in units of the
+    pattern sd (B1 sqrt(n) is constant in 2D, B2 and B3 decay), and were
+    measured at ``n_hi``: at most ``bias_hi`` sd.  The one part that grows
+    is the error of the limit mu, as ``growth * sqrt(n)``
+    (:func:`~nullatlas.lookup.inference.nullmoments.limit_growth`), so the
+    bias at n is at most ``bias_hi + growth (sqrt(n) - sqrt(n_hi))``, and
+    the model is trusted while that stays within
+    :data:`EXTRAPOLATION_TOL_SD`:
+
+        sqrt(n_max) = sqrt(n_hi) + (EXTRAPOLATION_TOL_SD - bias_hi) / growth,
+
+    capped at :data:`N_TRUST_MAX` (reached where the limit is exact and held
+    fixed: growth 0).  A table without ``bias_hi`` or ``growth`` (older
+    tables) is trusted up to ``n_hi`` only.
+
+    Examples
+    --------
+    >>> from nullatlas.lookup.inference.asymptotic import extrapolation_limit
+    >>> extrapolation_limit(0.0, 20_000, 0.03)          # exact limit
+    1000000000
+    >>> extrapolation_limit(8e-5, 20_000, 0.03)         # a fitted limit
+    1033112
+    >>> extrapolation_limit(None, 20_000, 0.03)         # no standard errors stored
+    20000
+    """
+    if growth is None or bias_hi is None:
+        return int(n_hi)
+    room = EXTRAPOLATION_TOL_SD - float(bias_hi)
+    if room <= 0:
+        return int(n_hi)
+    if growth <= 0:
+        return N_TRUST_MAX
+    top = (np.sqrt(n_hi) + room / float(growth)) ** 2
+    return int(min(N_TRUST_MAX, np.floor(top)))
+
+
+def _beyond_reason(nm: NullMoments, stat, n: int, lo: int, hi: int, top: int) -> str:
+    if top >= N_TRUST_MAX:
+        return (f"n = {n:,} is beyond {N_TRUST_MAX:,}, the largest n the instant test is "
+                "trusted at")
+    if top <= hi:
+        return (f"n = {n} is outside the n where the model of '{stat.name}' was validated on "
+                f"held-out windows ({lo}..{hi}), and the table holds no measure of its "
+                "extrapolation error")
+    return (f"n = {n:,} is beyond {top:,}, where the uncertainty of the model's n -> infinity "
+            f"limit of '{stat.name}' could bias the test by more than "
+            f"{EXTRAPOLATION_TOL_SD:g} sd (validated on held-out windows up to n = {hi:,}; "
+            "no exact limit is known for this statistic)")
+
+
 def _model_trust(nm: NullMoments, stat, n: int, window, key: str) -> list:
     """Reasons against a model-route answer: the window at this n must lie
     inside the range where the table's validation on held-out windows
@@ -150,9 +214,14 @@ def _model_trust(nm: NullMoments, stat, n: int, window, key: str) -> list:
     nm.extra["measures"] = m
     out = []
     lo, hi = int(per["n_lo"]), int(per["n_hi"])
-    if n < lo or n > hi:
-        out.append(f"n = {n} is outside the n where the model of '{stat.name}' was validated on "
+    if n < lo:
+        out.append(f"n = {n} is below the n where the model of '{stat.name}' was validated on "
                    f"held-out windows ({lo}..{hi})")
+    elif n > hi:
+        top = extrapolation_limit(nm.extra.get("limit_growth"), hi, per.get("bias_hi"))
+        nm.extra["n_extrapolation"] = top
+        if n > top:
+            out.append(_beyond_reason(nm, stat, n, lo, hi, top))
     if m["narrow_share"] > per["narrow_share_max"] + 1e-12:
         out.append(f"{_pct(m['narrow_share'])} of the window lies in parts narrower than "
                    f"{NARROW_WIDTH:g} mean spacings (validated up to "

@@ -142,9 +142,11 @@ class _Table:
                     kind = g.attrs.get("kind", "additive")
                     kind = kind.decode() if isinstance(kind, bytes) else kind
                     keys = ("x", "coef", "p", "qcoef", "depth") if kind == "extreme" else (
-                        "mean_coef", "var_coef", "depth")
+                        "mean_coef", "mean_se", "var_coef", "depth")
                     self._geo[s] = {k: np.asarray(g[k][()], float) for k in keys if k in g}
                     self._geo[s]["kind"] = kind
+                    lim = g.attrs.get("limit", "")
+                    self._geo[s]["limit"] = lim.decode() if isinstance(lim, bytes) else str(lim)
                     if "columns" in g.attrs:
                         self._geo[s]["columns"] = tuple(json.loads(g.attrs["columns"]))
         return self._geo.get(stat)
@@ -427,7 +429,30 @@ def _geo_moments(t: _Table, stat: str, n: int, window, d: int, near: list):
     mean = np.einsum("kc,kc->k", g["mean_coef"], np.broadcast_to(cov, g["mean_coef"].shape))
     nvar = np.einsum("kc,kc->k", g["var_coef"], np.broadcast_to(cov, g["var_coef"].shape))
     return {"mean": mean, "cov": _scaled_cov(base["cov"], nvar, n), "usable": base["usable"], "values": None,
-            "replicates": base["replicates"], "covariates": cov}
+            "replicates": base["replicates"], "covariates": cov,
+            "limit_growth": limit_growth(g, base["usable"]), "limit": g.get("limit", "")}
+
+
+def limit_growth(g: dict, usable=None) -> float | None:
+    """How fast the model's uncertain limit biases a z-test as n grows.
+
+    With the mean modelled as mu + (terms that vanish as n grows) and
+    n Var[S] -> sigma_1^2, an error e of mu biases z by e sqrt(n) / sigma_1.
+    Returned: 2 SE(mu) / sigma_1 (the largest over the usable grid points),
+    so that the bias stays below ``growth * sqrt(n)`` with about 97.5%
+    confidence; 0 where the limit is exact and held fixed
+    (``calibrate.csrlimits``); None for a table without the standard errors.
+    """
+    if "mean_se" not in g or "var_coef" not in g:
+        return None
+    se0 = np.asarray(g["mean_se"], float)[:, 0]
+    v0 = np.asarray(g["var_coef"], float)[:, 0]
+    ok = np.isfinite(se0) & (v0 > 0)
+    if usable is not None and len(usable) == len(se0):
+        ok &= np.asarray(usable) > 0
+    if not ok.any():
+        return None
+    return float(np.max(2.0 * se0[ok] / np.sqrt(v0[ok])))
 
 
 def _periodic_moments(t: _Table, stat: str, n: int, cells: list, kind: str):
@@ -629,6 +654,9 @@ def null_moments(tables: TableSet, window, n: int, stat: str) -> NullMoments | N
                 res.extra["periodic_n_range"] = (int(pcells[0].n), int(pcells[-1].n))
             if "covariates" in mom:
                 res.extra["covariates"] = np.asarray(mom["covariates"])[0].tolist()
+            if mom.get("limit_growth") is not None:
+                res.extra["limit_growth"] = mom["limit_growth"]
+                res.extra["limit"] = mom.get("limit", "")
         if stat.startswith("betti"):
             res.expected_count = n * res.mean
             if res.usable is not None:
