@@ -626,7 +626,7 @@ def _print_validate(s, out=None):
         def f(k):
             v = r.get(k)
             return f"{v:6.3f}" if isinstance(v, float) else f"{'':6s}"
-        out.write(f"{r['window']:14s} {r['n']:6d} {r['name']:10s} {r['route']:6s} "
+        out.write(f"{r['window']:14s} {r['n']:6d} {r['statistic']:10s} {r['route']:6s} "
                   f"{r['mean_err_sd']:+8.3f} {f('size')} {f('lower')} {f('upper')}  "
                   f"{'yes' if r['passed'] else 'NO'}\n")
     out.write("validated range of the model route (trusted inside): upper bounds on the share "

@@ -140,6 +140,12 @@ def test_validate_command_scores_a_table_and_draws_it(tmp_path, capsys):
     info = open_table(str(table))
     assert set(info.trust) == {"euler", "total0"}
     assert info.trust["euler"]["maxabs"]["n_lo"] == 100
+    # the text report names each row's statistic (it once asked for a key
+    # the rows do not have, a traceback)
+    assert main(["validate", str(table), "--heldout", str(folder), "--window", "L",
+                 "--no-refit"]) == 0
+    text = capsys.readouterr().out
+    assert any(line.split()[:3] == ["L", "500", "total0"] for line in text.splitlines()), text
     assert main(["validate", str(table), "--heldout", str(folder), "--window", "nosuch"]) == 2
     assert "unknown held-out window" in capsys.readouterr().err
 
