@@ -104,6 +104,15 @@ def test_tiled_command_line(capsys, tmp_path):
     assert d["schema"] == 2 and d["n"] == 40_000 and d["engine"] == "tiled"
     assert [r["name"] for r in d["results"]] == ["euler", "total0", "nnmean"]
     assert d["validation"]["tiling"]["tiles"] >= 4
+    # beyond the held-out windows' n (20,000) in a window the tables have no
+    # cells of: the Euler curve's exact limit carries the model to 10^9,
+    # total H0's fitted limit to a measured bound
+    assert main(["test", "csr:40000", "-w", "rect:0,0,3,1", "--tiled", "--tile-points",
+                 "20000", "--seed", "3", "--json"]) == 0
+    det = {r["name"]: r["details"] for r in json.loads(capsys.readouterr().out)["results"]}
+    assert det["euler"]["n_extrapolation"] == 10 ** 9 and "Miles" in det["euler"]["limit"]
+    assert 20_000 < det["total0"]["n_extrapolation"] < 10 ** 7
+    assert det["total0"]["limit"] == "fitted"
     for argv, words in (
             (["test", "csr:1000", "-w", "rect:0,0,1,1", "--tiled", "--stat", "total1"],
              "cannot be computed tile by tile"),

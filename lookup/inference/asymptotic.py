@@ -411,6 +411,9 @@ def asymptotic_result(stat, observed, nm: NullMoments, alternative: str, n: int,
                "shape": nm.shape, "replicates": nm.replicates, "n_min": nm.n_min}
     if "measures" in nm.extra:      # model route: the window's trust measures at this n
         details["window_measures"] = {k: float(v) for k, v in nm.extra["measures"].items()}
+    if "n_extrapolation" in nm.extra:   # beyond the held-out windows' n: how far it holds
+        details["n_extrapolation"] = int(nm.extra["n_extrapolation"])
+        details["limit"] = nm.extra.get("limit") or "fitted"
     curve = None
     if nm.kind == "curve":
         use = np.asarray(nm.usable, bool) if nm.usable is not None else np.zeros(len(mean), bool)
