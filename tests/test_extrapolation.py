@@ -49,6 +49,11 @@ def test_limit_growth_is_two_se_of_the_limit_per_pattern_sd():
     # the third grid point is not usable: it does not count
     assert limit_growth(g, np.array([1, 1, 0])) == pytest.approx(2 * 4e-5 / 0.2)
     assert limit_growth({"mean_coef": g["mean_se"]}) is None
+    # a model that misfits its cells (chi2/dof = 4) has its SE doubled (Birge ratio)
+    g.update({"mean_chi2": np.array([40.0, 40.0, 40.0]), "dof": 10.0})
+    assert limit_growth(g, np.array([1, 1, 0])) == pytest.approx(2 * 2 * 4e-5 / 0.2)
+    g["mean_chi2"] = np.array([5.0, 5.0, 5.0])       # chi2/dof < 1: never shrunk
+    assert limit_growth(g, np.array([1, 1, 0])) == pytest.approx(2 * 4e-5 / 0.2)
 
 
 def _cells(mu, c1, rng, fixed_noise=1e-4):
