@@ -367,13 +367,28 @@ def _cached(key, make):
     return hit
 
 
+def _table_identity(path) -> str:
+    """What identifies a table's content: its creation time and root seed."""
+    from .tablereader import open_table_cached
+
+    if not path:
+        return ""
+    try:
+        info = open_table_cached(str(path))
+    except (OSError, ValueError):   # not a readable table file (TableError is a ValueError)
+        return str(path)
+    return f"{info.attrs.get('created', '')}/{info.attrs.get('root_seed', '')}"
+
+
 def _curve_null(nm: NullMoments, n: int, use: np.ndarray, n_gauss: int, rng=None):
     """(sorted simulated max |z|, Spectral) of a curve's usable grid points."""
     def make(rng=rng):
         corr = gt.correlation(nm.cov[np.ix_(use, use)])
         if rng is None:
-            seed = zlib.crc32(repr(key[:5] + (use.astype(np.int8).tolist(),)).encode())
-            rng = np.random.default_rng(seed)
+            # the table's identity (when it was written, its root seed), not its
+            # path: the same table gives the same p-value wherever it is installed
+            ident = (_table_identity(nm.table),) + key[1:5] + (use.astype(np.int8).tolist(),)
+            rng = np.random.default_rng(zlib.crc32(repr(ident).encode()))
         return gt.maxabs_null(corr, n_gauss, rng), gt.spectral(corr)
 
     key = (nm.table, tuple(nm.cells), nm.stat, nm.route, int(n), use.tobytes(), int(n_gauss))
