@@ -185,7 +185,7 @@ def _beyond_reason(nm: NullMoments, stat, n: int, lo: int, hi: int, top: int) ->
     return (f"n = {n:,} is beyond {top:,}, where the uncertainty of the model's n -> infinity "
             f"limit of '{stat.name}' could bias the test by more than "
             f"{EXTRAPOLATION_TOL_SD:g} sd (validated on held-out windows up to n = {hi:,}; "
-            "no exact limit is known for this statistic)")
+            "the table's model fits this limit rather than holding an exact one fixed)")
 
 
 def _model_trust(nm: NullMoments, stat, n: int, window, key: str) -> list:
