@@ -215,10 +215,12 @@ def alpha_diagram(points: np.ndarray, measure: float | None = None,
     n, d = p.shape
     scale = intensity_scale(n, measure, d) if measure else 1.0
     if d == 2:
-        from .alpha2d import alpha_pairs_2d
+        from .alpha2d import alpha_pairs_2d, sort_rows
 
         h0, h1 = alpha_pairs_2d(p, sort=False)
-        return Diagram(pairs=[h0 * scale, h1 * scale], n=n, dim=2, scale=scale,
+        # H1 rows sorted by (birth, death): sums over them do not depend on the
+        # order of the sweep (a tiled run forms them in another order)
+        return Diagram(pairs=[h0 * scale, sort_rows(h1 * scale)], n=n, dim=2, scale=scale,
                        meta={"engine": "fast"})
     if d == 3:
         from .alpha3d import betti_euler_3d

@@ -151,7 +151,7 @@ def _counts(r, grid):
 
 
 def tile_part(gidx, P, own, rect, box, scale, grid, r_pairs, window=None, want_nn=True,
-              want_bdist=False, rim: float = 0.0, inner=None):
+              want_bdist=False, rim: float = 0.0, inner=None, want_h1=False):
     """The tile's exact share, or None when its halo is too small.
 
     Parameters
@@ -176,6 +176,8 @@ def tile_part(gidx, P, own, rect, box, scale, grid, r_pairs, window=None, want_n
         window's boundary: the region it does not see shrinks to the window
         eroded by ``rim`` (``inner``, a shapely region containing it, used
         for the disks that the box test cannot clear), outside its rectangle.
+    want_h1 : bool
+        Also return the tile's H1 candidates (:func:`_dual_forest`).
     """
     from ..persistence.alpha2d import _filtration_2d
     from ..persistence.delaunay2d import delaunay_mesh
@@ -249,6 +251,9 @@ def tile_part(gidx, P, own, rect, box, scale, grid, r_pairs, window=None, want_n
     out = {"own": gidx[:own].copy(), "e_counts": e_counts, "t_counts": t_counts,
            "cand_u": glob[ou[is_mst]], "cand_v": glob[ov[is_mst]], "cand_val": ve[is_mst],
            "edges": int(own_e.sum()), "triangles": int(own_t.sum())}
+    if want_h1:
+        out.update(_dual_forest(np.flatnonzero(own_e), eu, ev, ea, eb, tri, glob, ve,
+                                tv * inv, m))
     if want_nn:
         nn = _nearest(P, own, r_pairs, rect, box, covers)
         if nn is None:
@@ -257,6 +262,39 @@ def tile_part(gidx, P, own, rect, box, scale, grid, r_pairs, window=None, want_n
     if want_bdist:
         out["bdist"] = window.boundary_distance(P[:own])
     return out
+
+
+def _dual_forest(oe, eu, ev, ea, eb, tri, glob, ve, node_val, m):
+    """The tile's H1 candidates: its owned edges in the maximum spanning
+    forest of the dual graph (triangles and the outer face as nodes, edges
+    joining the two faces of each edge).
+
+    H1 of a 2D alpha filtration is H0 of the dual graph swept in decreasing
+    order (elder rule, ``lookup.persistence.pairing._dual_pairs``): an edge
+    that joins two dual components gives the pair (its value, the smaller of
+    the two components' largest triangle values).  An owned edge that is the
+    smallest, in the total order (value, smaller global vertex, larger
+    global vertex), on a cycle of the tile's owned dual edges joins nothing
+    in the whole graph either, so only the forest is kept.  Every owned edge
+    has an own vertex, so both its faces are certified.  An edge is sent as
+    its global vertices, the global apex of each face (-1: the outer face)
+    and the faces' values."""
+    from ..persistence.pairing import _dual_pairs
+
+    a, b = ea[oe], eb[oe]
+    u, v = eu[oe], ev[oe]
+    gu, gv = glob[u], glob[v]
+    gmin, gmax = np.minimum(gu, gv), np.maximum(gu, gv)
+    order = np.lexsort((gmax, gmin, ve))
+    none = np.empty(0, dtype=np.int32)
+    _, _, tree = _dual_pairs(node_val, a, b, ve, order, none, none, np.zeros(len(oe), bool))
+    ia = tri[a].sum(axis=1) - u - v
+    inner_b = b < m
+    ib = np.where(inner_b, tri[np.where(inner_b, b, 0)].sum(axis=1) - u - v, 0)
+    apb = np.where(inner_b, glob[ib], -1)
+    return {"h1_val": ve[tree], "h1_gmin": gmin[tree], "h1_gmax": gmax[tree],
+            "h1_apa": glob[ia][tree], "h1_apb": apb[tree],
+            "h1_va": node_val[a][tree], "h1_vb": node_val[b][tree]}
 
 
 def _degenerate():

@@ -8,13 +8,20 @@
   (a spanning tree's weight multiset does not depend on how ties are
   broken); beta_0(rho) = n - #{deaths <= rho}.
 * beta_1(rho) = beta_0(rho) - chi(rho) (Euler-Poincare in 2D).
+* H1 pairs (when a statistic needs them): the elder-rule union-find on the
+  dual graph swept in decreasing order (``persistence.pairing._dual_pairs``,
+  as one process does) over the union of the tiles' dual spanning forests
+  (``local._dual_forest``), in the total order (value, smaller global
+  vertex, larger global vertex) that each tile used; a face is named by its
+  sorted global vertices.  The H1 diagram of a filtration does not depend on
+  how ties are broken, and one process's H1 rows are sorted by (birth,
+  death) (``persistence.diagram.alpha_diagram``) as these are, so sums over
+  them are bit for bit equal too.
 
 :class:`TiledDiagram` answers the questions the statistics ask of a
-diagram (Betti counts, total H0 lifetime) with the same arithmetic, in the
-same order, as :class:`~nullatlas.lookup.persistence.diagram.Diagram`, so the
-values are bit for bit those of one process.  The H1 pairs themselves are
-not formed: statistics that need them (total H1 persistence, the largest
-loop, APF, silhouettes) are left to the single-process path.
+diagram (Betti counts, total lifetimes, the pairs) with the same arithmetic,
+in the same order, as :class:`~nullatlas.lookup.persistence.diagram.Diagram`,
+so the values are bit for bit those of one process.
 """
 from __future__ import annotations
 
@@ -23,10 +30,14 @@ import numpy as np
 from ..errors import OptionError
 from ..persistence.diagram import Diagram
 
-__all__ = ["TiledDiagram", "TiledSummary", "merge_parts", "TILED_STATISTICS"]
+__all__ = ["TiledDiagram", "TiledSummary", "merge_parts", "merge_h1", "TILED_STATISTICS",
+           "H1_STATISTICS"]
 
 #: Statistics computed exactly from tiles (2D).
-TILED_STATISTICS = ("euler", "betti0", "betti1", "total0", "nnmean", "gfunc")
+TILED_STATISTICS = ("euler", "betti0", "betti1", "total0", "nnmean", "gfunc", "total1",
+                    "maxpers1", "maxratio1", "apf0", "apf1", "pbetti0", "pbetti1", "silhouette1")
+#: Those of them that need the H1 pairs (the dual merge).
+H1_STATISTICS = ("total1", "maxpers1", "maxratio1", "apf1", "pbetti1", "silhouette1")
 
 
 class TiledDiagram(Diagram):
@@ -37,11 +48,16 @@ class TiledDiagram(Diagram):
     """
 
     def __init__(self, deaths: np.ndarray, chi: np.ndarray, grid: np.ndarray, n: int,
-                 scale: float):
-        super().__init__(pairs=[], n=int(n), dim=2, scale=scale, meta={"engine": "tiled"})
+                 scale: float, h1: np.ndarray | None = None):
+        h0 = np.zeros((len(deaths) + 1, 2))
+        h0[:-1, 1] = deaths
+        h0[-1, 1] = np.inf
+        super().__init__(pairs=[h0] if h1 is None else [h0, h1], n=int(n), dim=2, scale=scale,
+                         meta={"engine": "tiled"})
         self.deaths = deaths
         self.chi = chi
         self.grid = grid
+        self.h1 = h1
 
     @property
     def homology_dims(self) -> range:
@@ -61,13 +77,17 @@ class TiledDiagram(Diagram):
     def total_lifetime(self, q: int) -> float:
         if q == 0:
             return float(np.sum(self.deaths - 0.0))
-        raise OptionError("a tiled run does not form the H1 pairs; total H1 persistence needs "
-                          "the single-process run")
+        return super().total_lifetime(self._need_h1(q))
 
     def finite(self, q: int) -> np.ndarray:
         if q == 0:
             return np.column_stack([np.zeros(len(self.deaths)), self.deaths])
-        raise OptionError("a tiled run does not form the H1 pairs")
+        return super().finite(self._need_h1(q))
+
+    def _need_h1(self, q: int) -> int:
+        if q != 1 or self.h1 is None:
+            raise OptionError("this tiled run did not form the H1 pairs")
+        return q
 
 
 class TiledSummary:
@@ -83,6 +103,41 @@ class TiledSummary:
         self.dim = 2
         self.periodic = False
         self.want_h1_pairs = False
+
+
+def merge_h1(parts: list, scale: float) -> np.ndarray:
+    """H1 pairs (normalised radii, rows sorted by birth then death) from the
+    tiles' dual forests (module doc)."""
+    from ..persistence.alpha2d import sort_rows
+    from ..persistence.pairing import _dual_pairs
+
+    def take(key):
+        out = np.concatenate([p.pop(key) for p in parts]) if parts else np.empty(0)
+        return out
+
+    val, gmin, gmax = take("h1_val"), take("h1_gmin"), take("h1_gmax")
+    apa, apb, va, vb = take("h1_apa"), take("h1_apb"), take("h1_va"), take("h1_vb")
+    m = len(val)
+    # each face by its sorted global vertices; the outer face is (-1, -1, -1)
+    keys = np.empty((2 * m, 3), dtype=np.int64)
+    for half, ap in ((slice(0, m), apa), (slice(m, 2 * m), apb)):
+        k = np.column_stack([gmin, gmax, ap])
+        k.sort(axis=1)
+        k[ap < 0] = -1
+        keys[half] = k
+    order = np.lexsort((keys[:, 2], keys[:, 1], keys[:, 0]))
+    ks = keys[order]
+    new = np.ones(2 * m, dtype=bool)
+    new[1:] = np.any(ks[1:] != ks[:-1], axis=1)
+    node = np.empty(2 * m, dtype=np.int64)
+    node[order] = np.cumsum(new) - 1
+    node_val = np.empty(int(new.sum()))
+    node_val[node] = np.concatenate([va, vb])
+    del keys, ks, order, new
+    none = np.empty(0, dtype=np.int32)
+    b1, d1, _ = _dual_pairs(node_val, node[:m], node[m:], val,
+                            np.lexsort((gmax, gmin, val)), none, none, np.zeros(m, bool))
+    return sort_rows(np.column_stack([np.sqrt(b1) * scale, np.sqrt(d1) * scale]))
 
 
 def merge_parts(parts: list, n: int, grid: np.ndarray, scale: float) -> tuple:

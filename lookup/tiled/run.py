@@ -17,7 +17,7 @@ import tempfile
 import numpy as np
 
 from ..errors import OptionError
-from .merge import TILED_STATISTICS, TiledDiagram, TiledSummary, merge_parts
+from .merge import H1_STATISTICS, TILED_STATISTICS, TiledDiagram, TiledSummary, merge_h1, merge_parts
 from .sources import open_source
 from .tiling import TileGrid, inner_geometry, load_tile, partition, window_bounds
 
@@ -35,7 +35,7 @@ RIM_SPACINGS = 4.0
 
 
 def _tile_job(folder, grid, t, halo0, box, scale, rho, r_pairs, window, want_nn, want_bdist,
-              rim, inner):
+              rim, inner, want_h1=False):
     from .local import tile_part
 
     halo, tries = halo0, 0
@@ -50,7 +50,7 @@ def _tile_job(folder, grid, t, halo0, box, scale, rho, r_pairs, window, want_nn,
         if own == 0:
             return None
         part = tile_part(gidx, P, own, rect, box, scale, rho, r_pairs, window, want_nn,
-                         want_bdist, rim if with_rim else 0.0, inner)
+                         want_bdist, rim if with_rim else 0.0, inner, want_h1)
         if part is not None:
             part["halo"], part["tries"], part["local_points"] = halo, tries + 1, len(P)
             return part
@@ -128,8 +128,8 @@ def tiled_statistics(source, window, stats=None, tile_points: int = TILE_POINTS,
     chosen = resolve_stats(names, 2)
     bad = [s.name for s in chosen if s.name not in TILED_STATISTICS]
     if bad:
-        raise OptionError(f"{', '.join(bad)} cannot be computed tile by tile (they need the H1 "
-                          f"pairs or all close pairs); a tiled run computes "
+        raise OptionError(f"{', '.join(bad)} cannot be computed tile by tile (the L function "
+                          f"needs every close pair); a tiled run computes "
                           f"{', '.join(TILED_STATISTICS)}")
     if window.dim != 2:
         raise OptionError("tiled runs are 2D only")
@@ -150,6 +150,7 @@ def tiled_statistics(source, window, stats=None, tile_points: int = TILE_POINTS,
     r_pairs = grids.L_RHO[-1] / scale
     want_nn = any(s.name in ("nnmean", "gfunc") for s in chosen)
     want_bdist = any(s.name == "gfunc" for s in chosen)
+    want_h1 = any(s.name in H1_STATISTICS for s in chosen)
     halo0 = max(HALO_SPACINGS / scale, 2.0 * r_pairs)
     own_dir = workdir is None
     folder = tempfile.mkdtemp(prefix="nullatlas-tiles-") if own_dir else workdir
@@ -167,14 +168,15 @@ def tiled_statistics(source, window, stats=None, tile_points: int = TILE_POINTS,
             bar.close()
         todo = [int(t) for t in np.flatnonzero(counts)]
         args = (halo0, box, scale, rho, r_pairs, window, want_nn, want_bdist, rim,
-                inner_geometry(window, rim))
+                inner_geometry(window, rim), want_h1)
         parts = _run_tiles(folder, grid, todo, args, jobs, scheduler, progress)
     finally:
         if own_dir:
             shutil.rmtree(folder, ignore_errors=True)
     parts = [p for p in parts if p is not None]
+    h1 = merge_h1(parts, scale) if want_h1 else None
     deaths, chi, nn, bdist = merge_parts(parts, n, rho, scale)
-    ps = TiledSummary(TiledDiagram(deaths, chi, rho, n, scale), nn, bdist, window, scale)
+    ps = TiledSummary(TiledDiagram(deaths, chi, rho, n, scale, h1), nn, bdist, window, scale)
     values = {s.name: np.asarray(s.func(ps), dtype=float) for s in chosen}
     halos = [p["halo"] * scale for p in parts]
     info = {"n": n, "tiles": len(parts), "grid": [grid.kx, grid.ky],
