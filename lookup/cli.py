@@ -230,8 +230,8 @@ def build_parser() -> argparse.ArgumentParser:
     lo.add_argument("--method", default="auto", choices=["auto", "table", "mc"],
                     help="null of the largest loop/void: tables where trusted else simulations "
                     "(auto), tables only, or simulations only; clusters are always simulated")
-    lo.add_argument("--sims", type=_int, default=199, metavar="M",
-                    help="CSR patterns per simulated null (default 199)")
+    lo.add_argument("--sims", type=_int, default=999, metavar="M",
+                    help="CSR patterns per simulated null (default 999)")
     lo.add_argument("--seed", type=_int, default=0, metavar="S", help="seed of the simulations")
     lo.add_argument("--table", action="append", metavar="FILE", help="your own null table")
     lo.add_argument("--columns", metavar="COLS", help="as for 'test'")
