@@ -12,7 +12,7 @@ from nullatlas.lookup.cli import main
 from nullatlas.lookup.features.locate import _filtration
 from nullatlas.lookup.features.nulls import EULER_GAMMA, universal_pvalues
 from nullatlas.lookup.features.pairs import cluster_pairs, dual_pairs, mst_edges
-from nullatlas.lookup.features.regions import hole_region
+from nullatlas.lookup.features.regions import _adjacency, hole_region, stable_radius
 from nullatlas.lookup.persistence.diagram import alpha_diagram
 
 EX = os.path.join(os.path.dirname(os.path.dirname(os.path.abspath(__file__))), "examples")
@@ -68,6 +68,44 @@ def test_cluster_pairs_by_hand():
     assert c.death.tolist() == pytest.approx([gap, gap])
     u, v, r = mst_edges(pts)
     assert len(r) == 5 and r.max() == pytest.approx(gap)
+
+
+def _regions_by_brute_force(dp, k, adj):
+    """[(lo, hi, region)] of pair k: the region evaluated between every two
+    consecutive face radii in (birth, death), equal neighbours merged."""
+    b, d = dp.birth[k], dp.death[k]
+    v = np.sqrt(dp.face_values)
+    cuts = np.concatenate([[b], np.unique(v[(v > b) & (v < d)]), [d]])
+    out = []
+    for lo, hi in zip(cuts[:-1], cuts[1:]):
+        reg = tuple(hole_region(dp, k, adj, radius=np.sqrt(lo * hi))[0].tolist())
+        if out and out[-1][2] == reg:
+            out[-1][1] = hi
+        else:
+            out.append([lo, hi, reg])
+    return out
+
+
+@pytest.mark.parametrize("d,seed", [(2, 4), (3, 5)])
+def test_stable_radius_is_the_longest_constant_stretch(d, seed):
+    """The radius of ``stable_radius`` is the log-middle of the longest stretch of
+    the hole's life with one region, checked against the region at every radius
+    between two face values (a planted empty ball gives a long-lived hole)."""
+    rng = np.random.default_rng(seed)
+    pts = rng.random((400 if d == 2 else 500, d))
+    pts = pts[np.linalg.norm(pts - 0.5, axis=1) > 0.2]
+    dp = dual_pairs(*_filtration(pts)[:3])
+    adj = _adjacency(dp.face_tops, len(dp.top_values))
+    order = np.argsort(-dp.death / dp.birth)[:6]           # the planted hole and five more
+    for k in order.tolist():
+        r, lo, hi = stable_radius(dp, k, adj)
+        stretches = _regions_by_brute_force(dp, k, adj)
+        widths = [np.log(h / l_) for l_, h, _ in stretches]
+        best = stretches[int(np.argmax(widths))]
+        assert (lo, hi) == pytest.approx((best[0], best[1]), rel=1e-12)
+        assert r == pytest.approx(np.sqrt(lo * hi)) and dp.birth[k] <= lo < r < hi <= dp.death[k]
+        assert tuple(hole_region(dp, k, adj, radius=r)[0].tolist()) == best[2]
+    assert len(_regions_by_brute_force(dp, int(order[0]), adj)) > 2
 
 
 # ---------------------------------------------------------------- planted structures

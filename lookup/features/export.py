@@ -3,7 +3,7 @@
 Every file goes through ``lookup.atomic.atomic_path``: written in full or not
 at all.  GeoJSON, per significant feature:
 
-* 2D loop: a ``Polygon`` (the hole at the middle of its life) and a ``MultiPoint`` (the
+* 2D loop: a ``Polygon`` (the hole at its most stable radius) and a ``MultiPoint`` (the
   points on its boundary cycle);
 * 2D cluster: a ``MultiPoint`` (its members) and, with three or more points
   not on a line, a ``Polygon`` (their convex hull);

@@ -61,12 +61,11 @@ def _family_null(window, n, q, method, n_sims, seed, min_size, progress, tables)
     return fam, note
 
 
-def _loop_place(pts, k, dp, adj, tops, fverts):
-    """(points, centre, size, area, polygon) of the hole of dual pair k at the
-    middle of its life, r = sqrt(birth * death) (``lookup.features.regions``)."""
+def _loop_place(pts, k, dp, adj, tops, fverts, r):
+    """(points, centre, size, area, polygon) of the hole of dual pair k at
+    radius r (``lookup.features.regions.stable_radius``)."""
     from .regions import hole_region
 
-    r = float(np.sqrt(dp.birth[k] * dp.death[k]))
     region, bfaces = hole_region(dp, k, adj, radius=r)
     simp = tops[region]
     bpts = np.unique(fverts[bfaces])
@@ -189,7 +188,7 @@ def locate_features(points, window, *, alpha: float = 0.05, families=None, min_s
     from ..persistence.diagram import intensity_scale
     from .nulls import universal_pvalues
     from .pairs import cluster_pairs, dual_pairs
-    from .regions import _adjacency, cluster_members
+    from .regions import _adjacency, cluster_members, stable_radius
 
     t0 = time.perf_counter()
     if method not in METHODS:
@@ -262,12 +261,13 @@ def locate_features(points, window, *, alpha: float = 0.05, families=None, min_s
         adj = None if q == 0 else _adjacency(dp.face_tops, len(dp.top_values))
         for rank, i in enumerate(chosen, start=1):
             b, dth = float(birth[i]), float(death[i])
-            used = float(np.sqrt(b * dth))
             if q == 0:
+                used = float(np.sqrt(b * dth))
                 members = cluster_members(n, cp.edges, int(cp.seed[i]), used)
                 c, size, area, ring = _cluster_place(pts, members)
             else:
-                members, c, size, area, ring = _loop_place(pts, i, dp, adj, tops, fverts)
+                used = stable_radius(dp, i, adj)[0]
+                members, c, size, area, ring = _loop_place(pts, i, dp, adj, tops, fverts, used)
             P = pts[members]
             feats.append(Feature(
                 id=f"{KINDS[q][0].upper()}{rank}", dim=q, birth=b, death=dth,

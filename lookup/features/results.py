@@ -50,8 +50,11 @@ class Feature:
         members, points on the hole's outer boundary cycle (2D) or its
         enclosing surface (3D), all at ``scale_used``.
     scale_used : float
-        The radius sqrt(birth * death) (data units) at which the feature is
-        located: the middle of its life on the log scale.
+        The radius (data units) at which the feature is located: for a
+        cluster sqrt(birth * death), the middle of its life on the log
+        scale; for a loop or void the middle of the longest stretch of its
+        life over which its region does not change
+        (``lookup.features.regions.stable_radius``).
     centre : ndarray
     size : float
         Diameter in the data's units: of the circle/ball of the hole's area
