@@ -9,7 +9,8 @@ at all.  GeoJSON, per significant feature:
   not on a line, a ``Polygon`` (their convex hull);
 * 3D: a ``MultiPoint`` with three coordinates per position and the
   feature's bounding box in the ``bbox`` member ([xmin, ymin, zmin, xmax,
-  ymax, zmax]).
+  ymax, zmax]); a loop also as a closed ``LineString`` (its representative
+  cycle, three coordinates per position).
 
 Coordinates are the data's own: overlaying them on a map in a geographic
 system is right only if the points were in that system.
@@ -26,7 +27,7 @@ __all__ = ["geojson", "write_json", "write_geojson", "write_labels"]
 
 def _props(f) -> dict:
     d = f.as_dict(points=False)
-    for k in ("polygon", "bbox", "centre"):
+    for k in ("polygon", "bbox", "centre", "cycle"):
         d.pop(k, None)
     d["centre"] = [float(c) for c in f.centre]
     return d
@@ -47,9 +48,16 @@ def geojson(res) -> dict:
             out.append({"type": "Feature", "id": f"{f.id}-points", "geometry": mp,
                         "properties": dict(props, role="boundary points" if f.dim else "members")})
         else:
+            role = {0: "members", 1: "cycle points", 2: "bounding points"}[f.dim]
+            if f.cycle is not None:
+                line = [[float(c) for c in res.points[i]] for i in [*f.cycle, f.cycle[0]]]
+                out.append({"type": "Feature", "id": f"{f.id}-cycle",
+                            "geometry": {"type": "LineString", "coordinates": line},
+                            "bbox": [float(b) for b in f.bbox],
+                            "properties": dict(props, role="cycle")})
             out.append({"type": "Feature", "id": f"{f.id}-points", "geometry": mp,
                         "bbox": [float(b) for b in f.bbox],
-                        "properties": dict(props, role="bounding points" if f.dim else "members")})
+                        "properties": dict(props, role=role)})
     return {"type": "FeatureCollection", "features": out}
 
 

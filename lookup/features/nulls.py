@@ -11,7 +11,8 @@ Family-wise error control by the largest feature
     extremes ``maxratio1`` in 2D, ``maxratio2`` in 3D, through the same
     trusted lookup as the instant test: empirical null with a Gumbel tail,
     ``lookup.inference.extremes``) or, where no table is trusted and always
-    for clusters (no table holds their strength), from CSR simulations
+    for clusters and 3D loops (no table holds their strength), from CSR
+    simulations
     (rank p-value (1 + #{M_i >= x}) / (m + 1), Davison & Hinkley 1997).
 
 The universal law (second method)
@@ -142,7 +143,10 @@ def _largest(window, n: int, q: int, min_size: int, rng) -> float:
         return max_cluster_ratio(pts, min_size)
     from ..persistence.diagram import alpha_diagram
     from ..summaries.topological import max_ratio
-    return max_ratio(alpha_diagram(pts), q)
+    # 3D loops: the fast engine takes its H1 pairs from gudhi anyway, so
+    # gudhi alone (the same pairs, ``tests/test_features.py``) saves the rest
+    engine = "gudhi" if (q == 1 and pts.shape[1] == 3) else "fast"
+    return max_ratio(alpha_diagram(pts, engine=engine), q)
 
 
 def simulated_null(window, n: int, q: int, n_sims: int = 199, seed: int = 0,

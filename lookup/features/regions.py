@@ -18,6 +18,15 @@ Loop (2D) / void (3D)
     are not crossed are present at the birth and form the representative
     cycle (2D: the polygon's boundary) or the enclosing surface (3D); their
     vertices are the points on the boundary.
+Loop in 3D (H1)
+    A representative cycle of the class born with edge uv at squared radius
+    b2: uv closed by a shortest path (Euclidean edge lengths, Dijkstra)
+    from v to u in the 1-skeleton of the complex just before the birth,
+    the edges of value < b2.  Every such cycle contains the one edge that
+    creates the class, so it is nonzero in homology at the birth (a cycle of
+    the earlier complex plus uv), and the shortest one is the tightest
+    loop through the creating edge.  Its points, in order, are the loop's
+    points.
 Cluster (H0)
     The component of a member point in the union of balls of radius r*, the
     geometric middle sqrt(b d) of the cluster's life (the middle of its
@@ -30,7 +39,7 @@ from collections import deque
 
 import numpy as np
 
-__all__ = ["hole_region", "stable_radius", "cluster_members"]
+__all__ = ["hole_region", "stable_radius", "loop_cycle", "cluster_members"]
 
 
 def _adjacency(face_tops: np.ndarray, m: int):
@@ -153,6 +162,45 @@ def stable_radius(pairs, k: int, adjacency=None) -> tuple:
     w = np.log(c[:-1] / c[1:])
     i = int(np.argmax(w))
     return float(np.sqrt(c[i] * c[i + 1])), float(c[i + 1]), float(c[i])
+
+
+def loop_cycle(points: np.ndarray, pairs, k: int) -> np.ndarray:
+    """Representative cycle of 3D loop ``k`` (module doc): its points in order.
+
+    Parameters
+    ----------
+    points : ndarray (n, 3)
+    pairs : lookup.features.pairs.LoopPairs
+    k : int
+        Index of the pair.
+
+    Returns
+    -------
+    ndarray of int
+        Rows u, ..., v of the points: consecutive rows and (v, u), the birth
+        edge, are edges of the alpha complex; no row repeats.
+    """
+    from scipy.sparse import coo_matrix
+    from scipy.sparse.csgraph import dijkstra
+
+    n = len(points)
+    u, v = (int(x) for x in pairs.birth_edge[k])
+    bval = pairs.birth_value[k]
+    E, ev = pairs.edges, pairs.edge_values
+    keep = ev < bval
+    if not keep.any():
+        raise ValueError("no edge precedes the birth edge: not an H1 creator")
+    a, b = E[keep, 0], E[keep, 1]
+    w = np.linalg.norm(points[a] - points[b], axis=1)
+    G = coo_matrix((w, (a, b)), shape=(n, n)).tocsr()
+    dist, pred = dijkstra(G, directed=False, indices=v, return_predecessors=True)
+    if not np.isfinite(dist[u]):
+        raise ValueError("the birth edge's ends are not joined before its birth: "
+                         "not an H1 creator")
+    path = [u]
+    while path[-1] != v:
+        path.append(int(pred[path[-1]]))
+    return np.array(path, np.int64)
 
 
 def cluster_members(n: int, edges, seed: int, radius: float) -> np.ndarray:

@@ -52,9 +52,10 @@ class Feature:
     scale_used : float
         The radius (data units) at which the feature is located: for a
         cluster sqrt(birth * death), the middle of its life on the log
-        scale; for a loop or void the middle of the longest stretch of its
-        life over which its region does not change
-        (``lookup.features.regions.stable_radius``).
+        scale; for a hole (loop in 2D, void in 3D) the middle of the
+        longest stretch of its life over which its region does not change
+        (``lookup.features.regions.stable_radius``); for a 3D loop its birth
+        (the cycle is taken just before it).
     centre : ndarray
     size : float
         Diameter in the data's units: of the circle/ball of the hole's area
@@ -66,6 +67,14 @@ class Feature:
         the cluster's convex hull).
     bbox : list
         [min..., max...] of the feature's points.
+    cycle : list of int or None
+        3D loop: its representative cycle, rows of the points in order (the
+        last joined to the first by the birth edge; ``points`` holds the
+        same rows); ``size`` is then twice the largest distance of its
+        points from ``centre`` (the length-weighted centroid of its edges)
+        and ``area`` is NaN.
+    cycle_length : float
+        Length of that cycle (data units; NaN otherwise).
     """
 
     id: str
@@ -87,6 +96,8 @@ class Feature:
     polygon: list | None = None
     bbox: list = field(default_factory=list)
     scale_used: float = float("nan")
+    cycle: list | None = None
+    cycle_length: float = float("nan")
 
     @property
     def kind(self) -> str:
@@ -109,6 +120,9 @@ class Feature:
             d["points"] = [int(i) for i in self.points]
         if self.polygon is not None:
             d["polygon"] = [[float(x), float(y)] for x, y in self.polygon]
+        if self.cycle is not None:
+            d["cycle"] = [int(i) for i in self.cycle]
+            d["cycle_length"] = _num(self.cycle_length)
         return d
 
 
@@ -172,6 +186,7 @@ class FeatureMap:
         for f in self.features:
             d = f.as_dict(points=False)
             d.pop("polygon", None)
+            d.pop("cycle", None)
             c = d.pop("centre")
             for k, x in zip("xyz", c):
                 d[f"centre_{k}"] = x
