@@ -10,7 +10,7 @@ import pytest
 import nullatlas
 from nullatlas.lookup.cli import main
 from nullatlas.lookup.features.locate import _filtration
-from nullatlas.lookup.features.nulls import EULER_GAMMA, universal_pvalues
+from nullatlas.lookup.features.nulls import EULER_GAMMA, FamilyNull, universal_pvalues
 from nullatlas.lookup.features.pairs import cluster_pairs, dual_pairs, loop_pairs_3d, mst_edges
 from nullatlas.lookup.features.regions import _adjacency, hole_region, stable_radius
 from nullatlas.lookup.persistence.diagram import alpha_diagram
@@ -262,6 +262,24 @@ def test_csr_rarely_gives_a_significant_feature():
         res = nullatlas.locate_features(pts, WAFER, n_sims=99, seed=5, progress=False)
         hits += res.pvalue <= 0.05
     assert hits <= 6
+
+
+def test_simulated_null_rank_p_then_gumbel_tail_beyond_the_largest():
+    """Up to the largest of m simulated values p is the rank p (k + 1) / (m + 1);
+    beyond it a Gumbel tail takes p below the floor 1 / (m + 1) with the shape of
+    the law (here the null is Gumbel(0, 1), survival 1 - exp(-exp(-x)))."""
+    v = np.random.default_rng(0).gumbel(0.0, 1.0, 999)
+    fam = FamilyNull(v, "mc", "test")
+    x = np.sort(v)[[0, 500, 989, 998]]
+    k = np.array([999, 499, 10, 1])
+    np.testing.assert_array_equal(fam.pvalue(x), (k + 1) / 1000)
+    far = v.max() + np.array([0.5, 1.5, 3.5, 5.5])
+    p = fam.pvalue(far)
+    assert np.all(p < 1e-3) and np.all(np.diff(p) < 0)
+    true = -np.expm1(-np.exp(-far))
+    np.testing.assert_allclose(p[1:] / p[1], true[1:] / true[1], rtol=0.25)
+    assert fam.pvalue(fam.threshold(1e-5)) == pytest.approx(1e-5, rel=1e-6)
+    assert FamilyNull(v[:19], "mc", "test").pvalue(100.0) == pytest.approx(1 / 20)
 
 
 def test_universal_law_on_csr_from_memory():
