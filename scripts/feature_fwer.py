@@ -12,8 +12,9 @@ least one feature significant at 0.05 under
 
 Power: planted structures, detection rate (a significant feature of the
 right kind whose location overlaps the planted one) and the intersection over
-union (IoU) of the located region with the planted one; for rings of points in
-3D, the share of the located cycle's points on the ring.
+union (IoU) of the located region with the planted one (for holes, also of
+their largest empty disk); for rings of points in 3D, the share of the
+located cycle's points on the ring.
 
     python scripts/feature_fwer.py                  # R = 200, 20 per strength
     python scripts/feature_fwer.py --reps 4000 --power-reps 40 --json docs/locate_fwer.json
@@ -187,7 +188,7 @@ def power_study(reps: int, seed: int) -> dict:
         print(key, res[key], flush=True)
     # empty disk of radius rad (no defects inside), with m extra defects on its edge
     for rad, m in ((15, 0), (20, 0), (25, 0), (40, 0), (40, 20), (40, 70)):
-        hit, ious = 0, []
+        hit, ious, cores = 0, [], []
         truth = Point(-40, 30).buffer(rad, 256)
         for i in range(reps):
             rng = np.random.default_rng([seed, 1000 + m, rad, i])
@@ -201,12 +202,16 @@ def power_study(reps: int, seed: int) -> dict:
                 hit += 1
                 h = Polygon(best[0].polygon)
                 ious.append(h.intersection(truth).area / h.union(truth).area)
+                cx, cy, cr = best[0].core             # the largest empty disk
+                h = Point(cx, cy).buffer(cr, 256)
+                cores.append(h.intersection(truth).area / h.union(truth).area)
         key = f"empty disk radius={rad} ring m={m}"
-        res[key] = {"detection": hit / reps, "iou_median": float(np.median(ious)) if ious else None}
+        res[key] = {"detection": hit / reps, "iou_median": float(np.median(ious)) if ious else None,
+                    "core_iou_median": float(np.median(cores)) if cores else None}
         print(key, res[key], flush=True)
     # void: 700 uniform points in a 10 mm cube minus a ball of radius a at the centre
     for a in (1.2, 1.6, 2.0, 2.4):
-        hit, errs = 0, []
+        hit, errs, cerrs = 0, [], []
         for i in range(reps):
             rng = np.random.default_rng([seed, int(a * 10), i])
             pts = box.sample(700, rng)
@@ -216,8 +221,11 @@ def power_study(reps: int, seed: int) -> dict:
             if best:
                 hit += 1
                 errs.append(float(np.linalg.norm(best[0].centre - 5)))
+                cerrs.append(float(np.linalg.norm(np.asarray(best[0].core[:3]) - 5)))
         res[f"void radius={a}"] = {"detection": hit / reps,
-                                   "centre_error_median": float(np.median(errs)) if errs else None}
+                                   "centre_error_median": float(np.median(errs)) if errs else None,
+                                   "core_centre_error_median":
+                                   float(np.median(cerrs)) if cerrs else None}
         print(f"void radius={a}", res[f"void radius={a}"], flush=True)
     # loop in 3D: m points on a circle of radius 3 mm (nearly even angles, 0.03 mm off
     # its plane) about the cube's centre, in 300 uniform points; a detection is a

@@ -144,6 +144,16 @@ def test_planted_ring_found_in_place():
     truth = Point(-40, 30).buffer(40, 256)
     assert hole.intersection(truth).area / hole.union(truth).area >= 0.8
     assert np.hypot(*(loops[0].centre - [-40, 30])) < 8
+    # its largest empty disk: no point inside, radius the death, on the planted disk
+    cx, cy, rad = loops[0].core
+    assert rad == pytest.approx(loops[0].death, rel=1e-9)
+    assert np.min(np.hypot(pts[:, 0] - cx, pts[:, 1] - cy)) >= rad * (1 - 1e-9)
+    assert np.hypot(cx + 40, cy - 30) < 3 and rad == pytest.approx(40, abs=3)
+    from nullatlas.lookup.features.export import geojson
+    core = [g for g in geojson(res)["features"] if g["id"] == f"{loops[0].id}-core"]
+    disk = Polygon(core[0]["geometry"]["coordinates"][0])
+    assert disk.is_valid and disk.exterior.is_ccw
+    assert disk.area == pytest.approx(np.pi * rad ** 2, rel=0.01)
 
 
 def test_planted_void_found_in_place():
@@ -156,6 +166,10 @@ def test_planted_void_found_in_place():
     assert voids and voids[0].kind == "void" and voids[0].pvalue < 0.01
     assert np.linalg.norm(voids[0].centre - 5.0) < 1.0
     assert 0.5 < voids[0].size / 4.4 < 1.3          # diameter of the empty ball
+    c, rad = np.array(voids[0].core[:3]), voids[0].core[3]
+    assert rad == pytest.approx(voids[0].death, rel=1e-9)
+    assert np.min(np.linalg.norm(pts - c, axis=1)) >= rad * (1 - 1e-9)    # empty ball
+    assert np.linalg.norm(c - 5.0) < 1.0 and 2.2 <= rad < 3.5
     # its bounding points lie around the empty ball
     dist = np.linalg.norm(res.points[voids[0].points] - 5.0, axis=1)
     assert np.median(dist) == pytest.approx(2.2, abs=0.8)

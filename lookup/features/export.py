@@ -3,8 +3,9 @@
 Every file goes through ``lookup.atomic.atomic_path``: written in full or not
 at all.  GeoJSON, per significant feature:
 
-* 2D loop: a ``Polygon`` (the hole at its most stable radius) and a ``MultiPoint`` (the
-  points on its boundary cycle);
+* 2D loop: a ``Polygon`` (the hole at its most stable radius), a ``Polygon``
+  of its largest empty disk (a 128-gon inscribed in the circle) and a
+  ``MultiPoint`` (the points on its boundary cycle);
 * 2D cluster: a ``MultiPoint`` (its members) and, with three or more points
   not on a line, a ``Polygon`` (their convex hull);
 * 3D: a ``MultiPoint`` with three coordinates per position and the
@@ -20,6 +21,8 @@ from __future__ import annotations
 import csv
 import json
 
+import numpy as np
+
 from ..atomic import atomic_path
 
 __all__ = ["geojson", "write_json", "write_geojson", "write_labels"]
@@ -27,7 +30,7 @@ __all__ = ["geojson", "write_json", "write_geojson", "write_labels"]
 
 def _props(f) -> dict:
     d = f.as_dict(points=False)
-    for k in ("polygon", "bbox", "centre", "cycle"):
+    for k in ("polygon", "bbox", "centre", "cycle", "largest_empty_disk"):
         d.pop(k, None)
     d["centre"] = [float(c) for c in f.centre]
     return d
@@ -45,6 +48,14 @@ def geojson(res) -> dict:
                 out.append({"type": "Feature", "id": f"{f.id}-region",
                             "geometry": {"type": "Polygon", "coordinates": [f.polygon]},
                             "properties": dict(props, role="hole" if f.dim else "hull")})
+            if f.core is not None:
+                t = np.linspace(0.0, 2.0 * np.pi, 129)            # counter-clockwise, closed
+                cx, cy, rad = f.core
+                disk = [[float(cx + rad * np.cos(a)), float(cy + rad * np.sin(a))] for a in t]
+                disk[-1] = disk[0]
+                out.append({"type": "Feature", "id": f"{f.id}-core",
+                            "geometry": {"type": "Polygon", "coordinates": [disk]},
+                            "properties": dict(props, role="largest empty disk")})
             out.append({"type": "Feature", "id": f"{f.id}-points", "geometry": mp,
                         "properties": dict(props, role="boundary points" if f.dim else "members")})
         else:

@@ -98,6 +98,19 @@ def _loop_place(pts, k, dp, adj, tops, fverts, r):
     return bpts, c, (6.0 * area / np.pi) ** (1.0 / 3.0), area, None
 
 
+def _core(pts, simplex):
+    """(centre, radius) of the circumscribed circle/sphere of ``pts[simplex]``
+    (d + 1 points in d dimensions): c solves 2 (p_i - p_0) . (c - p_0) =
+    |p_i - p_0|^2, i = 1..d (the perpendicular bisectors).  For a hole's
+    destroyer it is the hole's largest empty disk/ball: the destroyer is the
+    last simplex of the hole to enter (its oldest), a Delaunay simplex whose
+    circumscribed ball holds no point, and its radius is the death."""
+    P = pts[np.asarray(simplex)]
+    A = P[1:] - P[0]
+    x = np.linalg.solve(2.0 * A, np.einsum("ij,ij->i", A, A))
+    return P[0] + x, float(np.linalg.norm(x))
+
+
 def _cycle_place(pts, cycle):
     """(centre, size, length) of a closed polyline through ``pts[cycle]``:
     the length-weighted centroid of its edges, twice the largest distance of
@@ -280,7 +293,7 @@ def locate_features(points, window, *, alpha: float = 0.05, families=None, min_s
         adj = None if q < d - 1 else _adjacency(dp.face_tops, len(dp.top_values))
         for rank, i in enumerate(chosen, start=1):
             b, dth = float(birth[i]), float(death[i])
-            cycle, length = None, float("nan")
+            cycle, length, core = None, float("nan"), None
             if q == 0:
                 used = float(np.sqrt(b * dth))
                 members = cluster_members(n, cp.edges, int(cp.seed[i]), used)
@@ -293,6 +306,7 @@ def locate_features(points, window, *, alpha: float = 0.05, families=None, min_s
             else:
                 used = stable_radius(dp, i, adj)[0]
                 members, c, size, area, ring = _loop_place(pts, i, dp, adj, tops, fverts, used)
+                core = _core(pts, tops[dp.destroyer[i]])
             P = pts[members]
             feats.append(Feature(
                 id=f"{KINDS[q][0].upper()}{rank}", dim=q, birth=b, death=dth,
@@ -302,7 +316,8 @@ def locate_features(points, window, *, alpha: float = 0.05, families=None, min_s
                 significant=bool(p_fw[i] <= alpha), points=members, centre=np.asarray(c, float),
                 size=float(size), area=float(area), polygon=ring,
                 bbox=list(P.min(axis=0)) + list(P.max(axis=0)), scale_used=used,
-                cycle=cycle, cycle_length=length))
+                cycle=cycle, cycle_length=length,
+                core=None if core is None else [*map(float, core[0]), core[1]]))
     if report.n_duplicates:
         caught.append(f"{report.n_duplicates} duplicate point(s) were handled by '{on_duplicates}'")
     return FeatureMap(statistic=best_stat, pvalue=best_p, features=feats, alpha=float(alpha),

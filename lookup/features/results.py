@@ -75,6 +75,12 @@ class Feature:
         and ``area`` is NaN.
     cycle_length : float
         Length of that cycle (data units; NaN otherwise).
+    core : list or None
+        Hole (2D loop, 3D void): its largest empty disk/ball, [centre...,
+        radius], the circumscribed disk/ball of its destroying simplex
+        (radius = ``death``): the maximum-likelihood place of an empty disk
+        among Poisson points (the largest disk free of points), beside
+        ``polygon``, the hole's shape.
     """
 
     id: str
@@ -98,6 +104,7 @@ class Feature:
     scale_used: float = float("nan")
     cycle: list | None = None
     cycle_length: float = float("nan")
+    core: list | None = None
 
     @property
     def kind(self) -> str:
@@ -120,6 +127,9 @@ class Feature:
             d["points"] = [int(i) for i in self.points]
         if self.polygon is not None:
             d["polygon"] = [[float(x), float(y)] for x, y in self.polygon]
+        if self.core is not None:
+            d["largest_empty_" + ("disk" if len(self.centre) == 2 else "ball")] = {
+                "centre": [float(x) for x in self.core[:-1]], "radius": float(self.core[-1])}
         if self.cycle is not None:
             d["cycle"] = [int(i) for i in self.cycle]
             d["cycle_length"] = _num(self.cycle_length)
@@ -187,6 +197,10 @@ class FeatureMap:
             d = f.as_dict(points=False)
             d.pop("polygon", None)
             d.pop("cycle", None)
+            for k in ("largest_empty_disk", "largest_empty_ball"):
+                e = d.pop(k, None)
+                if e is not None:
+                    d["core_radius"] = e["radius"]
             c = d.pop("centre")
             for k, x in zip("xyz", c):
                 d[f"centre_{k}"] = x
