@@ -150,9 +150,9 @@ def plot_feature_map(res, path: str | None = None, window=None, title: str | Non
     axm.set_aspect("equal", adjustable="datalim")
     axm.autoscale_view()
     more = f"; {len(sig) - MAX_LABELS} more not labelled" if len(sig) > MAX_LABELS else ""
-    proj = (", projected on x-y (voids: outline of their bounding points; loops: their cycle)"
+    proj = ("\nprojected on x-y (voids: outline of their bounding points; loops: their cycle)"
             if res.dim == 3 else "")
-    axm.set_title(f"{len(sig)} significant feature(s), family-wise alpha = {res.alpha:g}{proj}{more}",
+    axm.set_title(f"{len(sig)} significant feature(s), family-wise alpha = {res.alpha:g}{more}{proj}",
                   fontsize=9)
     axm.set_xlabel("x")
     axm.set_ylabel("y")
