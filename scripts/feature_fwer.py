@@ -64,7 +64,7 @@ def size_study(reps: int, seed: int, sims: int = 999, blocks: int = 10,
     The patterns are split into ``blocks`` blocks; each block gets the
     simulated nulls (clusters, and loops/voids where no table is trusted) of
     its own seed, as users with different seeds would (3D loops: the
-    patterns in ``loop_blocks`` blocks, their null costing ~50 ms per
+    patterns in ``loop_blocks`` blocks, their null costing ~20 ms per
     pattern).  A rank test is exact only averaged over its simulations:
     with one null set shared by all patterns the measured share is that
     set's conditional size, whose sd at the Bonferroni level 0.025 is

@@ -165,7 +165,7 @@ def locate_features(points, window, *, alpha: float = 0.05, families=None, min_s
         trusted, else simulations (``auto``); tables only (``table``; an
         error where none is trusted); simulations only (``mc``).  Clusters
         and 3D loops are always simulated (no table holds their strength;
-        a 3D loop null costs about 60 ms per simulated pattern of 500
+        a 3D loop null costs some 20 ms per simulated pattern of 500
         points, gudhi's alpha complex).
     n_sims : int
         CSR patterns per simulated null (p-values >= 1 / (n_sims + 1)).  The
