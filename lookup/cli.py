@@ -222,16 +222,18 @@ def build_parser() -> argparse.ArgumentParser:
     lo.add_argument("points", help="points file, as for 'test'")
     lo.add_argument("--window", "-w", required=True, metavar="SPEC", help="window, as for 'test'")
     lo.add_argument("--alpha", type=_float, default=0.05, help="family-wise level (default 0.05)")
-    lo.add_argument("--only", choices=["clusters", "holes"], default=None,
-                    help="test one family: clusters, or holes (loops in 2D, voids in 3D); "
-                    "default both, Bonferroni over the two")
+    lo.add_argument("--only", choices=["clusters", "holes", "loops", "voids"], default=None,
+                    help="test one family: clusters, loops, voids (3D), or holes (loops in 2D, "
+                    "voids in 3D); default all (2D: clusters and loops; 3D: clusters, loops "
+                    "and voids), Bonferroni over them")
     lo.add_argument("--min-size", type=_int, default=10, metavar="K",
                     help="points a component needs to count as a cluster (default 10)")
     lo.add_argument("--method", default="auto", choices=["auto", "table", "mc"],
                     help="null of the largest loop/void: tables where trusted else simulations "
-                    "(auto), tables only, or simulations only; clusters are always simulated")
-    lo.add_argument("--sims", type=_int, default=199, metavar="M",
-                    help="CSR patterns per simulated null (default 199)")
+                    "(auto), tables only, or simulations only; clusters and 3D loops are always "
+                    "simulated")
+    lo.add_argument("--sims", type=_int, default=999, metavar="M",
+                    help="CSR patterns per simulated null (default 999)")
     lo.add_argument("--seed", type=_int, default=0, metavar="S", help="seed of the simulations")
     lo.add_argument("--table", action="append", metavar="FILE", help="your own null table")
     lo.add_argument("--columns", metavar="COLS", help="as for 'test'")
@@ -384,7 +386,7 @@ def _cmd_locate(a) -> int:
     _kernels_ready()
     fam = None
     if a.only:
-        fam = [0] if a.only == "clusters" else [window.dim - 1]
+        fam = [{"clusters": 0, "loops": 1, "voids": 2, "holes": window.dim - 1}[a.only]]
     res = locate_features(pts, window, alpha=a.alpha, families=fam, min_size=a.min_size,
                           method=a.method, n_sims=a.sims, seed=a.seed,
                           on_duplicates=a.on_duplicates, progress=a.progress, tables=a.table)

@@ -10,9 +10,9 @@ import pytest
 import nullatlas
 from nullatlas.lookup.cli import main
 from nullatlas.lookup.features.locate import _filtration
-from nullatlas.lookup.features.nulls import EULER_GAMMA, universal_pvalues
-from nullatlas.lookup.features.pairs import cluster_pairs, dual_pairs, mst_edges
-from nullatlas.lookup.features.regions import hole_region
+from nullatlas.lookup.features.nulls import EULER_GAMMA, FamilyNull, universal_pvalues
+from nullatlas.lookup.features.pairs import cluster_pairs, dual_pairs, loop_pairs_3d, mst_edges
+from nullatlas.lookup.features.regions import _adjacency, hole_region, stable_radius
 from nullatlas.lookup.persistence.diagram import alpha_diagram
 
 EX = os.path.join(os.path.dirname(os.path.dirname(os.path.abspath(__file__))), "examples")
@@ -70,6 +70,44 @@ def test_cluster_pairs_by_hand():
     assert len(r) == 5 and r.max() == pytest.approx(gap)
 
 
+def _regions_by_brute_force(dp, k, adj):
+    """[(lo, hi, region)] of pair k: the region evaluated between every two
+    consecutive face radii in (birth, death), equal neighbours merged."""
+    b, d = dp.birth[k], dp.death[k]
+    v = np.sqrt(dp.face_values)
+    cuts = np.concatenate([[b], np.unique(v[(v > b) & (v < d)]), [d]])
+    out = []
+    for lo, hi in zip(cuts[:-1], cuts[1:]):
+        reg = tuple(hole_region(dp, k, adj, radius=np.sqrt(lo * hi))[0].tolist())
+        if out and out[-1][2] == reg:
+            out[-1][1] = hi
+        else:
+            out.append([lo, hi, reg])
+    return out
+
+
+@pytest.mark.parametrize("d,seed", [(2, 4), (3, 5)])
+def test_stable_radius_is_the_longest_constant_stretch(d, seed):
+    """The radius of ``stable_radius`` is the log-middle of the longest stretch of
+    the hole's life with one region, checked against the region at every radius
+    between two face values (a planted empty ball gives a long-lived hole)."""
+    rng = np.random.default_rng(seed)
+    pts = rng.random((400 if d == 2 else 500, d))
+    pts = pts[np.linalg.norm(pts - 0.5, axis=1) > 0.2]
+    dp = dual_pairs(*_filtration(pts)[:3])
+    adj = _adjacency(dp.face_tops, len(dp.top_values))
+    order = np.argsort(-dp.death / dp.birth)[:6]           # the planted hole and five more
+    for k in order.tolist():
+        r, lo, hi = stable_radius(dp, k, adj)
+        stretches = _regions_by_brute_force(dp, k, adj)
+        widths = [np.log(h / l_) for l_, h, _ in stretches]
+        best = stretches[int(np.argmax(widths))]
+        assert (lo, hi) == pytest.approx((best[0], best[1]), rel=1e-12)
+        assert r == pytest.approx(np.sqrt(lo * hi)) and dp.birth[k] <= lo < r < hi <= dp.death[k]
+        assert tuple(hole_region(dp, k, adj, radius=r)[0].tolist()) == best[2]
+    assert len(_regions_by_brute_force(dp, int(order[0]), adj)) > 2
+
+
 # ---------------------------------------------------------------- planted structures
 
 def test_planted_cluster_found_in_place():
@@ -106,6 +144,16 @@ def test_planted_ring_found_in_place():
     truth = Point(-40, 30).buffer(40, 256)
     assert hole.intersection(truth).area / hole.union(truth).area >= 0.8
     assert np.hypot(*(loops[0].centre - [-40, 30])) < 8
+    # its largest empty disk: no point inside, radius the death, on the planted disk
+    cx, cy, rad = loops[0].core
+    assert rad == pytest.approx(loops[0].death, rel=1e-9)
+    assert np.min(np.hypot(pts[:, 0] - cx, pts[:, 1] - cy)) >= rad * (1 - 1e-9)
+    assert np.hypot(cx + 40, cy - 30) < 3 and rad == pytest.approx(40, abs=3)
+    from nullatlas.lookup.features.export import geojson
+    core = [g for g in geojson(res)["features"] if g["id"] == f"{loops[0].id}-core"]
+    disk = Polygon(core[0]["geometry"]["coordinates"][0])
+    assert disk.is_valid and disk.exterior.is_ccw
+    assert disk.area == pytest.approx(np.pi * rad ** 2, rel=0.01)
 
 
 def test_planted_void_found_in_place():
@@ -118,9 +166,101 @@ def test_planted_void_found_in_place():
     assert voids and voids[0].kind == "void" and voids[0].pvalue < 0.01
     assert np.linalg.norm(voids[0].centre - 5.0) < 1.0
     assert 0.5 < voids[0].size / 4.4 < 1.3          # diameter of the empty ball
+    c, rad = np.array(voids[0].core[:3]), voids[0].core[3]
+    assert rad == pytest.approx(voids[0].death, rel=1e-9)
+    assert np.min(np.linalg.norm(pts - c, axis=1)) >= rad * (1 - 1e-9)    # empty ball
+    assert np.linalg.norm(c - 5.0) < 1.0 and 2.2 <= rad < 3.5
     # its bounding points lie around the empty ball
     dist = np.linalg.norm(res.points[voids[0].points] - 5.0, axis=1)
     assert np.median(dist) == pytest.approx(2.2, abs=0.8)
+
+
+# ---------------------------------------------------------------- loops in 3D
+
+def test_loop_pairs_3d_equal_the_diagram():
+    """The H1 pairs kept with their birth edges and death triangles are the diagram's
+    H1 in 3D; each birth edge and death triangle carries the pair's values."""
+    pts = np.random.default_rng(6).random((300, 3))
+    lp = loop_pairs_3d(pts)
+    ours = np.sort(np.stack([lp.birth, lp.death], axis=1), axis=0)
+    ref = np.sort(alpha_diagram(pts).finite(1), axis=0)
+    assert ours.shape == ref.shape and len(ours) > 100
+    np.testing.assert_allclose(ours, ref, rtol=1e-12, atol=0)
+    # an edge's alpha value is at least its half length squared: the birth edge
+    # is no longer than twice the birth radius, the death triangle's edges than
+    # twice the death radius
+    be = np.linalg.norm(pts[lp.birth_edge[:, 0]] - pts[lp.birth_edge[:, 1]], axis=1)
+    assert np.all(be <= 2 * lp.birth * (1 + 1e-9))
+    T = pts[lp.death_triangle]
+    longest = np.max(np.linalg.norm(T - np.roll(T, 1, axis=1), axis=2), axis=1)
+    assert np.all(longest <= 2 * lp.death * (1 + 1e-9))
+
+
+def _ring_3d(seed, n_bg=300, n_ring=40, radius=3.0):
+    """Uniform points in a 10 mm cube and a ring of points (nearly even angles,
+    0.03 mm jitter off its plane) of the given radius about (5, 5, 5) in z = 5."""
+    rng = np.random.default_rng(seed)
+    box = nullatlas.Box(0, 0, 0, 10, 10, 10)
+    bg = box.sample(n_bg, rng)
+    t = 2 * np.pi * (np.arange(n_ring) + rng.uniform(-0.2, 0.2, n_ring)) / n_ring
+    ring = np.c_[5 + radius * np.cos(t), 5 + radius * np.sin(t), 5 + rng.normal(0, 0.03, n_ring)]
+    return box, np.vstack([bg, ring])
+
+
+def test_planted_ring_in_3d_found_with_its_cycle(tmp_path):
+    from nullatlas.lookup.features.export import geojson, write_labels
+    from nullatlas.lookup.features.mapplot import plot_feature_map
+
+    box, pts = _ring_3d(0, n_bg=150)
+    res = nullatlas.locate_features(pts, box, n_sims=99, seed=2, progress=False)
+    assert sorted(res.families) == [0, 1, 2]                   # three families in 3D
+    loops = [f for f in res.significant if f.kind == "loop"]
+    assert loops, res.summary()
+    f = loops[0]
+    assert f.pvalue == pytest.approx(min(1.0, 3 * f.pvalue_family))    # Bonferroni over 3
+    cyc = np.asarray(f.cycle)
+    assert cyc.tolist() == f.points.tolist() and len(set(cyc.tolist())) == len(cyc)
+    # its points are the ring's, on the circle of radius 3 in the plane z = 5
+    assert np.mean(cyc >= 150) >= 0.95
+    P = pts[cyc]
+    assert np.median(np.abs(np.hypot(P[:, 0] - 5, P[:, 1] - 5) - 3)) < 0.1
+    assert np.median(np.abs(P[:, 2] - 5)) < 0.1
+    # closed: consecutive points, and the last with the first (the birth edge), are
+    # edges of the complex present at the birth (length <= 2 x birth radius)
+    steps = np.linalg.norm(P - np.roll(P, -1, axis=0), axis=1)
+    assert np.all(steps <= 2 * f.birth * (1 + 1e-9))
+    lp = loop_pairs_3d(pts)
+    edges = {tuple(sorted(e)) for e in lp.edges.tolist()}
+    assert all(tuple(sorted((int(a), int(b)))) in edges for a, b in zip(cyc, np.roll(cyc, -1)))
+    assert f.cycle_length == pytest.approx(2 * np.pi * 3, rel=0.05)
+    assert np.linalg.norm(f.centre - 5.0) < 0.3 and 5.4 < f.size < 7.2     # diameter 6
+    # outputs: a closed 3D LineString beside the points, labels, the projected map
+    gj = geojson(res)
+    line = [g for g in gj["features"] if g["id"] == f"{f.id}-cycle"]
+    assert line and line[0]["geometry"]["type"] == "LineString"
+    xyz = line[0]["geometry"]["coordinates"]
+    assert len(xyz[0]) == 3 and xyz[0] == xyz[-1] and len(xyz) == len(cyc) + 1
+    write_labels(res, str(tmp_path / "l.csv"))
+    rows = list(csv.DictReader(open(tmp_path / "l.csv")))
+    assert {int(r["index"]) for r in rows if f.id in r["features"].split(";")} == set(cyc.tolist())
+    assert res.as_dict()["features"][res.features.index(f)]["cycle"] == cyc.tolist()
+    plot_feature_map(res, str(tmp_path / "m.png"))
+    assert (tmp_path / "m.png").stat().st_size > 10000
+
+
+def test_csr_cube_rarely_gives_a_significant_loop():
+    """40 CSR patterns of 200 points in the unit cube, loops alone: at most 6
+    significant at 0.05 (the planted ring above reaches p = 0.01 with this null)."""
+    cube = nullatlas.Box(0, 0, 0, 1, 1, 1)
+    hits, ps = 0, []
+    for s in range(40):
+        pts = cube.sample(200, np.random.default_rng(2000 + s))
+        res = nullatlas.locate_features(pts, cube, families=[1], n_sims=99, seed=4,
+                                        progress=False)
+        hits += res.pvalue <= 0.05
+        ps.append(res.pvalue)
+    assert hits <= 6
+    assert np.median(ps) > 0.2                   # p-values spread, not stuck at the floor
 
 
 # ---------------------------------------------------------------- CSR: family-wise size
@@ -136,6 +276,24 @@ def test_csr_rarely_gives_a_significant_feature():
         res = nullatlas.locate_features(pts, WAFER, n_sims=99, seed=5, progress=False)
         hits += res.pvalue <= 0.05
     assert hits <= 6
+
+
+def test_simulated_null_rank_p_then_gumbel_tail_beyond_the_largest():
+    """Up to the largest of m simulated values p is the rank p (k + 1) / (m + 1);
+    beyond it a Gumbel tail takes p below the floor 1 / (m + 1) with the shape of
+    the law (here the null is Gumbel(0, 1), survival 1 - exp(-exp(-x)))."""
+    v = np.random.default_rng(0).gumbel(0.0, 1.0, 999)
+    fam = FamilyNull(v, "mc", "test")
+    x = np.sort(v)[[0, 500, 989, 998]]
+    k = np.array([999, 499, 10, 1])
+    np.testing.assert_array_equal(fam.pvalue(x), (k + 1) / 1000)
+    far = v.max() + np.array([0.5, 1.5, 3.5, 5.5])
+    p = fam.pvalue(far)
+    assert np.all(p < 1e-3) and np.all(np.diff(p) < 0)
+    true = -np.expm1(-np.exp(-far))
+    np.testing.assert_allclose(p[1:] / p[1], true[1:] / true[1], rtol=0.25)
+    assert fam.pvalue(fam.threshold(1e-5)) == pytest.approx(1e-5, rel=1e-6)
+    assert FamilyNull(v[:19], "mc", "test").pvalue(100.0) == pytest.approx(1 / 20)
 
 
 def test_universal_law_on_csr_from_memory():
@@ -234,6 +392,7 @@ def test_json_when_no_ratio_can_reach_alpha(capsys):
     (["WAFER", "-w", "disk:0,0,150", "--plot", "x.txt"], "--plot"),
     (["WAFER", "-w", "disk:0,0,150", "--labels", "/no/such/dir/l.csv"], "--labels"),
     (["WAFER", "-w", "box:0,0,0,1,1,1"], ""),
+    (["WAFER", "-w", "disk:0,0,150", "--only", "voids"], "families"),
 ])
 def test_bad_input_exit_2(capsys, args, needle):
     args = [os.path.join(EX, "wafer_lot_random.csv") if a == "WAFER" else a for a in args]

@@ -3,13 +3,15 @@
 Every file goes through ``lookup.atomic.atomic_path``: written in full or not
 at all.  GeoJSON, per significant feature:
 
-* 2D loop: a ``Polygon`` (the hole at the middle of its life) and a ``MultiPoint`` (the
-  points on its boundary cycle);
+* 2D loop: a ``Polygon`` (the hole at its most stable radius), a ``Polygon``
+  of its largest empty disk (a 128-gon inscribed in the circle) and a
+  ``MultiPoint`` (the points on its boundary cycle);
 * 2D cluster: a ``MultiPoint`` (its members) and, with three or more points
   not on a line, a ``Polygon`` (their convex hull);
 * 3D: a ``MultiPoint`` with three coordinates per position and the
   feature's bounding box in the ``bbox`` member ([xmin, ymin, zmin, xmax,
-  ymax, zmax]).
+  ymax, zmax]); a loop also as a closed ``LineString`` (its representative
+  cycle, three coordinates per position).
 
 Coordinates are the data's own: overlaying them on a map in a geographic
 system is right only if the points were in that system.
@@ -19,6 +21,8 @@ from __future__ import annotations
 import csv
 import json
 
+import numpy as np
+
 from ..atomic import atomic_path
 
 __all__ = ["geojson", "write_json", "write_geojson", "write_labels"]
@@ -26,7 +30,7 @@ __all__ = ["geojson", "write_json", "write_geojson", "write_labels"]
 
 def _props(f) -> dict:
     d = f.as_dict(points=False)
-    for k in ("polygon", "bbox", "centre"):
+    for k in ("polygon", "bbox", "centre", "cycle", "largest_empty_disk"):
         d.pop(k, None)
     d["centre"] = [float(c) for c in f.centre]
     return d
@@ -44,12 +48,27 @@ def geojson(res) -> dict:
                 out.append({"type": "Feature", "id": f"{f.id}-region",
                             "geometry": {"type": "Polygon", "coordinates": [f.polygon]},
                             "properties": dict(props, role="hole" if f.dim else "hull")})
+            if f.core is not None:
+                t = np.linspace(0.0, 2.0 * np.pi, 129)            # counter-clockwise, closed
+                cx, cy, rad = f.core
+                disk = [[float(cx + rad * np.cos(a)), float(cy + rad * np.sin(a))] for a in t]
+                disk[-1] = disk[0]
+                out.append({"type": "Feature", "id": f"{f.id}-core",
+                            "geometry": {"type": "Polygon", "coordinates": [disk]},
+                            "properties": dict(props, role="largest empty disk")})
             out.append({"type": "Feature", "id": f"{f.id}-points", "geometry": mp,
                         "properties": dict(props, role="boundary points" if f.dim else "members")})
         else:
+            role = {0: "members", 1: "cycle points", 2: "bounding points"}[f.dim]
+            if f.cycle is not None:
+                line = [[float(c) for c in res.points[i]] for i in [*f.cycle, f.cycle[0]]]
+                out.append({"type": "Feature", "id": f"{f.id}-cycle",
+                            "geometry": {"type": "LineString", "coordinates": line},
+                            "bbox": [float(b) for b in f.bbox],
+                            "properties": dict(props, role="cycle")})
             out.append({"type": "Feature", "id": f"{f.id}-points", "geometry": mp,
                         "bbox": [float(b) for b in f.bbox],
-                        "properties": dict(props, role="bounding points" if f.dim else "members")})
+                        "properties": dict(props, role=role)})
     return {"type": "FeatureCollection", "features": out}
 
 

@@ -6,7 +6,8 @@ The threshold of a family is the line death = c * birth, c the death/birth
 ratio whose family-wise p equals alpha: a feature above its family's line
 is significant, and no other is (p decreases as the ratio grows).  3D
 patterns are drawn projected on the x-y plane; a void is outlined by the
-convex hull of the projection of its bounding points.
+convex hull of the projection of its bounding points, a loop by the
+projection of its representative cycle.
 """
 from __future__ import annotations
 
@@ -135,6 +136,9 @@ def plot_feature_map(res, path: str | None = None, window=None, title: str | Non
             ring = np.asarray(f.polygon)
             axm.fill(ring[:, 0], ring[:, 1], color=col, alpha=0.18, lw=0, zorder=2)
             axm.plot(ring[:, 0], ring[:, 1], color=col, lw=1.2, zorder=3)
+        elif f.cycle is not None:
+            ring = res.points[[*f.cycle, f.cycle[0]]][:, :2]
+            axm.plot(ring[:, 0], ring[:, 1], color=col, lw=1.2, zorder=3)
         else:
             h = _hull(xy) if len(xy) >= 3 else None
             if h is not None:
@@ -146,8 +150,9 @@ def plot_feature_map(res, path: str | None = None, window=None, title: str | Non
     axm.set_aspect("equal", adjustable="datalim")
     axm.autoscale_view()
     more = f"; {len(sig) - MAX_LABELS} more not labelled" if len(sig) > MAX_LABELS else ""
-    proj = ", projected on x-y (voids: outline of their bounding points)" if res.dim == 3 else ""
-    axm.set_title(f"{len(sig)} significant feature(s), family-wise alpha = {res.alpha:g}{proj}{more}",
+    proj = ("\nprojected on x-y (voids: outline of their bounding points; loops: their cycle)"
+            if res.dim == 3 else "")
+    axm.set_title(f"{len(sig)} significant feature(s), family-wise alpha = {res.alpha:g}{more}{proj}",
                   fontsize=9)
     axm.set_xlabel("x")
     axm.set_ylabel("y")
@@ -156,7 +161,7 @@ def plot_feature_map(res, path: str | None = None, window=None, title: str | Non
 
     # the diagram, log-log: lines of constant death/birth ratio are parallel
     markers = {0: "o", 1: "^", 2: "s"}
-    fam_col = {0: "#1f77b4", 1: "#d62728", 2: "#d62728"}
+    fam_col = {0: "#1f77b4", 1: "#d62728", 2: "#9467bd"}
     lo_all, hi_all = [], []
     for q, fam in res.families.items():
         pr = fam["pairs_norm"]

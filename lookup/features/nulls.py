@@ -11,8 +11,9 @@ Family-wise error control by the largest feature
     extremes ``maxratio1`` in 2D, ``maxratio2`` in 3D, through the same
     trusted lookup as the instant test: empirical null with a Gumbel tail,
     ``lookup.inference.extremes``) or, where no table is trusted and always
-    for clusters (no table holds their strength), from CSR simulations
-    (rank p-value (1 + #{M_i >= x}) / (m + 1), Davison & Hinkley 1997).
+    for clusters and 3D loops (no table holds their strength), from CSR
+    simulations (rank p-value (1 + #{M_i >= x}) / (m + 1), Davison & Hinkley
+    1997; beyond the largest simulated value a Gumbel tail, ``FamilyNull``).
 
 The universal law (second method)
     Bobrowski & Skraba (2023), "Random persistence diagrams are universal"
@@ -56,7 +57,17 @@ class FamilyNull:
         Null values of the largest strength.
     route : {"table", "mc"}
         ``table``: empirical law with a Gumbel tail beyond the 10th largest
-        value; ``mc``: rank p-values of simulated values.
+        value (``lookup.inference.extremes``); ``mc``: rank p-values of
+        simulated values, (k + 1) / (m + 1) with k = #{v_i >= x}, and beyond
+        the largest of them (k = 0, where the rank p would stay at its floor
+        1 / (m + 1)) a Gumbel tail fitted to all m values by maximum
+        likelihood: p = S_G(x) / S_G(v_max) / (m + 1), S_G(x) = 1 -
+        exp(-exp(-(x - loc) / scale)) the Gumbel (maximum) survival
+        function.  Every p >= 1 / (m + 1) is the exact rank p, so the test's
+        size at any level >= 1 / (m + 1) is that of the rank test; below, p
+        is a model estimate (the extreme-value limit of maxima; Gumbel
+        because the strengths' maxima have light tails, as the tables'
+        extremes do).
     source : str
         Where the values come from (table and cells, or the simulations).
     trusted : bool
@@ -70,9 +81,19 @@ class FamilyNull:
         self.trusted = trusted
         self.reasons = list(reasons)
         self._tail = None
+        self._gumbel = None
         if route == "table":
             from ..inference.extremes import GumbelTail
             self._tail = GumbelTail(self.values)
+        elif self.m >= 20 and np.ptp(self.values) > 0:
+            from ..inference.extremes import GumbelTail
+            g = GumbelTail(self.values)           # its maximum-likelihood Gumbel fit
+            loc, scale = g.loc, g.scale
+            self._gumbel = (loc, scale, self._gumbel_sf(self.values[-1], loc, scale))
+
+    @staticmethod
+    def _gumbel_sf(x, loc, scale):
+        return -np.expm1(-np.exp(-(np.asarray(x, float) - loc) / scale))
 
     @property
     def m(self) -> int:
@@ -84,14 +105,20 @@ class FamilyNull:
         if self._tail is not None:
             return np.minimum(1.0, self._tail.pvalue(x))
         k = self.m - np.searchsorted(self.values, x, side="left")
-        return (k + 1.0) / (self.m + 1.0)
+        p = (k + 1.0) / (self.m + 1.0)
+        if self._gumbel is not None and np.any(k == 0):
+            loc, scale, s_max = self._gumbel
+            with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+                beyond = np.where(s_max > 0, self._gumbel_sf(x, loc, scale) / s_max, 0.0)
+            p = np.where(k == 0, np.minimum(1.0, beyond) / (self.m + 1.0), p)
+        return p
 
     def threshold(self, level: float) -> float:
         """The smallest strength x with p(x) <= level (inf if none)."""
         v = self.values
         hi = float(v[-1])
         if float(self.pvalue(hi)) > level:
-            if self._tail is None:
+            if self._tail is None and self._gumbel is None:
                 return float("inf")
             span = hi - float(v[0]) + 1.0
             while float(self.pvalue(hi)) > level and hi < v[-1] + 1e3 * span:
@@ -110,8 +137,10 @@ class FamilyNull:
         return hi
 
     def describe(self) -> dict:
+        tail = ("Gumbel beyond the 10th largest" if self._tail is not None else
+                "Gumbel beyond the largest" if self._gumbel is not None else "none")
         return {"route": self.route, "source": self.source, "null_values": self.m,
-                "trusted": self.trusted, "reasons": self.reasons}
+                "tail": tail, "trusted": self.trusted, "reasons": self.reasons}
 
 
 def table_null(window, n: int, q: int, tables=None, use_shipped: bool = True):
@@ -142,7 +171,10 @@ def _largest(window, n: int, q: int, min_size: int, rng) -> float:
         return max_cluster_ratio(pts, min_size)
     from ..persistence.diagram import alpha_diagram
     from ..summaries.topological import max_ratio
-    return max_ratio(alpha_diagram(pts), q)
+    # 3D loops: the fast engine takes its H1 pairs from gudhi anyway, so
+    # gudhi alone (the same pairs, ``tests/test_features.py``) saves the rest
+    engine = "gudhi" if (q == 1 and pts.shape[1] == 3) else "fast"
+    return max_ratio(alpha_diagram(pts, engine=engine), q)
 
 
 def simulated_null(window, n: int, q: int, n_sims: int = 199, seed: int = 0,

@@ -10,6 +10,16 @@ Loops (2D) and voids (3D)
     ``alpha_diagram``; here the simplices are kept, because they give the
     feature's place (``lookup.features.regions``).
 
+Loops in 3D (H1)
+    The fast 3D engine keeps no H1 pairs, so they come from gudhi's
+    ``AlphaComplex`` (the same call as the diagram's reference engine,
+    ``lookup.persistence.diagram``): ``SimplexTree.persistence_pairs()``
+    gives each class's birth edge and death triangle; the 1-skeleton (edges
+    with their values) is kept for the class's representative cycle
+    (``lookup.features.regions.loop_cycle``).  Pairs shorter than the
+    diagram's ``ZERO_LENGTH`` (ties split by rounding) are dropped there and
+    here alike, so the pairs are the diagram's H1.
+
 Clusters (H0)
     Every H0 class is born at radius 0, so H0 lifetimes only measure gaps.
     A cluster's strength is measured on the single-linkage tree of the
@@ -26,7 +36,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["DualPairs", "dual_pairs", "ClusterPairs", "cluster_pairs", "mst_edges"]
+__all__ = ["DualPairs", "dual_pairs", "LoopPairs", "loop_pairs_3d", "ClusterPairs",
+           "cluster_pairs", "mst_edges"]
 
 
 @dataclass
@@ -116,6 +127,86 @@ def dual_pairs(face_values, face_tops, top_values) -> DualPairs:
     return DualPairs(np.array(cr, np.int64), np.array(de, np.int64),
                      np.sqrt(np.array(bi, float)), np.sqrt(np.array(dv, float)),
                      fv, np.asarray(top_values, float), ft, key)
+
+
+@dataclass
+class LoopPairs:
+    """H1 pairs of a 3D alpha filtration with their simplices (module doc).
+
+    Attributes
+    ----------
+    birth, death : ndarray
+        Radii in the data's units.
+    birth_edge : ndarray (k, 2) of int
+        The edge that creates each class (rows of the points).
+    death_triangle : ndarray (k, 3) of int
+        The triangle that fills it.
+    edges : ndarray (E, 2) of int
+        All edges of the alpha complex.
+    edge_values : ndarray (E,)
+        Their squared-radius values.
+    birth_value : ndarray (k,)
+        Squared-radius value of each birth edge (as in ``edge_values``).
+    """
+
+    birth: np.ndarray
+    death: np.ndarray
+    birth_edge: np.ndarray
+    death_triangle: np.ndarray
+    edges: np.ndarray
+    edge_values: np.ndarray
+    birth_value: np.ndarray
+
+
+def loop_pairs_3d(points: np.ndarray) -> LoopPairs:
+    """H1 pairs of the alpha filtration of 3D points, with birth edges and death triangles.
+
+    Parameters
+    ----------
+    points : ndarray (n, 3)
+        Distinct points.
+
+    Returns
+    -------
+    LoopPairs
+        Finite pairs of positive length, in the order gudhi reports them.
+    """
+    import gudhi
+    from scipy.spatial import cKDTree
+
+    from ..persistence.diagram import ZERO_LENGTH
+
+    P = np.asarray(points, float)
+    centred = P - P.mean(axis=0)
+    ac = gudhi.AlphaComplex(points=centred)
+    st = ac.create_simplex_tree()
+    st.compute_persistence(homology_coeff_field=2, persistence_dim_max=False)
+    # gudhi's vertex v is the point ac.get_point(v): map vertices to rows
+    nv = st.num_vertices()
+    gp = np.array([ac.get_point(v) for v in range(nv)], float).reshape(nv, 3)
+    rows = cKDTree(centred).query(gp)[1].astype(np.int64)
+    be, dt, bv, dv = [], [], [], []
+    for b, d in st.persistence_pairs():
+        if len(b) == 2 and len(d) == 3:
+            fb, fd = st.filtration(b), st.filtration(d)
+            rb, rd = np.sqrt(max(fb, 0.0)), np.sqrt(max(fd, 0.0))
+            if rd - rb > ZERO_LENGTH * rd:
+                be.append(b)
+                dt.append(d)
+                bv.append(fb)
+                dv.append(fd)
+    ed, ev = [], []
+    for s, f in st.get_skeleton(1):
+        if len(s) == 2:
+            ed.append(s)
+            ev.append(f)
+    k = len(bv)
+    return LoopPairs(np.sqrt(np.maximum(np.array(bv, float), 0.0)),
+                     np.sqrt(np.maximum(np.array(dv, float), 0.0)),
+                     rows[np.array(be, np.int64).reshape(k, 2)],
+                     rows[np.array(dt, np.int64).reshape(k, 3)],
+                     rows[np.array(ed, np.int64).reshape(-1, 2)], np.array(ev, float),
+                     np.array(bv, float))
 
 
 def mst_edges(points: np.ndarray):

@@ -50,8 +50,12 @@ class Feature:
         members, points on the hole's outer boundary cycle (2D) or its
         enclosing surface (3D), all at ``scale_used``.
     scale_used : float
-        The radius sqrt(birth * death) (data units) at which the feature is
-        located: the middle of its life on the log scale.
+        The radius (data units) at which the feature is located: for a
+        cluster sqrt(birth * death), the middle of its life on the log
+        scale; for a hole (loop in 2D, void in 3D) the middle of the
+        longest stretch of its life over which its region does not change
+        (``lookup.features.regions.stable_radius``); for a 3D loop its birth
+        (the cycle is taken just before it).
     centre : ndarray
     size : float
         Diameter in the data's units: of the circle/ball of the hole's area
@@ -63,6 +67,20 @@ class Feature:
         the cluster's convex hull).
     bbox : list
         [min..., max...] of the feature's points.
+    cycle : list of int or None
+        3D loop: its representative cycle, rows of the points in order (the
+        last joined to the first by the birth edge; ``points`` holds the
+        same rows); ``size`` is then twice the largest distance of its
+        points from ``centre`` (the length-weighted centroid of its edges)
+        and ``area`` is NaN.
+    cycle_length : float
+        Length of that cycle (data units; NaN otherwise).
+    core : list or None
+        Hole (2D loop, 3D void): its largest empty disk/ball, [centre...,
+        radius], the circumscribed disk/ball of its destroying simplex
+        (radius = ``death``): the maximum-likelihood place of an empty disk
+        among Poisson points (the largest disk free of points), beside
+        ``polygon``, the hole's shape.
     """
 
     id: str
@@ -84,6 +102,9 @@ class Feature:
     polygon: list | None = None
     bbox: list = field(default_factory=list)
     scale_used: float = float("nan")
+    cycle: list | None = None
+    cycle_length: float = float("nan")
+    core: list | None = None
 
     @property
     def kind(self) -> str:
@@ -106,6 +127,12 @@ class Feature:
             d["points"] = [int(i) for i in self.points]
         if self.polygon is not None:
             d["polygon"] = [[float(x), float(y)] for x, y in self.polygon]
+        if self.core is not None:
+            d["largest_empty_" + ("disk" if len(self.centre) == 2 else "ball")] = {
+                "centre": [float(x) for x in self.core[:-1]], "radius": float(self.core[-1])}
+        if self.cycle is not None:
+            d["cycle"] = [int(i) for i in self.cycle]
+            d["cycle_length"] = _num(self.cycle_length)
         return d
 
 
@@ -169,6 +196,11 @@ class FeatureMap:
         for f in self.features:
             d = f.as_dict(points=False)
             d.pop("polygon", None)
+            d.pop("cycle", None)
+            for k in ("largest_empty_disk", "largest_empty_ball"):
+                e = d.pop(k, None)
+                if e is not None:
+                    d["core_radius"] = e["radius"]
             c = d.pop("centre")
             for k, x in zip("xyz", c):
                 d[f"centre_{k}"] = x
