@@ -136,6 +136,12 @@ def plot_feature_map(res, path: str | None = None, window=None, title: str | Non
             ring = np.asarray(f.polygon)
             axm.fill(ring[:, 0], ring[:, 1], color=col, alpha=0.18, lw=0, zorder=2)
             axm.plot(ring[:, 0], ring[:, 1], color=col, lw=1.2, zorder=3)
+            if getattr(f, "core", None) is not None and res.dim == 2:
+                # its largest empty disk (radius = death), dashed
+                cx, cy, cr = (float(v) for v in f.core[:3])
+                t = np.linspace(0.0, 2.0 * np.pi, 181)
+                axm.plot(cx + cr * np.cos(t), cy + cr * np.sin(t), color=col, lw=0.9, ls="--",
+                         zorder=3)
         elif f.cycle is not None:
             ring = res.points[[*f.cycle, f.cycle[0]]][:, :2]
             axm.plot(ring[:, 0], ring[:, 1], color=col, lw=1.2, zorder=3)
@@ -151,7 +157,9 @@ def plot_feature_map(res, path: str | None = None, window=None, title: str | Non
     axm.autoscale_view()
     more = f"; {len(sig) - MAX_LABELS} more not labelled" if len(sig) > MAX_LABELS else ""
     proj = ("\nprojected on x-y (voids: outline of their bounding points; loops: their cycle)"
-            if res.dim == 3 else "")
+            if res.dim == 3 else
+            "\nholes: most persistent shape (filled), largest empty disk (dashed)"
+            if any(f.dim == 1 for f in sig) else "")
     axm.set_title(f"{len(sig)} significant feature(s), family-wise alpha = {res.alpha:g}{more}{proj}",
                   fontsize=9)
     axm.set_xlabel("x")
