@@ -9,8 +9,9 @@ worker processes (started once):
    the same points; time ratio and bit-for-bit equality of every tiled
    statistic (``lookup.tiled.merge.TILED_STATISTICS``, H1 pairs included).
 2. each n of ``--sizes`` (default 10^6, 10^7) generated on the fly (no file)
-   on the cluster: wall time, peak memory of each worker (``ru_maxrss``) and
-   of this process; the scaling exponent of time in n (slope of log time on
+   on the cluster: wall time, peak memory of each worker (``ru_maxrss``,
+   workers restarted before each run) and of the calling process (each run
+   driven from a child process of its own); the scaling exponent of time in n (slope of log time on
    log n), drawn with ``--plot FILE``.
 
 Every run prints the machine's load average beside its figures.  Usage::
@@ -54,6 +55,16 @@ def _single(n: int, stats: list) -> tuple:      # runs in a child process
     return one, time.perf_counter() - t0, _rss_mb()
 
 
+def _driver(size: int, stats: list, tile_points: int, address: str, seed: int) -> tuple:
+    """One tiled run from a child process of its own (its peak memory is the
+    calling process's of that run alone)."""
+    w = nullatlas.Rectangle(0, 0, 1, 1)
+    t0 = time.perf_counter()
+    vals, info = tiled_statistics(GeneratedCSR(w, size, seed=seed), w, stats,
+                                  tile_points=tile_points, scheduler=address, progress=False)
+    return vals, info, time.perf_counter() - t0, _rss_mb()
+
+
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     ap.add_argument("--single", type=float, default=1e7)
@@ -63,7 +74,6 @@ def main(argv=None) -> int:
     ap.add_argument("--plot", metavar="FILE", help="log-log figure of time against n")
     ap.add_argument("--json", action="store_true")
     a = ap.parse_args(argv)
-    w = nullatlas.Rectangle(0, 0, 1, 1)
     stats = list(TILED_STATISTICS)
     out = {"load_before": os.getloadavg()[0]}
 
@@ -76,32 +86,28 @@ def main(argv=None) -> int:
     with ProcessPoolExecutor(1, mp_context=mp.get_context("spawn")) as ex:
         one, t_one, rss_one = ex.submit(_single, n, stats).result()
     runs = []
+    ctx = mp.get_context("spawn")
     with LocalCluster(n_workers=a.workers, threads_per_worker=1, processes=True,
                       dashboard_address=None, memory_limit="6GB") as cluster, \
-            Client(cluster) as client:
-        t0 = time.perf_counter()
-        tiled, info = tiled_statistics(GeneratedCSR(w, n, seed=1), w, stats,
-                                       tile_points=a.tile_points,
-                                       scheduler=cluster.scheduler_address, progress=False)
-        t_tiled = time.perf_counter() - t0
+            Client(cluster) as client, ProcessPoolExecutor(1, mp_context=ctx) as ex:
+        def run(size, which, seed):
+            client.restart()            # fresh workers: their peak memory is this run's
+            vals, info, dt, rss = ex.submit(_driver, size, which, a.tile_points,
+                                            cluster.scheduler_address, seed).result()
+            return vals, info, dt, rss, max(client.run(_worker_rss_mb).values())
+
+        tiled, info, t_tiled, rss_drv, rss_w = run(n, stats, 1)
         equal = {k: bool(np.array_equal(tiled[k], one[k])) for k in stats}
         out["single"] = {"n": n, "single_s": round(t_one, 2), "single_peak_mb": round(rss_one),
                          "tiled_s": round(t_tiled, 2), "ratio": round(t_tiled / t_one, 2),
                          "tiles": info["tiles"], "workers": a.workers,
-                         "worker_peak_mb": round(max(client.run(_worker_rss_mb).values())),
+                         "worker_peak_mb": round(rss_w), "driver_peak_mb": round(rss_drv),
                          "equal": equal, "load": os.getloadavg()[0]}
         del one, tiled
         for size in (int(float(x)) for x in a.sizes.split(",")):
-            src = GeneratedCSR(w, size, seed=2)
-            t0 = time.perf_counter()
-            _, info = tiled_statistics(src, w, ["euler", "total0", "nnmean"],
-                                       tile_points=a.tile_points, scheduler=cluster.scheduler_address,
-                                       progress=False)
-            dt = time.perf_counter() - t0
-            rss = client.run(_worker_rss_mb)
+            _, info, dt, rss_drv, rss_w = run(size, ["euler", "total0", "nnmean"], 2)
             runs.append({"n": size, "seconds": round(dt, 1), "tiles": info["tiles"],
-                         "worker_peak_mb": round(max(rss.values()), 0),
-                         "driver_peak_mb": round(_rss_mb(), 0),
+                         "worker_peak_mb": round(rss_w), "driver_peak_mb": round(rss_drv),
                          "largest_tile_points": info["largest_tile_points"],
                          "load": os.getloadavg()[0]})
     out["scaling"] = runs
@@ -118,13 +124,14 @@ def main(argv=None) -> int:
     s = out["single"]
     print(f"{s['n']:,} points, unit square: single process {s['single_s']} s "
           f"(peak {s['single_peak_mb'] / 1024:.2f} GB), tiled on Dask ({s['tiles']} tiles, "
-          f"{s['workers']} workers, peak {s['worker_peak_mb'] / 1024:.2f} GB per worker) "
+          f"{s['workers']} workers, peak {s['worker_peak_mb'] / 1024:.2f} GB per worker, "
+          f"{s['driver_peak_mb'] / 1024:.2f} GB in the calling process) "
           f"{s['tiled_s']} s, ratio {s['ratio']}; equal bit for bit: "
           f"{all(s['equal'].values())} {s['equal']} (load {s['load']:.1f})")
     for r in runs:
         print(f"{r['n']:>13,} points generated on the fly, Dask {a.workers} workers: "
               f"{r['seconds']} s, {r['tiles']} tiles, peak memory per worker "
-              f"{r['worker_peak_mb'] / 1024:.2f} GB, this process {r['driver_peak_mb'] / 1024:.2f} GB "
+              f"{r['worker_peak_mb'] / 1024:.2f} GB, calling process {r['driver_peak_mb'] / 1024:.2f} GB "
               f"(load {r['load']:.1f})")
     if "slope" in out:
         print(f"time ~ n^{out['slope']} (log-log slope over {len(runs)} sizes)")

@@ -81,3 +81,25 @@ def test_empty_dimensions():
     assert topological.max_ratio(dg, 1) == 1
     assert not topological.apf(dg, 1).any() and not topological.silhouette(dg, 1).any()
     np.testing.assert_allclose(topological.euler_curve(dg, np.array([0.1, 1.0])), [1.0, 0.5])
+
+
+def test_silhouette_and_persistent_betti_over_many_blocks():
+    """More pairs than one block of the silhouette's tents (65,536): the
+    blocks add up to the brute-force sums, and the persistent Betti counts
+    of a large diagram (ties and an infinite class included) are exact."""
+    from nullatlas.lookup.persistence.diagram import Diagram
+
+    rng = np.random.default_rng(4)
+    b = np.round(rng.uniform(0, 1.0, 150_000), 2)          # many ties
+    d = b + np.round(rng.exponential(0.3, 150_000), 2)
+    h1 = np.column_stack([b, d])
+    h0 = np.vstack([np.column_stack([np.zeros(5), rng.uniform(0, 1, 5)]), [[0.0, np.inf]]])
+    dg = Diagram(pairs=[h0, h1], n=200_000, dim=2)
+    keep = d > b
+    life = (d - b)[keep]
+    sil = [(life * np.maximum(0, np.minimum(t - b[keep], d[keep] - t))).sum() / life.sum()
+           for t in grids.SILHOUETTE_T]
+    np.testing.assert_allclose(topological.silhouette(dg, 1), sil, rtol=1e-12)
+    for q, p in ((0, h0), (1, h1)):
+        pb = [np.sum((p[:, 0] <= s) & (p[:, 1] > t)) / dg.n for s, t in grids.PBETTI_PAIRS]
+        np.testing.assert_array_equal(topological.persistent_betti(dg, q), pb)
