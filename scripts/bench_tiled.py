@@ -89,8 +89,8 @@ def main(argv=None) -> int:
     ctx = mp.get_context("spawn")
     with LocalCluster(n_workers=a.workers, threads_per_worker=1, processes=True,
                       dashboard_address=None, memory_limit="6GB") as cluster, \
-            Client(cluster) as client, ProcessPoolExecutor(1, mp_context=ctx) as ex:
-        def run(size, which, seed):
+            Client(cluster) as client, ProcessPoolExecutor(1, mp_context=ctx, max_tasks_per_child=1) as ex:
+        def run(size, which, seed):     # a fresh child per run (max_tasks_per_child)
             client.restart()            # fresh workers: their peak memory is this run's
             vals, info, dt, rss = ex.submit(_driver, size, which, a.tile_points,
                                             cluster.scheduler_address, seed).result()
