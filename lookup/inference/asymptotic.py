@@ -174,7 +174,7 @@ def extrapolation_limit(growth, n_hi: int, bias_hi) -> int:
     return int(min(N_TRUST_MAX, np.floor(top)))
 
 
-def _beyond_reason(nm: NullMoments, stat, n: int, lo: int, hi: int, top: int) -> str:
+def _beyond_reason(stat, n: int, lo: int, hi: int, top: int) -> str:
     if top >= N_TRUST_MAX:
         return (f"n = {n:,} is beyond {N_TRUST_MAX:,}, the largest n the instant test is "
                 "trusted at")
@@ -221,7 +221,7 @@ def _model_trust(nm: NullMoments, stat, n: int, window, key: str) -> list:
         top = extrapolation_limit(nm.extra.get("limit_growth"), hi, per.get("bias_hi"))
         nm.extra["n_extrapolation"] = top
         if n > top:
-            out.append(_beyond_reason(nm, stat, n, lo, hi, top))
+            out.append(_beyond_reason(stat, n, lo, hi, top))
     if m["narrow_share"] > per["narrow_share_max"] + 1e-12:
         out.append(f"{_pct(m['narrow_share'])} of the window lies in parts narrower than "
                    f"{NARROW_WIDTH:g} mean spacings (validated up to "
